@@ -1,0 +1,126 @@
+"""The flat array description of a Hamiltonian that the SSE engine consumes.
+
+Every model, whatever its terms, is written as
+
+    H = E_const - sum_t C_t prod_{a=1..k_t} P_{i_a j_a},   P_ij = 1/4 - S_i.S_j,   C_t > 0,
+
+with k_t in {1, 2, 3} site-disjoint bonds per term.  A Heisenberg coupling ``+J S_i.S_j`` is the k = 1
+case with ``C_t = J`` and a constant ``J/4`` added to ``E_const`` (``J S_i.S_j = J/4 - J P_ij``).  The
+engine therefore never needs to know where a term came from; the constants are kept per *group* (one
+group per user term entry) so that reported energies are ``<H>/N`` for H exactly as written.
+
+Conventions (all arrays are C-contiguous numpy arrays):
+
+``n_sites``          N, number of S=1/2 sites.
+``phase``            int8[N], staggered sign phi_i = +1 on sublattice A, -1 on sublattice B.
+``bond_sites``       int32[nb, 2], the two sites of every bond used by any term (opposite sublattices).
+``bond_disp``        float64[nb, D], displacement site1 - site0 of each bond along each of the D winding
+                     directions, in units of that direction's lattice vector (minimum image; zero for a
+                     bond that has no component, e.g. a bilayer rung).  A twist phi along direction a
+                     multiplies the hop i->j by exp(i phi bond_disp[b, a]).
+``dir_names``        tuple of D direction names ("x", "y", "z", or "a1", "a2").
+``dir_lengths``      float64[D], number of unit cells along each direction (periodic length).
+``site_coords``      float64[N, D], position of each site's unit cell along each direction (in units of the
+                     lattice vector), used for structure-factor phases exp(i 2 pi k r_a / L_a).
+``term_start``       int32[T+1], CSR offsets into ``term_bonds``; term t uses bonds
+                     ``term_bonds[term_start[t]:term_start[t+1]]`` (k_t = 1..3 entries).
+``term_bonds``       int32[sum k_t], bond indices into ``bond_sites``.
+``term_coupling``    float64[T], C_t > 0.
+``term_group``       int32[T], index of the user term entry the term came from.
+``group_names``      tuple of G names, e.g. "inter", "intra", "q2" (used as ``bond_energy/<name>``).
+``group_constant``   float64[G], the constant each group adds to H (energy units, whole lattice).
+``vbs_bonds``        int32[nv, 2], nearest-neighbour bonds used for the columnar dimer order parameter.
+``vbs_dir``          int8[nv], 0 for an x-bond, 1 for a y-bond.
+``vbs_phase``        int8[nv], (-1)^x for x-bonds and (-1)^y for y-bonds (x, y of site0).
+``n_vbs_dirs``       0 (no valence-bond order parameter on this lattice), 1 (chain) or 2.
+``linear_size``      L used in stiffness*L and corr_length/L (first direction's length).
+``open_boundaries``  True if any direction is open (winding numbers then vanish identically).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["CompiledModel"]
+
+
+@dataclass(frozen=True)
+class CompiledModel:
+    """Flat, engine-ready Hamiltonian description; see the module docstring for the conventions."""
+
+    n_sites: int
+    phase: np.ndarray
+    bond_sites: np.ndarray
+    bond_disp: np.ndarray
+    dir_names: tuple[str, ...]
+    dir_lengths: np.ndarray
+    site_coords: np.ndarray
+    term_start: np.ndarray
+    term_bonds: np.ndarray
+    term_coupling: np.ndarray
+    term_group: np.ndarray
+    group_names: tuple[str, ...]
+    group_constant: np.ndarray
+    vbs_bonds: np.ndarray
+    vbs_dir: np.ndarray
+    vbs_phase: np.ndarray
+    n_vbs_dirs: int
+    linear_size: int
+    open_boundaries: bool = False
+    lattice_kind: str = "explicit"
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def n_terms(self) -> int:
+        return int(self.term_coupling.shape[0])
+
+    @property
+    def n_dirs(self) -> int:
+        return int(self.bond_disp.shape[1])
+
+    @property
+    def max_bonds_per_term(self) -> int:
+        return int(np.max(np.diff(self.term_start))) if self.n_terms else 0
+
+    @property
+    def energy_constant(self) -> float:
+        """E_const of H = E_const - sum_t C_t prod P (whole lattice, energy units)."""
+        return float(np.sum(self.group_constant))
+
+    def to_arrays(self) -> dict[str, np.ndarray]:
+        """All fields as numpy arrays (strings as fixed-width bytes), for storage in HDF5."""
+        out: dict[str, np.ndarray] = {}
+        for name in self.__dataclass_fields__:
+            value = getattr(self, name)
+            if name == "extra":
+                continue
+            if isinstance(value, tuple):
+                out[name] = np.array([s.encode() for s in value], dtype="S64")
+            elif isinstance(value, np.ndarray):
+                out[name] = value
+            else:
+                out[name] = np.asarray(value)
+        return out
+
+    @classmethod
+    def from_arrays(cls, arrays: dict[str, np.ndarray]) -> CompiledModel:
+        """Inverse of :meth:`to_arrays`."""
+        kwargs = {}
+        for name in cls.__dataclass_fields__:
+            if name == "extra" or name not in arrays:
+                continue
+            value = np.asarray(arrays[name])
+            if name in ("dir_names", "group_names"):
+                kwargs[name] = tuple(v.decode() if isinstance(v, bytes) else str(v) for v in value)
+            elif name in ("n_sites", "n_vbs_dirs", "linear_size"):
+                kwargs[name] = int(value)
+            elif name == "open_boundaries":
+                kwargs[name] = bool(value)
+            elif name == "lattice_kind":
+                v = value.item()
+                kwargs[name] = v.decode() if isinstance(v, bytes) else str(v)
+            else:
+                kwargs[name] = value
+        return cls(**kwargs)

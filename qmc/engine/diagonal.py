@@ -1,0 +1,173 @@
+"""The diagonal update, fused with building the linked vertex list and the time-integrated estimators.
+
+SSE with a fixed-length string of M slots and n operators samples
+
+    W = beta^n (M - n)! / M!  prod_p  C_{t_p} / 2^{k_{t_p}}
+
+for H = E_const - sum_t C_t prod_a P_{i_a j_a} (see :mod:`models.compiled`).  At an empty slot an operator
+is inserted with probability min(1, beta W_tot / (M - n)) times [all its bonds antiparallel], the term
+being drawn with probability w_t / W_tot (w_t = C_t / 2^{k_t}, alias table); a fully diagonal operator
+is removed with probability min(1, (M - n + 1) / (beta W_tot)).  Off-diagonal operators stay and
+propagate the spins.
+
+One pass over the string does three things per slot:
+
+1. applies the loop flips of the previous step to the operator (``vflip``),
+2. measures the *old* configuration (the one the previous loop update produced; diagonal updates do not
+   change the propagated states): the number of operators per term group, the staggered magnetisation
+   after each operator (for the Kubo-integrated susceptibility and time-averaged moments) and the winding
+   numbers (net displacement of up spins along each direction),
+3. performs the diagonal update at that slot and appends the resulting operator's bond vertices to the
+   linked vertex list (leg layout in :mod:`qmc.engine.vertices`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from qmc.rng import next_double
+
+__all__ = ["diagonal_sweep", "SWEEP_OUT_SIZE"]
+
+# layout of ``out`` filled by diagonal_sweep
+SWEEP_OUT_SIZE = 8  # n_old, sum_ms, sum_ms2, sum_ms4, ms_end, w_0, w_1, w_2
+
+
+@njit(cache=True, boundscheck=False)
+def diagonal_sweep(
+    ops, vflip, spins, links, first, last, n_ops,
+    beta_wtot, alias_prob, alias_idx,
+    term_start, term_bonds, term_group, bond_sites, bond_disp, phase,
+    rng, group_counts, out,
+):
+    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is in units of 2 S^z (spins are +-1)."""
+    M = ops.shape[0]
+    n_sites = spins.shape[0]
+    n_terms = alias_prob.shape[0]
+    n_dirs = bond_disp.shape[1]
+    s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
+
+    ms = 0
+    for i in range(n_sites):
+        first[i] = -1
+        last[i] = -1
+        ms += phase[i] * spins[i]
+    for g in range(group_counts.shape[0]):
+        group_counts[g] = 0
+    w = np.zeros(3, dtype=np.float64)
+
+    n = n_ops
+    n_old = 0
+    sum_ms = 0.0
+    sum_ms2 = 0.0
+    sum_ms4 = 0.0
+    v_old = 0
+    v = 0
+    for p in range(M):
+        op = ops[p]
+        t = 0
+        if op >= 0:
+            t = op >> 3
+            b0 = term_start[t]
+            k = term_start[t + 1] - b0
+            for a in range(k):
+                if vflip[v_old + a] != 0:
+                    op ^= 1 << a
+                    vflip[v_old + a] = 0
+            v_old += k
+            n_old += 1
+            group_counts[term_group[t]] += 1
+            if (op & 7) != 0:
+                ops[p] = op
+                for a in range(k):
+                    if (op >> a) & 1:
+                        b = term_bonds[b0 + a]
+                        i = bond_sites[b, 0]
+                        j = bond_sites[b, 1]
+                        si = spins[i]
+                        for d in range(n_dirs):
+                            w[d] += si * bond_disp[b, d]
+                        ms -= 2 * phase[i] * si + 2 * phase[j] * spins[j]
+                        spins[i] = -si
+                        spins[j] = -spins[j]
+                fm = float(ms)
+                sum_ms += fm
+                sum_ms2 += fm * fm
+                sum_ms4 += fm * fm * fm * fm
+            else:
+                fm = float(ms)
+                sum_ms += fm
+                sum_ms2 += fm * fm
+                sum_ms4 += fm * fm * fm * fm
+                u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
+                if u * beta_wtot < M - n + 1:
+                    ops[p] = -1
+                    n -= 1
+                    continue
+                ops[p] = op
+        else:
+            u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
+            if u * (M - n) >= beta_wtot:
+                continue
+            u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
+            r = u * n_terms
+            t = int(r)
+            if r - t >= alias_prob[t]:
+                t = alias_idx[t]
+            b0 = term_start[t]
+            k = term_start[t + 1] - b0
+            allowed = True
+            for a in range(k):
+                b = term_bonds[b0 + a]
+                if spins[bond_sites[b, 0]] == spins[bond_sites[b, 1]]:
+                    allowed = False
+                    break
+            if not allowed:
+                continue
+            ops[p] = t << 3
+            n += 1
+        # append the bond vertices of the operator now at slot p (term t)
+        b0 = term_start[t]
+        k = term_start[t + 1] - b0
+        for a in range(k):
+            b = term_bonds[b0 + a]
+            i = bond_sites[b, 0]
+            j = bond_sites[b, 1]
+            leg = 4 * v
+            prev = last[i]
+            if prev >= 0:
+                links[prev] = leg
+                links[leg] = prev
+            else:
+                first[i] = leg
+            last[i] = leg + 2
+            prev = last[j]
+            if prev >= 0:
+                links[prev] = leg + 1
+                links[leg + 1] = prev
+            else:
+                first[j] = leg + 1
+            last[j] = leg + 3
+            v += 1
+
+    for i in range(n_sites):
+        f = first[i]
+        if f >= 0:
+            lst = last[i]
+            links[f] = lst
+            links[lst] = f
+
+    rng[0] = s0
+    rng[1] = s1
+    rng[2] = s2
+    rng[3] = s3
+    out[0] = n_old
+    out[1] = sum_ms
+    out[2] = sum_ms2
+    out[3] = sum_ms4
+    out[4] = ms
+    out[5] = w[0]
+    out[6] = w[1]
+    out[7] = w[2]
+    return n, v

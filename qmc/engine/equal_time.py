@@ -1,0 +1,61 @@
+"""Estimators of one propagated state |alpha(0)> (spins are +-1, i.e. S^z_i = spins[i] / 2).
+
+Per configuration (N sites, phi_i the staggered sign):
+
+- ``mz2``        (sum_i S^z_i)^2
+- ``s_q_next``   S(Q + dq_a) = (1/N) |sum_i phi_i S^z_i exp(i dq_a . r_i)|^2 averaged over directions a,
+                 dq_a = 2 pi / L_a along a (the nearest wavevectors of the ordering wavevector Q)
+- ``D_x, D_y``   columnar dimer order parameter D_a = (1/N) sum_{bonds b along a} (-1)^{a_b} S^z_i S^z_j
+- ``cos4``       cos 4 theta = (D_x^4 - 6 D_x^2 D_y^2 + D_y^4) / (D_x^2 + D_y^2)^2 (0 when D = 0)
+
+and the (D_x, D_y) histogram over [-r, r]^2.
+"""
+
+from __future__ import annotations
+
+from numba import njit
+
+__all__ = ["equal_time"]
+
+
+@njit(cache=True, boundscheck=False)
+def equal_time(spins, cos_tab, sin_tab, vbs_bonds, vbs_dir, vbs_phase, hist, hist_range, out):
+    """Fill out = [mz2, s_q_next, D_x, D_y] for the current spins and add (D_x, D_y) to ``hist``."""
+    n_sites = spins.shape[0]
+    mz = 0
+    for i in range(n_sites):
+        mz += spins[i]
+    out[0] = 0.25 * mz * mz
+    n_dirs = cos_tab.shape[0]
+    sqn = 0.0
+    for d in range(n_dirs):
+        re = 0.0
+        im = 0.0
+        for i in range(n_sites):
+            s = spins[i]
+            re += s * cos_tab[d, i]
+            im += s * sin_tab[d, i]
+        sqn += re * re + im * im
+    if n_dirs > 0:
+        out[1] = 0.25 * sqn / (n_dirs * n_sites)
+    else:
+        out[1] = 0.0
+    dx = 0.0
+    dy = 0.0
+    for b in range(vbs_bonds.shape[0]):
+        c = vbs_phase[b] * spins[vbs_bonds[b, 0]] * spins[vbs_bonds[b, 1]]
+        if vbs_dir[b] == 0:
+            dx += c
+        else:
+            dy += c
+    dx *= 0.25 / n_sites
+    dy *= 0.25 / n_sites
+    out[2] = dx
+    out[3] = dy
+    nh = hist.shape[0]
+    if vbs_bonds.shape[0] > 0 and nh > 0:
+        ix = int((dx + hist_range) / (2.0 * hist_range) * nh)
+        iy = int((dy + hist_range) / (2.0 * hist_range) * nh)
+        ix = min(max(ix, 0), nh - 1)
+        iy = min(max(iy, 0), nh - 1)
+        hist[ix, iy] += 1

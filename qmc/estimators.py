@@ -1,0 +1,87 @@
+"""Per-bin observables from the raw sums of :mod:`qmc.engine.steps` (names are the project's contract).
+
+N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t prod P as in
+:mod:`models.compiled`; a bin holds averages over ``steps_per_bin`` Monte Carlo steps.
+
+=================  ===========================================================================================
+``energy``         <H>/N = (E_const - <n>/beta)/N  (H exactly as written, constants included)
+``n_ops``          <n>, expansion order (raw moment)
+``n_ops_sq``       <n^2> (raw moment); specific heat per site C/N = (<n^2> - <n>^2 - <n>)/N by jackknife
+``chi_uniform``    beta <(sum_i S^z_i)^2>/N
+``m_stag2``        <(M_s/N)^2>, M_s = sum_i phi_i S^z_i, time-averaged over the propagated states
+``m_stag4``        <(M_s/N)^4>; binder_stag = m_stag4 / m_stag2^2 by jackknife
+``chi_stag``       (1/N) int_0^beta <M_s(tau) M_s(0)> dtau
+``s_q``            S(Q) = (1/N) <M_s^2> = N m_stag2 (static structure factor at the ordering wavevector)
+``s_q_next``       S(Q + 2 pi/L_a e_a) averaged over the winding directions a; corr_length (second moment)
+                   xi = (L/(2 pi)) sqrt(S(Q)/S(Q+dq) - 1) by jackknife
+``stiffness/<a>``  rho_a = <w_a^2>/(beta N), w_a the net number of up-spin hops along +a minus -a
+                   (winding estimator: Pollock and Ceperley, Phys. Rev. B 36, 8343 (1987)); it equals
+                   (1/N) d^2F/dphi^2 for a twist phi on every bond along a
+``stiffness``      average of rho_a over the lattice's directions (all equivalent for the lattices provided)
+``vbs_x2``         <D_x^2>, D_x = (1/N) sum_r (-1)^x S^z_r S^z_{r+x}; likewise ``vbs_y2``
+``vbs4``           <(D_x^2 + D_y^2)^2>; VBS Binder ratio vbs4 / (vbs_x2 + vbs_y2)^2
+``vbs_cos4``       <cos 4 theta> of (D_x, D_y) = |D| (cos theta, sin theta)
+``bond_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N
+=================  ===========================================================================================
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from models.compiled import CompiledModel
+from qmc.engine import steps as S
+
+__all__ = ["bin_names", "bin_row"]
+
+
+def bin_names(model: CompiledModel) -> tuple[str, ...]:
+    """Column names of a bin row for this model (order matches :func:`bin_row`)."""
+    names = ["energy", "n_ops", "n_ops_sq", "chi_uniform", "m_stag2", "m_stag4", "chi_stag", "s_q"]
+    if _has_winding(model):
+        names += ["s_q_next", "stiffness"] + [f"stiffness/{d}" for d in model.dir_names]
+    elif model.n_dirs > 0:
+        names += ["s_q_next"]
+    if model.n_vbs_dirs >= 1:
+        names += ["vbs_x2"]
+    if model.n_vbs_dirs >= 2:
+        names += ["vbs_y2"]
+    if model.n_vbs_dirs >= 1:
+        names += ["vbs4"]
+    if model.n_vbs_dirs >= 2:
+        names += ["vbs_cos4"]
+    names += [f"bond_energy/{g}" for g in model.group_names]
+    return tuple(names)
+
+
+def _has_winding(model: CompiledModel) -> bool:
+    return model.n_dirs > 0 and not model.open_boundaries
+
+
+def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) -> np.ndarray:
+    """Bin averages (in :func:`bin_names` order) from the raw sums ``acc`` over ``n_steps`` steps."""
+    a = acc / float(n_steps)
+    n = float(model.n_sites)
+    vals: dict[str, float] = {
+        "energy": (model.energy_constant - a[S.A_NOPS] / beta) / n,
+        "n_ops": a[S.A_NOPS],
+        "n_ops_sq": a[S.A_NOPS2],
+        "chi_uniform": beta * a[S.A_MZ2] / n,
+        "m_stag2": a[S.A_MS2] / n**2,
+        "m_stag4": a[S.A_MS4] / n**4,
+        "chi_stag": a[S.A_CHIS] / n,
+        "s_q": a[S.A_MS2] / n,
+        "s_q_next": a[S.A_SQN],
+        "vbs_x2": a[S.A_DX2],
+        "vbs_y2": a[S.A_DY2],
+        "vbs4": a[S.A_D4],
+        "vbs_cos4": a[S.A_COS4],
+    }
+    if _has_winding(model):
+        rho = [a[S.A_W2 + d] / (beta * n) for d in range(model.n_dirs)]
+        vals["stiffness"] = float(np.mean(rho))
+        for d, name in enumerate(model.dir_names):
+            vals[f"stiffness/{name}"] = rho[d]
+    for g, name in enumerate(model.group_names):
+        vals[f"bond_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
+    return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)
