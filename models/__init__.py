@@ -1,0 +1,22 @@
+"""Sign-problem-free S=1/2 spin Hamiltonians: lattices, terms, and their compilation for the SSE engine.
+
+Pure Python + numpy.  Typical use::
+
+    from models import compile_model, jq2
+    model = compile_model(*jq2(16, J=1.0, Q=0.5))
+"""
+
+from models.compile import compile_model, group_names
+from models.compiled import CompiledModel
+from models.errors import ModelError
+from models.lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice
+from models.named import NAMED_MODELS, bilayer, columnar_dimer, heisenberg, jq2, jq3
+from models.shapes import SHAPE_LATTICES, SHAPES, parse_shape, place_shape, rotations, translate_shape
+from models.terms import HeisenbergTerm, ProjectorProductTerm, Term
+
+__all__ = [
+    "BOUNDARIES", "CompiledModel", "HeisenbergTerm", "LATTICE_KINDS", "Lattice", "ModelError",
+    "NAMED_MODELS", "ProjectorProductTerm", "SHAPES", "SHAPE_LATTICES", "Term", "bilayer", "build_lattice",
+    "columnar_dimer", "compile_model", "group_names", "heisenberg", "jq2", "jq3", "parse_shape",
+    "place_shape", "rotations", "translate_shape",
+]

@@ -1,0 +1,53 @@
+"""User-level Hamiltonian terms (energy units; S = 1/2 spin operators).
+
+``HeisenbergTerm(bonds, J)``               ``+J sum_{<ij> in class} S_i.S_j``
+``ProjectorProductTerm(shape, Q)``         ``-Q sum_{placements} prod_{a=1..k} P_{i_a j_a}``,
+                                           ``P_ij = 1/4 - S_i.S_j`` (singlet projector), k = 1, 2, 3
+
+``bonds`` names a bond class of the lattice (see :mod:`models.lattice`); ``shape`` is a name from
+:data:`models.shapes.SHAPES` or a list of bonds given as cell offsets (see :mod:`models.shapes`); with
+``symmetrize`` the shape is also placed in its rotated orientations.  ``name`` labels the term's energy
+group (default: the bond class name, or ``"q<k>"`` for a k-bond projector product).  Terms are plain data;
+:func:`models.compile.compile_model` validates them against a lattice.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+__all__ = ["HeisenbergTerm", "ProjectorProductTerm", "Term"]
+
+
+@dataclass(frozen=True)
+class HeisenbergTerm:
+    """``+J S_i.S_j`` on every bond of the lattice class ``bonds`` (J = ``coupling`` > 0, or 0 = off)."""
+
+    bonds: str
+    coupling: float
+    name: str | None = None
+
+
+@dataclass(frozen=True)
+class ProjectorProductTerm:
+    """``-Q prod P`` on every placement of ``shape`` (Q = ``coupling`` >= 0)."""
+
+    shape: str | Sequence
+    coupling: float
+    symmetrize: bool = True
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.shape, str):  # freeze nested lists/arrays so the term stays hashable
+            object.__setattr__(self, "shape", _freeze(self.shape))
+
+
+def _freeze(value):
+    if hasattr(value, "tolist"):
+        value = value.tolist()
+    if isinstance(value, list | tuple):
+        return tuple(_freeze(v) for v in value)
+    return value
+
+
+Term = HeisenbergTerm | ProjectorProductTerm
