@@ -1,0 +1,81 @@
+"""Analysis layer: error analysis of Monte Carlo bins and finite-size scaling of a run.
+
+Modules (one concept each): ``binning`` (binning analysis, tau_int), ``jackknife`` (leave-one-out
+estimates), ``chains`` (combining replicas), ``derived`` (derived observables by jackknife),
+``tasks`` (task records), ``summary`` (per-task summaries, replica merging), ``scan`` (coupling
+detection, curves per size), ``groundstate`` (beta-doubling check), ``crossings`` (crossing points,
+1/nu from slopes), ``extrapolate`` (L -> infinity fits), ``collapse`` (data collapse), ``vbs`` (VBS
+histogram anisotropy), ``tables`` (CSV/JSON), ``plots`` (matplotlib, Agg), ``report``
+(``analyze_run``).  This layer never imports the engine or storage; it reads TaskData-like objects.
+"""
+
+from .binning import BinningLevels, ErrorEstimate, binning_levels, error_estimate, halves_consistent, rebin
+from .chains import concatenate_chains, merge_bin_dicts, weighted_mean
+from .collapse import Collapse, data_collapse, scaling_variable
+from .crossings import Crossing, find_crossing, find_crossings, inverse_nu, size_pairs
+from .derived import (
+    DerivedEstimate,
+    binder_stag,
+    binder_vbs,
+    corr_length,
+    derived_estimates,
+    derived_observables,
+    specific_heat,
+    stiffness_L,
+    xi_over_L,
+)
+from .errors import AnalysisError
+from .extrapolate import Extrapolation, extrapolate
+from .groundstate import beta_doubling_check
+from .jackknife import JackknifeResult, jackknife, jackknife_pseudovalues
+from .report import CROSSING_QUANTITIES, analyze_run, format_result
+from .scan import detect_coupling
+from .summary import group_replicas, summarize_task
+from .tasks import AnalysisTask
+from .vbs import cos4_from_histogram, plot_vbs_histogram, vbs_anisotropy
+
+__all__ = [
+    "CROSSING_QUANTITIES",
+    "AnalysisError",
+    "BinningLevels",
+    "Collapse",
+    "Crossing",
+    "DerivedEstimate",
+    "ErrorEstimate",
+    "Extrapolation",
+    "JackknifeResult",
+    "AnalysisTask",
+    "analyze_run",
+    "beta_doubling_check",
+    "binder_stag",
+    "binder_vbs",
+    "binning_levels",
+    "concatenate_chains",
+    "corr_length",
+    "cos4_from_histogram",
+    "data_collapse",
+    "derived_estimates",
+    "derived_observables",
+    "detect_coupling",
+    "error_estimate",
+    "extrapolate",
+    "find_crossing",
+    "find_crossings",
+    "format_result",
+    "group_replicas",
+    "halves_consistent",
+    "inverse_nu",
+    "jackknife",
+    "jackknife_pseudovalues",
+    "merge_bin_dicts",
+    "plot_vbs_histogram",
+    "rebin",
+    "scaling_variable",
+    "size_pairs",
+    "specific_heat",
+    "stiffness_L",
+    "summarize_task",
+    "vbs_anisotropy",
+    "weighted_mean",
+    "xi_over_L",
+]

@@ -1,0 +1,290 @@
+"""End-to-end analysis of a run: tables, ground-state check, crossings, extrapolation, collapse, plots.
+
+``analyze_run(tasks, out_dir, quantity, plot, coupling)`` takes TaskData-like objects (see
+:mod:`qmc.analysis.tasks`) and writes into ``out_dir``:
+
+    observables.csv / observables.json   every stored and derived observable per scan point
+    analysis.json                        the returned result dict
+    plots/obs_<name>.{png,pdf}           observable versus coupling, one curve per L  (plot=True)
+    plots/crossings_<quantity>.{png,pdf} crossing drift with its extrapolation, 1/nu(L)
+    plots/collapse_<quantity>.{png,pdf}  data collapse
+    plots/vbs_L<L>.{png,pdf}             VBS histograms (largest beta per coupling)
+
+Steps: replicas are merged (:func:`qmc.analysis.summary.group_replicas`), every point is
+summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
+(:mod:`qmc.analysis.groundstate`), and for the chosen dimensionless ``quantity`` the crossings of
+size pairs are located (:mod:`qmc.analysis.crossings`), extrapolated as
+``g*(L) = g_c + a L^(-omega)`` and ``1/nu(L) = 1/nu + b L^(-omega')``
+(:mod:`qmc.analysis.extrapolate`) and a data collapse is fitted (:mod:`qmc.analysis.collapse`)
+using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max`` at the starting values
+(the crossing and 1/nu of the largest size pair).
+Here ``L`` is the smaller size of each pair, and both fits share ``omega_fixed`` when too few
+pairs exist to fit the exponent.  The crossing analysis and the plots versus the coupling use the
+largest beta available at each (L, g).
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable
+from dataclasses import asdict
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .collapse import data_collapse
+from .crossings import find_crossings
+from .errors import AnalysisError
+from .extrapolate import Extrapolation, extrapolate
+from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
+from .scan import curves_for, detect_coupling, other_varying, scan_points
+from .summary import group_replicas, summarize_task
+from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
+
+__all__ = ["CROSSING_QUANTITIES", "analyze_run", "format_result"]
+
+CROSSING_QUANTITIES = ("binder_stag", "stiffness_L", "xi_over_L", "binder_vbs")
+"""Dimensionless quantities meant for crossing analyses (any stored or derived name is accepted)."""
+
+
+def _safe(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", name)
+
+
+def _extrap_dict(ex: Extrapolation) -> dict[str, Any]:
+    return asdict(ex)
+
+
+def _crossing_analysis(
+    points: list[dict], quantity: str, coupling: str | None, extra: list[str], opts: dict, warnings: list[str]
+) -> tuple[dict | None, dict]:
+    """Crossing results (or None) and the objects needed for plotting."""
+    if coupling is None:
+        warnings.append("no coupling varies between tasks: crossing analysis skipped")
+        return None, {}
+    curves = curves_for(points, quantity, extra)
+    degree = opts["degree"]
+    curves = {L: c for L, c in curves.items() if np.isfinite(c[1]).sum() >= degree + 1}
+    if len(curves) < 2:
+        warnings.append(f"{quantity}: fewer than two sizes with >= {degree + 1} couplings: no crossings")
+        return None, {"curves": curves}
+    rng = np.random.default_rng(opts["seed"])
+    crossings = find_crossings(curves, rng=rng, degree=degree, n_boot=opts["n_boot"])
+    good = [c for c in crossings if c.ok]
+    for c in crossings:
+        if not c.ok:
+            warnings.append(f"{quantity}: crossing of L={c.L1:g} and L={c.L2:g} unstable under resampling")
+        if c.fit_chi2_dof > 3.0:
+            warnings.append(
+                f"{quantity}: local polynomial fits near the crossing of L={c.L1:g} and L={c.L2:g} are poor "
+                f"(chi2/dof = {c.fit_chi2_dof:.3g}); slopes and 1/nu may be biased: a finer grid of "
+                "couplings near the crossing is needed"
+            )
+    if not good:
+        warnings.append(f"{quantity}: no crossing found between the size pairs")
+    L1 = [c.L1 for c in good]
+    ext = extrapolate(L1, [c.g for c in good], [c.g_err for c in good], omega_fixed=opts["omega_fixed"])
+    inv = extrapolate(
+        L1, [c.inv_nu for c in good], [c.inv_nu_err for c in good], omega_fixed=opts["omega_fixed"]
+    )
+    result: dict[str, Any] = {
+        "quantity": quantity,
+        "pairs": [dict(asdict(c), ok=c.ok) for c in crossings],
+        "g_c": _extrap_dict(ext),
+        "inv_nu": _extrap_dict(inv),
+    }
+    if np.isfinite(inv.limit) and inv.limit > 0:
+        result["nu"] = {"value": 1.0 / inv.limit, "error": inv.limit_err / inv.limit**2}
+    plot_data: dict[str, Any] = {"curves": curves, "crossings": good, "ext": ext, "inv": inv}
+    if opts["collapse"] and good:
+        last = max(good, key=lambda c: c.L1)  # the pair closest to the thermodynamic limit
+        g0 = last.g
+        inv0 = last.inv_nu if np.isfinite(last.inv_nu) and last.inv_nu > 0 else inv.limit
+        nu0 = float(np.clip(1.0 / inv0, 0.2, 5.0)) if np.isfinite(inv0) and inv0 > 0 else 1.0
+        try:
+            col = data_collapse(curves, g0, nu0, degree=opts["collapse_degree"], x_max=opts["collapse_x_max"])
+        except ValueError as exc:
+            try:
+                col = data_collapse(curves, g0, nu0, degree=opts["collapse_degree"])
+            except ValueError:
+                col = None
+                warnings.append(f"{quantity}: data collapse not possible ({exc})")
+        if col is not None and not col.success:
+            warnings.append(f"{quantity}: the data-collapse fit did not converge")
+        if col is not None:
+            result["collapse"] = {k: v for k, v in asdict(col).items()}
+            plot_data["collapse"] = col
+    return result, plot_data
+
+
+def _make_plots(
+    points: list[dict],
+    names: list[str],
+    coupling: str | None,
+    quantity: str,
+    plot_data: dict,
+    out: Path,
+    extra: list[str],
+    hist_of: dict[str, tuple],
+) -> list[Path]:
+    from .plots import plot_collapse, plot_crossing_drift, plot_vbs_histograms, plot_vs_coupling
+
+    pdir = out / "plots"
+    files: list[Path] = []
+    if coupling is not None:
+        for name in names:
+            curves = curves_for(points, name, extra)
+            if curves:
+                files += plot_vs_coupling(curves, name, coupling, pdir / f"obs_{_safe(name)}")
+    if plot_data.get("crossings"):
+        files += plot_crossing_drift(
+            plot_data["crossings"],
+            plot_data["ext"],
+            plot_data["inv"],
+            quantity,
+            pdir / f"crossings_{_safe(quantity)}",
+        )
+    if plot_data.get("collapse") is not None:
+        files += plot_collapse(
+            plot_data["curves"], plot_data["collapse"], quantity, pdir / f"collapse_{_safe(quantity)}"
+        )
+    best: dict[tuple, dict] = {}
+    for p in points:
+        key = (p["L"], p["g"])
+        if p.get("vbs") and p["vbs"].get("counts") and (key not in best or p["beta"] > best[key]["beta"]):
+            best[key] = p
+    by_size: dict[float, list] = {}
+    for (L, g), p in sorted(best.items(), key=lambda kv: (kv[0][0], kv[0][1] if kv[0][1] is not None else 0)):
+        hist, r = hist_of[p["task"]]
+        title = f"L={L:g}" + (f", {coupling}={g:g}" if coupling else "") + f", beta={p['beta']:g}"
+        by_size.setdefault(L, []).append((title, hist, r))
+    for L, items in by_size.items():
+        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}")
+    return files
+
+
+def analyze_run(
+    tasks: Iterable[Any],
+    out_dir: str | Path,
+    quantity: str = "binder_stag",
+    plot: bool = False,
+    coupling: str | None = None,
+    *,
+    seed: int = 12345,
+    n_boot: int = 200,
+    degree: int = 3,
+    omega_fixed: float = 1.0,
+    collapse: bool = True,
+    collapse_degree: int = 3,
+    collapse_x_max: float = 2.0,
+) -> dict[str, Any]:
+    """Analyse all tasks of a run and write tables (and plots); returns a JSON-ready result dict.
+
+    Result keys: ``out_dir, n_tasks, n_points, coupling, sizes, betas, observables, quantity,
+    crossings`` (None when not possible; else ``pairs``, ``g_c``, ``inv_nu``, ``nu``, ``collapse``),
+    ``ground_state`` (``pairs_checked``, ``flags``), ``warnings``, ``files``.  NaN values appear as
+    None.  Raises :class:`~qmc.analysis.errors.AnalysisError` for unusable input.
+    """
+    task_list = list(tasks)
+    if not task_list:
+        raise AnalysisError("the run holds no tasks", "analysis")
+    out = Path(out_dir)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise AnalysisError(f"cannot create the output directory ({exc.strerror})", str(out)) from None
+    merged = group_replicas(task_list)
+    summaries = [summarize_task(m) for m in merged]
+    coupling = detect_coupling(summaries, coupling)
+    extra = other_varying(summaries, coupling)
+    points = scan_points(summaries, coupling)
+    hist_of = {m.task_id: (m.vbs_histogram, m.vbs_hist_range) for m in merged}
+    names = observable_names(points)
+    if quantity not in names and quantity not in CROSSING_QUANTITIES:
+        raise AnalysisError(f"unknown quantity {quantity!r}; available: {', '.join(names)}", "quantity")
+    warnings = [w for s in summaries for w in s["warnings"]]
+
+    cols, rows = table_rows(points, coupling, extra)
+    files = [write_csv(out / "observables.csv", cols, rows)]
+    files.append(
+        write_json(out / "observables.json", {"coupling": coupling, "varying": extra, "points": points})
+    )
+
+    gs_obs = tuple(GROUND_STATE_OBSERVABLES) + (() if quantity in GROUND_STATE_OBSERVABLES else (quantity,))
+    ground = beta_doubling_check(points, gs_obs, extra=extra)
+    if ground["flags"]:
+        warnings.append(
+            f"ground-state check: {len(ground['flags'])} observable(s) differ between beta and 2 beta"
+        )
+
+    opts = dict(
+        seed=seed,
+        n_boot=n_boot,
+        degree=degree,
+        omega_fixed=omega_fixed,
+        collapse=collapse,
+        collapse_degree=collapse_degree,
+        collapse_x_max=collapse_x_max,
+    )
+    if quantity in names:
+        crossings, plot_data = _crossing_analysis(points, quantity, coupling, extra, opts, warnings)
+    else:
+        crossings, plot_data = None, {}
+        warnings.append(f"{quantity}: not available in these tasks: crossing analysis skipped")
+
+    if plot:
+        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of)
+
+    result = {
+        "out_dir": str(out),
+        "n_tasks": len(task_list),
+        "n_points": len(points),
+        "coupling": coupling,
+        "varying": extra,
+        "sizes": sorted({p["L"] for p in points}),
+        "betas": sorted({p["beta"] for p in points}),
+        "observables": names,
+        "quantity": quantity,
+        "crossings": crossings,
+        "ground_state": ground,
+        "warnings": warnings,
+        "files": [str(f) for f in files] + [str(out / "analysis.json")],
+    }
+    result = to_jsonable(result)
+    write_json(out / "analysis.json", result)
+    return result
+
+
+def _pm(d: dict | None, key: str = "limit", err: str = "limit_err") -> str:
+    if not d or d.get(key) is None:
+        return "n/a"
+    e = d.get(err)
+    return f"{d[key]:.6g} +- {e:.2g}" if e is not None else f"{d[key]:.6g}"
+
+
+def format_result(result: dict[str, Any]) -> str:
+    """Short human-readable text of an :func:`analyze_run` result."""
+    lines = [
+        f"tasks: {result['n_tasks']}  points: {result['n_points']}  coupling: {result['coupling']}",
+        f"sizes: {', '.join(f'{L:g}' for L in result['sizes'])}",
+    ]
+    cr = result.get("crossings")
+    if cr and not cr["pairs"]:
+        lines.append(f"crossings of {cr['quantity']}: none found")
+    elif cr:
+        lines.append(f"crossings of {cr['quantity']}:")
+        for p in cr["pairs"]:
+            lines.append(
+                f"  L={p['L1']:g},{p['L2']:g}: g*={_pm(p, 'g', 'g_err')}"
+                f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
+            )
+        lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
+        if cr.get("collapse"):
+            c = cr["collapse"]
+            lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
+    gs = result["ground_state"]
+    lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")
+    lines += [f"warning: {w}" for w in result["warnings"]]
+    lines.append(f"written: {result['out_dir']}")
+    return "\n".join(lines)

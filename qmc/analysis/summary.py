@@ -1,0 +1,169 @@
+"""Per-task summary: every stored bin observable (binning analysis) plus derived quantities (jackknife).
+
+``summarize_task`` returns
+
+    {"task": task_id, "params": {...}, "info": {...},
+     "observables": {name: {"mean", "error", "tau_int"}},       # derived ones add "bias_corrected"
+     "vbs": {"cos4_hist", "counts", ...},                        # when a VBS histogram is stored
+     "warnings": [text, ...]}
+
+``tau_int`` is in units of bins (1/2 for uncorrelated bins), see :mod:`qmc.analysis.binning`.
+
+Replicas: tasks that differ only in ``params["replica"]`` are independent Markov chains of the same
+parameters.  :func:`group_replicas` merges them into one :class:`~qmc.analysis.tasks.AnalysisTask`
+per parameter set by concatenating their bins (equal bin lengths; see :mod:`qmc.analysis.chains`)
+and adding their VBS histograms.  When the bin lengths are incompatible the record keeps the
+replicas in ``parts`` and :func:`summarize_task` combines per-replica estimates by inverse-variance
+weighting.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from typing import Any
+
+import numpy as np
+
+from .binning import error_estimate
+from .chains import bins_compatible, merge_bin_dicts, weighted_mean
+from .derived import derived_estimates
+from .tasks import AnalysisTask, as_record, canonical_params, params_key
+from .vbs import vbs_anisotropy
+
+__all__ = ["group_replicas", "summarize_task"]
+
+
+def _sum_histograms(records: list[AnalysisTask]) -> tuple[np.ndarray | None, float | None]:
+    hists = [
+        (np.asarray(r.vbs_histogram), r.vbs_hist_range)
+        for r in records
+        if r.vbs_histogram is not None and r.vbs_hist_range is not None and np.asarray(r.vbs_histogram).size
+    ]
+    if not hists:
+        return None, None
+    shape, rng = hists[0][0].shape, hists[0][1]
+    if any(h.shape != shape or not np.isclose(float(q), float(rng)) for h, q in hists):
+        return hists[0][0], rng
+    return np.sum([h for h, _ in hists], axis=0), rng
+
+
+def group_replicas(tasks: Iterable[Any]) -> list[AnalysisTask]:
+    """Merge tasks whose parameters agree except ``replica`` into one record each (input order kept).
+
+    Merged record: ``task_id`` joins the replica ids with ``+``; ``params`` lose the ``replica`` key;
+    ``replicas`` lists the ids; bins are concatenated (rebinned to the largest bin length when the
+    lengths divide it), or kept apart in ``parts`` when incompatible; VBS histograms are summed.
+    """
+    groups: dict[tuple, list[AnalysisTask]] = {}
+    for t in tasks:
+        rec = as_record(t)
+        groups.setdefault(params_key(rec.params), []).append(rec)
+    out = []
+    for members in groups.values():
+        first = members[0]
+        params = {k: v for k, v in first.params.items() if k != "replica"}
+        ids = tuple(m.task_id for m in members)
+        hist, hrange = _sum_histograms(members)
+        lengths = [m.steps_per_bin for m in members]
+        common = dict(
+            task_id="+".join(ids),
+            params=params,
+            n_sites=first.n_sites,
+            linear_size=first.linear_size,
+            beta=first.beta,
+            vbs_histogram=hist,
+            vbs_hist_range=hrange,
+            status=",".join(sorted({m.status for m in members})),
+            exchange=first.exchange,
+            replicas=ids,
+        )
+        if len(members) == 1 or bins_compatible(lengths):
+            bins, spb = merge_bin_dicts([m.bins for m in members], lengths)
+            out.append(AnalysisTask(bins=bins, steps_per_bin=spb, **common))
+        else:
+            out.append(AnalysisTask(bins={}, steps_per_bin=0, parts=tuple(members), **common))
+    return out
+
+
+def _stored(rec: AnalysisTask, warn: dict[str, list[str]]) -> dict[str, dict[str, float]]:
+    obs = {}
+    for name in sorted(rec.bins):
+        est = error_estimate(rec.bins[name])
+        obs[name] = {"mean": est.mean, "error": est.error, "tau_int": est.tau_int}
+        if not est.plateau_ok:
+            warn["plateau"].append(name)
+        if not est.halves_ok:
+            warn["halves"].append(name)
+    for name, d in derived_estimates(rec.bins, rec.n_sites, rec.linear_size).items():
+        obs[name] = {
+            "mean": d.value,
+            "error": d.error,
+            "tau_int": d.tau_int,
+            "bias_corrected": d.bias_corrected,
+        }
+        if not np.isfinite(d.value):
+            warn["undefined"].append(name)
+        elif not d.plateau_ok:
+            warn["plateau"].append(name)
+    return obs
+
+
+def _weighted(parts: list[dict[str, dict[str, float]]]) -> dict[str, dict[str, float]]:
+    names = set(parts[0])
+    for p in parts[1:]:
+        names &= set(p)
+    obs = {}
+    for name in sorted(names):
+        mean, err = weighted_mean([p[name]["mean"] for p in parts], [p[name]["error"] for p in parts])
+        tau = float(np.nanmean([p[name]["tau_int"] for p in parts]))
+        obs[name] = {"mean": mean, "error": err, "tau_int": tau}
+    return obs
+
+
+def summarize_task(task_data: Any) -> dict[str, Any]:
+    """Summary dict of one task or merged replica record (see module docstring)."""
+    rec = as_record(task_data)
+    warn: dict[str, list[str]] = {"plateau": [], "halves": [], "undefined": []}
+    if rec.parts:
+        obs = _weighted([_stored(p, warn) for p in rec.parts])
+        n_bins = sum(min((len(b) for b in p.bins.values()), default=0) for p in rec.parts)
+    else:
+        obs = _stored(rec, warn)
+        n_bins = min((len(b) for b in rec.bins.values()), default=0)
+    warnings = []
+    tid = rec.task_id
+    if n_bins == 0:
+        warnings.append(f"{tid}: no bins stored yet")
+        warn = {k: [] for k in warn}
+    if warn["plateau"]:
+        names = ", ".join(sorted(set(warn["plateau"])))
+        warnings.append(
+            f"{tid}: error not converged in the binning analysis (too few independent bins): {names}"
+        )
+    if warn["halves"]:
+        names = ", ".join(sorted(set(warn["halves"])))
+        warnings.append(
+            f"{tid}: first and second half of the bins disagree (drift; warm-up too short?): {names}"
+        )
+    if warn["undefined"]:
+        names = ", ".join(sorted(set(warn["undefined"])))
+        warnings.append(f"{tid}: derived quantity undefined for these means: {names}")
+    summary: dict[str, Any] = {
+        "task": tid,
+        "params": canonical_params(rec.params),
+        "info": {
+            "n_sites": rec.n_sites,
+            "linear_size": rec.linear_size,
+            "beta": rec.beta,
+            "steps_per_bin": rec.steps_per_bin,
+            "n_bins": n_bins,
+            "status": rec.status,
+            "replicas": list(rec.replicas) or [tid],
+        },
+        "observables": obs,
+        "warnings": warnings,
+    }
+    if rec.vbs_histogram is not None and rec.vbs_hist_range is not None:
+        cos4 = rec.bins.get("vbs_cos4")
+        summary["vbs"] = vbs_anisotropy(rec.vbs_histogram, rec.vbs_hist_range, cos4)
+    return summary

@@ -1,0 +1,243 @@
+"""Task summaries, replica merging, coupling detection, ground-state check and analyze_run end to end.
+
+The tasks are synthetic TaskData-like objects (invented data for the test): a Binder ratio
+R_L(g) = 1.5 - 0.4 tanh(0.4 (g - 1) L) (g_c = 1, nu = 1) built from per-bin m_stag2, m_stag4 series.
+"""
+
+import csv
+import json
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from qmc.analysis import AnalysisError, analyze_run, format_result, group_replicas, summarize_task
+from qmc.analysis.groundstate import beta_doubling_check
+from qmc.analysis.scan import detect_coupling, scan_points
+from qmc.errors import UserError
+
+GS = np.linspace(0.9, 1.1, 9)
+
+
+def binder(g, L):
+    return 1.5 - 0.4 * np.tanh(0.4 * (g - 1.0) * L)
+
+
+def make_task(L, g, beta, replica=0, seed=0, full=True, energy_shift=0.0, nbins=200, vbs=None):
+    rng = np.random.default_rng(seed)
+    N = L * L
+    mu2 = 0.3 / np.sqrt(L)
+    m2 = mu2 * (1 + 0.01 * rng.standard_normal(nbins))
+    m4 = binder(g, L) * mu2**2 * (1 + 0.01 * rng.standard_normal(nbins))
+    bins = {
+        "energy": -0.6 - 0.1 * g + energy_shift + 0.01 * rng.standard_normal(nbins),
+        "m_stag2": m2,
+        "m_stag4": m4,
+    }
+    hist = None
+    if vbs if vbs is not None else full:
+        th = rng.choice([0.0, 0.5 * np.pi, np.pi, 1.5 * np.pi], 2000)
+        x = 0.2 * np.cos(th) + 0.05 * rng.standard_normal(2000)
+        y = 0.2 * np.sin(th) + 0.05 * rng.standard_normal(2000)
+        edges = np.linspace(-0.5, 0.5, 22)
+        hist = np.histogram2d(x, y, bins=[edges, edges])[0].astype(np.int64)
+    if full:
+        n = 0.6 * beta * N + rng.standard_normal(nbins)
+        bins.update(
+            {
+                "n_ops": n,
+                "n_ops_sq": n**2 + 0.6 * beta * N + 20.0 * rng.standard_normal(nbins),
+                "s_q": N * m2,
+                "s_q_next": N * m2 / 5.0 * (1 + 0.02 * rng.standard_normal(nbins)),
+                "stiffness": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
+                "stiffness/x": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
+                "vbs_x2": 0.01 + 0.001 * rng.standard_normal(nbins),
+                "vbs_y2": 0.01 + 0.001 * rng.standard_normal(nbins),
+                "vbs4": 0.0005 + 0.00005 * rng.standard_normal(nbins),
+                "vbs_cos4": 0.3 + 0.1 * rng.standard_normal(nbins),
+            }
+        )
+    return SimpleNamespace(
+        task_id=f"L{L}_g{g:.4f}_b{beta:g}_r{replica}",
+        params={
+            "L": np.int64(L),
+            "g": float(g),
+            "beta": float(beta),
+            "replica": replica,
+            "lattice": "square",
+            "size": np.array([L, L]),
+            "boundary": "periodic",
+        },
+        bins=bins,
+        steps_per_bin=100,
+        n_sites=N,
+        linear_size=L,
+        beta=float(beta),
+        vbs_histogram=hist,
+        vbs_hist_range=0.5 if hist is not None else None,
+        status="done",
+        exchange=None,
+    )
+
+
+def run_tasks(full=True):
+    tasks = []
+    for L in (8, 16, 32):
+        for k, g in enumerate(GS):
+            seed = 1000 * L + k
+            tasks.append(make_task(L, g, L, seed=seed, full=full))
+            if L == 16:  # second replica
+                tasks.append(make_task(L, g, L, replica=1, seed=seed + 500, full=full))
+            if L == 8:  # beta doubling with identical data, except an energy shift at one point
+                tasks.append(
+                    make_task(L, g, 2 * L, seed=seed, full=full, energy_shift=0.05 if k == 4 else 0.0)
+                )
+    return tasks
+
+
+def test_summary_structure():
+    s = summarize_task(make_task(8, 1.0, 8, seed=1))
+    assert s["task"] == "L8_g1.0000_b8_r0"
+    assert s["params"]["size"] == (8, 8) and s["params"]["L"] == 8
+    for name in (
+        "energy",
+        "m_stag2",
+        "stiffness/x",
+        "binder_stag",
+        "specific_heat",
+        "corr_length",
+        "xi_over_L",
+        "binder_vbs",
+        "stiffness_L",
+    ):
+        o = s["observables"][name]
+        assert set(o) >= {"mean", "error", "tau_int"} and o["error"] > 0
+    assert s["observables"]["binder_stag"]["mean"] == pytest.approx(1.5, abs=0.02)
+    assert s["observables"]["xi_over_L"]["mean"] == pytest.approx(1 / np.pi, rel=0.01)  # sqrt(5 - 1) / 2 pi
+    assert s["vbs"]["cos4_hist"] > 0.5
+    assert isinstance(s["warnings"], list)
+
+
+def test_group_replicas_concatenates():
+    a, b = make_task(16, 1.0, 16, 0, seed=1), make_task(16, 1.0, 16, 1, seed=2)
+    c = make_task(16, 1.05, 16, 0, seed=3)
+    merged = group_replicas([a, b, c])
+    assert len(merged) == 2
+    m = merged[0]
+    assert m.replicas == (a.task_id, b.task_id) and "replica" not in m.params
+    np.testing.assert_array_equal(m.bins["energy"], np.r_[a.bins["energy"], b.bins["energy"]])
+    assert m.vbs_histogram.sum() == a.vbs_histogram.sum() + b.vbs_histogram.sum()
+    s = summarize_task(m)
+    assert s["info"]["n_bins"] == 400 and s["info"]["replicas"] == [a.task_id, b.task_id]
+
+
+def test_group_replicas_incompatible_bins_weighted():
+    a, b = make_task(8, 1.0, 8, 0, seed=1), make_task(8, 1.0, 8, 1, seed=2)
+    b.steps_per_bin = 150
+    (m,) = group_replicas([a, b])
+    assert len(m.parts) == 2
+    s = summarize_task(m)
+    e1 = summarize_task(a)["observables"]["energy"]
+    e2 = summarize_task(b)["observables"]["energy"]
+    w1, w2 = e1["error"] ** -2, e2["error"] ** -2
+    assert s["observables"]["energy"]["mean"] == pytest.approx(
+        (w1 * e1["mean"] + w2 * e2["mean"]) / (w1 + w2)
+    )
+
+
+def test_detect_coupling():
+    tasks = [make_task(L, g, L, full=False) for L in (8, 16) for g in (0.9, 1.0) for _ in range(2)]
+    sums = [summarize_task(t) for t in tasks]
+    assert detect_coupling(sums) == "g"  # L, beta (= L), replica, size, lattice are never the coupling
+    for s in sums:  # a second parameter that is a one-to-one function of g is fine
+        s["params"]["J"] = 1.0 - s["params"]["g"]
+    assert detect_coupling(sums) == "J"
+    for s in sums:  # a parameter that only follows L is not a coupling
+        s["params"]["N"] = s["params"]["L"] ** 2
+    assert detect_coupling(sums) == "J"
+    for i, s in enumerate(sums):  # an independent second parameter is ambiguous
+        s["params"]["h"] = float(i % 2)
+    with pytest.raises(AnalysisError, match="several parameters vary"):
+        detect_coupling(sums)
+    assert detect_coupling(sums, "g") == "g"
+    with pytest.raises(AnalysisError, match="not set in every task"):
+        detect_coupling(sums, "Q")
+
+
+def test_beta_doubling_flags_the_shifted_point():
+    tasks = [make_task(8, g, 8, seed=k) for k, g in enumerate(GS[:3])]
+    tasks += [make_task(8, g, 16, seed=k, energy_shift=0.05 if k == 1 else 0.0) for k, g in enumerate(GS[:3])]
+    pts = scan_points([summarize_task(t) for t in tasks], "g")
+    out = beta_doubling_check(pts)
+    assert out["pairs_checked"] == 3
+    assert [(f["g"], f["observable"]) for f in out["flags"]] == [(GS[1], "energy")]
+    assert out["flags"][0]["beta"] == 8 and out["flags"][0]["beta2"] == 16
+
+
+def test_analyze_run_results(tmp_path):
+    res = analyze_run(run_tasks(full=True), tmp_path / "out")
+    assert res["coupling"] == "g" and res["sizes"] == [8, 16, 32] and res["n_points"] == 36
+    assert res["n_tasks"] == 45
+    cr = res["crossings"]
+    assert [(p["L1"], p["L2"]) for p in cr["pairs"]] == [(8, 16), (16, 32)]
+    for p in cr["pairs"]:
+        assert abs(p["g"] - 1.0) < 3 * p["g_err"]
+        assert abs(p["inv_nu"] - 1.0) < 3 * p["inv_nu_err"]
+    assert abs(cr["collapse"]["g_c"] - 1.0) < 3 * cr["collapse"]["g_c_err"]
+    assert abs(cr["collapse"]["nu"] - 1.0) < 3 * cr["collapse"]["nu_err"]
+    flags = res["ground_state"]["flags"]
+    assert res["ground_state"]["pairs_checked"] == 9
+    assert [(f["L"], f["g"], f["observable"]) for f in flags] == [(8, GS[4], "energy")]
+    with open(tmp_path / "out" / "observables.csv") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == 36
+    for col in (
+        "L",
+        "beta",
+        "g",
+        "binder_stag",
+        "binder_stag_err",
+        "binder_stag_tau",
+        "xi_over_L",
+        "stiffness_L",
+        "specific_heat",
+        "binder_vbs",
+        "stiffness/x",
+        "cos4_hist",
+    ):
+        assert col in rows[0]
+    assert {r["replicas"] for r in rows if r["L"] == "16"} == {"2"}
+    saved = json.loads((tmp_path / "out" / "analysis.json").read_text())
+    assert saved == res
+    table = json.loads((tmp_path / "out" / "observables.json").read_text())
+    assert table["coupling"] == "g" and len(table["points"]) == 36
+    assert "g_c" in format_result(res)
+
+
+def test_analyze_run_plots(tmp_path):
+    tasks = [
+        make_task(L, g, L, seed=k, full=False, vbs=(k % 4 == 0)) for L in (8, 16) for k, g in enumerate(GS)
+    ]
+    res = analyze_run(tasks, tmp_path, plot=True, n_boot=50)
+    names = {p.split("/")[-1] for p in res["files"]}
+    for base in (
+        "obs_binder_stag",
+        "obs_energy",
+        "crossings_binder_stag",
+        "collapse_binder_stag",
+        "vbs_L8",
+        "vbs_L16",
+    ):
+        assert f"{base}.png" in names and f"{base}.pdf" in names
+        assert (tmp_path / "plots" / f"{base}.png").stat().st_size > 1000
+    for f in ("observables.csv", "observables.json", "analysis.json"):
+        assert (tmp_path / f).is_file()
+
+
+def test_analyze_run_bad_input(tmp_path):
+    with pytest.raises(AnalysisError, match="no tasks"):
+        analyze_run([], tmp_path)
+    with pytest.raises(UserError, match="unknown quantity"):
+        analyze_run([make_task(8, 1.0, 8, full=False)], tmp_path, quantity="nonsense")
+    res = analyze_run([make_task(8, 1.0, 8, full=False)], tmp_path)
+    assert res["coupling"] is None and res["crossings"] is None and res["warnings"]
