@@ -16,7 +16,7 @@ import numpy as np
 from models.compiled import CompiledModel
 from qmc.alias import alias_table
 from qmc.engine.steps import acc_size, run_steps
-from qmc.engine.vertices import apply_pending_flips
+from qmc.engine.vertices import apply_pending_flips, count_ops
 from qmc.estimators import bin_names, bin_row
 from qmc.rng import draw_doubles
 
@@ -206,6 +206,31 @@ class Simulation:
                     rows.append(bin_row(self.model, self.beta, self.acc, self.steps_per_bin))
                     self.acc[:] = 0.0
         return np.array(rows, dtype=np.float64).reshape(len(rows), len(self.bin_names))
+
+    # ------------------------------------------------------------------ replica exchange support
+    def group_op_counts(self) -> np.ndarray:
+        """n_g: operators of each term group in the current configuration (int64[G])."""
+        return count_ops(self.ops, self.term_group, len(self.model.group_names))
+
+    def configuration(self) -> dict[str, np.ndarray]:
+        """The configuration alone (spins, operator string, operator count): what replica exchange swaps.
+
+        The RNG, step counters, accumulators and histogram stay with the chain.  The cutoff travels with the
+        configuration: the SSE weight summed over placements does not depend on it, so the swap acceptance
+        involves only the couplings (see :func:`qmc.exchange_rule.swap_log_ratio`)."""
+        apply_pending_flips(self.ops, self.vflip, self.term_start)
+        return {"spins": self.spins.copy(), "ops": self.ops.copy(), "counters": self.counters.copy()}
+
+    def set_configuration(self, conf: dict[str, np.ndarray]) -> None:
+        """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice."""
+        spins = np.array(conf["spins"], dtype=np.int8)
+        ops = np.array(conf["ops"], dtype=np.int32)
+        if spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << 3)):
+            raise ValueError("configuration does not fit this model")
+        self.spins = spins
+        self.ops = ops
+        self.counters = np.array(conf["counters"], dtype=np.int64)
+        self._allocate_work()
 
     def state(self) -> dict[str, np.ndarray]:
         """Exact snapshot of the chain (copies).  Pending loop flips are folded into the operator string."""
