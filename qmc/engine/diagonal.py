@@ -30,6 +30,8 @@ from qmc.rng import next_double
 
 __all__ = ["diagonal_sweep", "SWEEP_OUT_SIZE"]
 
+U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
+
 # layout of ``out`` filled by diagonal_sweep
 SWEEP_OUT_SIZE = 8  # n_old, sum_ms, sum_ms2, sum_ms4, ms_end, w_0, w_1, w_2
 
@@ -52,10 +54,12 @@ def diagonal_sweep(
     for i in range(n_sites):
         first[i] = -1
         last[i] = -1
-        ms += phase[i] * spins[i]
+        ms += phase[U(i)] * spins[i]
     for g in range(group_counts.shape[0]):
         group_counts[g] = 0
-    w = np.zeros(3, dtype=np.float64)
+    w0 = 0.0
+    w1 = 0.0
+    w2 = 0.0
 
     n = n_ops
     n_old = 0
@@ -69,28 +73,32 @@ def diagonal_sweep(
         t = 0
         if op >= 0:
             t = op >> 3
-            b0 = term_start[t]
-            k = term_start[t + 1] - b0
+            b0 = term_start[U(t)]
+            k = term_start[U(t + 1)] - b0
             for a in range(k):
-                if vflip[v_old + a] != 0:
+                if vflip[U(v_old + a)] != 0:
                     op ^= 1 << a
-                    vflip[v_old + a] = 0
+                    vflip[U(v_old + a)] = 0
             v_old += k
             n_old += 1
-            group_counts[term_group[t]] += 1
+            group_counts[U(term_group[U(t)])] += 1
             if (op & 7) != 0:
                 ops[p] = op
                 for a in range(k):
                     if (op >> a) & 1:
-                        b = term_bonds[b0 + a]
-                        i = bond_sites[b, 0]
-                        j = bond_sites[b, 1]
-                        si = spins[i]
-                        for d in range(n_dirs):
-                            w[d] += si * bond_disp[b, d]
-                        ms -= 2 * phase[i] * si + 2 * phase[j] * spins[j]
-                        spins[i] = -si
-                        spins[j] = -spins[j]
+                        b = term_bonds[U(b0 + a)]
+                        i = bond_sites[U(b), 0]
+                        j = bond_sites[U(b), 1]
+                        si = spins[U(i)]
+                        if n_dirs > 0:
+                            w0 += si * bond_disp[U(b), 0]
+                            if n_dirs > 1:
+                                w1 += si * bond_disp[U(b), 1]
+                                if n_dirs > 2:
+                                    w2 += si * bond_disp[U(b), 2]
+                        ms -= 2 * phase[U(i)] * si + 2 * phase[U(j)] * spins[U(j)]
+                        spins[U(i)] = -si
+                        spins[U(j)] = -spins[U(j)]
                 fm = float(ms)
                 sum_ms += fm
                 sum_ms2 += fm * fm
@@ -113,14 +121,14 @@ def diagonal_sweep(
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             r = u * n_terms
             t = int(r)
-            if r - t >= alias_prob[t]:
-                t = alias_idx[t]
-            b0 = term_start[t]
-            k = term_start[t + 1] - b0
+            if r - t >= alias_prob[U(t)]:
+                t = alias_idx[U(t)]
+            b0 = term_start[U(t)]
+            k = term_start[U(t + 1)] - b0
             allowed = True
             for a in range(k):
-                b = term_bonds[b0 + a]
-                if spins[bond_sites[b, 0]] == spins[bond_sites[b, 1]]:
+                b = term_bonds[U(b0 + a)]
+                if spins[U(bond_sites[U(b), 0])] == spins[U(bond_sites[U(b), 1])]:
                     allowed = False
                     break
             if not allowed:
@@ -128,35 +136,35 @@ def diagonal_sweep(
             ops[p] = t << 3
             n += 1
         # append the bond vertices of the operator now at slot p (term t)
-        b0 = term_start[t]
-        k = term_start[t + 1] - b0
+        b0 = term_start[U(t)]
+        k = term_start[U(t + 1)] - b0
         for a in range(k):
-            b = term_bonds[b0 + a]
-            i = bond_sites[b, 0]
-            j = bond_sites[b, 1]
+            b = term_bonds[U(b0 + a)]
+            i = bond_sites[U(b), 0]
+            j = bond_sites[U(b), 1]
             leg = 4 * v
-            prev = last[i]
+            prev = last[U(i)]
             if prev >= 0:
-                links[prev] = leg
-                links[leg] = prev
+                links[U(prev)] = leg
+                links[U(leg)] = prev
             else:
-                first[i] = leg
-            last[i] = leg + 2
-            prev = last[j]
+                first[U(i)] = leg
+            last[U(i)] = leg + 2
+            prev = last[U(j)]
             if prev >= 0:
-                links[prev] = leg + 1
-                links[leg + 1] = prev
+                links[U(prev)] = leg + 1
+                links[U(leg + 1)] = prev
             else:
-                first[j] = leg + 1
-            last[j] = leg + 3
+                first[U(j)] = leg + 1
+            last[U(j)] = leg + 3
             v += 1
 
     for i in range(n_sites):
         f = first[i]
         if f >= 0:
             lst = last[i]
-            links[f] = lst
-            links[lst] = f
+            links[U(f)] = lst
+            links[U(lst)] = f
 
     rng[0] = s0
     rng[1] = s1
@@ -167,7 +175,7 @@ def diagonal_sweep(
     out[2] = sum_ms2
     out[3] = sum_ms4
     out[4] = ms
-    out[5] = w[0]
-    out[6] = w[1]
-    out[7] = w[2]
+    out[5] = w0
+    out[6] = w1
+    out[7] = w2
     return n, v

@@ -10,11 +10,14 @@ probability 1/2; the other sites follow the loop through their first leg.
 
 from __future__ import annotations
 
+import numpy as np
 from numba import njit
 
 from qmc.rng import next_double
 
 __all__ = ["loop_update"]
+
+U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 
 
 @njit(cache=True, boundscheck=False)
@@ -24,27 +27,27 @@ def loop_update(links, vflip, n_vertices, spins, first, rng):
     n_legs = 4 * n_vertices
     n_loops = 0
     for l0 in range(0, n_legs, 2):
-        if links[l0] < 0:
+        if links[U(l0)] < 0:
             continue
         n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
         leg = l0
         if u < 0.5:
             while True:
-                vflip[leg >> 2] ^= 1
+                vflip[U(leg >> 2)] ^= 1
                 partner = leg ^ 1
-                nxt = links[partner]
-                links[leg] = -2
-                links[partner] = -2
+                nxt = links[U(partner)]
+                links[U(leg)] = -2
+                links[U(partner)] = -2
                 leg = nxt
                 if leg == l0:
                     break
         else:
             while True:
                 partner = leg ^ 1
-                nxt = links[partner]
-                links[leg] = -1
-                links[partner] = -1
+                nxt = links[U(partner)]
+                links[U(leg)] = -1
+                links[U(partner)] = -1
                 leg = nxt
                 if leg == l0:
                     break
@@ -54,7 +57,7 @@ def loop_update(links, vflip, n_vertices, spins, first, rng):
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        elif links[f] == -2:
+        elif links[U(f)] == -2:
             spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1
