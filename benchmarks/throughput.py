@@ -2,18 +2,20 @@
 
 Usage:  python benchmarks/throughput.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
 
-Prints one JSON object per case.  Cold start-up is measured in a fresh subprocess after clearing nothing
-(the first call compiles unless numba's on-disk cache is warm); run with NUMBA_CACHE_DIR pointing to an
-empty directory to force a cold compile.  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32,
-and J-Q2 32x32 at beta = 32 with J/Q = 0.05.
+Prints one JSON object per case.  Start-up is measured in fresh subprocesses: once with an
+empty numba cache directory (cold: every kernel compiles) and once more with the same directory
+(cached).  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32, and J-Q2 32x32 at beta = 32
+with J/Q = 0.05.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import subprocess
 import sys
+import tempfile
 import time
 
 import numpy as np
@@ -60,8 +62,11 @@ def measure_case(case: str, L: int, beta: float, steps: int, warmup: int) -> dic
     }
 
 
-def startup_seconds() -> float:
-    """Wall time of a fresh interpreter that imports the engine and runs one tiny step."""
+def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
+    """(seconds inside, wall time) of a fresh interpreter that imports the engine and runs one tiny step.
+
+    With ``cache_dir`` numba's on-disk cache lives there: an empty directory gives the cold (compiling)
+    start-up, a second call with the same directory the cached one."""
     code = ("import time; t=time.perf_counter();"
             "from models import build_lattice, HeisenbergTerm, compile_model;"
             "from qmc.simulation import Simulation; from qmc.rng import stream_seed;"
@@ -69,7 +74,10 @@ def startup_seconds() -> float:
             "s=Simulation(m,1.0,warmup_steps=1,measure_steps=1,bins=1,seed_words=stream_seed(1,'s'));"
             "s.advance(2); print(time.perf_counter()-t)")
     t = time.perf_counter()
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    env = dict(os.environ)
+    if cache_dir is not None:
+        env["NUMBA_CACHE_DIR"] = cache_dir
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, env=env)
     total = time.perf_counter() - t
     return float(out.stdout.strip()), total
 
@@ -82,8 +90,11 @@ def main() -> None:
     p.add_argument("--steps", type=int, default=200)
     p.add_argument("--warmup", type=int, default=300)
     a = p.parse_args()
-    in_process, whole = startup_seconds()
-    print(json.dumps({"startup_cached_seconds": in_process, "startup_process_seconds": whole}))
+    with tempfile.TemporaryDirectory() as cache:
+        cold, cold_whole = startup_seconds(cache)
+        warm, warm_whole = startup_seconds(cache)
+    print(json.dumps({"startup_cold_seconds": cold, "startup_cold_process_seconds": cold_whole,
+                      "startup_cached_seconds": warm, "startup_cached_process_seconds": warm_whole}))
     for case in (["square", "jq2"] if a.case == "all" else [a.case]):
         print(json.dumps(measure_case(case, a.L, a.beta, a.steps, a.warmup)))
     np.seterr(all="ignore")
