@@ -1,0 +1,204 @@
+"""Progress display for ``qmc run``: one bar for the running task and one for the whole run, with ETAs.
+
+Estimates (wall-clock seconds):
+
+* task ETA = (steps left in the task) / (steps done in the task this session / seconds spent on it);
+* run ETA  = (work left) / (work done this session / seconds since the run started), where the work of a
+  step of a task is its ``weight`` (the caller passes an estimate of the cost per step, e.g. N * beta, since
+  an SSE step costs time proportional to the expansion order ~ N beta).
+
+On a terminal the line is redrawn in place at most every ``min_interval`` seconds; otherwise (a log file,
+a batch job) a plain line is printed when a task starts or ends and every ``plain_interval`` seconds.
+Everything goes to ``stream`` (standard error by default).  :class:`NullProgress` shows nothing.
+"""
+
+from __future__ import annotations
+
+import shutil
+import sys
+import time
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+from typing import Protocol, TextIO
+
+__all__ = ["ProgressSink", "NullProgress", "Progress", "format_duration"]
+
+
+class ProgressSink(Protocol):
+    """What :func:`qmc.runner.run_task` reports to."""
+
+    def task_started(self, task_id: str, steps_done: int, steps_total: int, bins_total: int) -> None: ...
+
+    def task_advanced(self, steps_done: int, bins_done: int) -> None: ...
+
+    def task_finished(self, status: str) -> None: ...
+
+
+class NullProgress:
+    """Shows nothing (quiet mode, or a worker process)."""
+
+    def plan(self, tasks: Iterable[tuple[str, float, int, int]]) -> None:
+        pass
+
+    def task_started(self, task_id: str, steps_done: int, steps_total: int, bins_total: int) -> None:
+        pass
+
+    def task_advanced(self, steps_done: int, bins_done: int) -> None:
+        pass
+
+    def task_finished(self, status: str) -> None:
+        pass
+
+    def message(self, text: str) -> None:
+        pass
+
+    def close(self) -> None:
+        pass
+
+
+def format_duration(seconds: float | None) -> str:
+    """``H:MM:SS`` (``Dd HH:MM:SS`` beyond a day); ``--:--:--`` when unknown."""
+    if seconds is None or seconds != seconds or seconds < 0 or seconds > 1e9:
+        return "--:--:--"
+    s = int(round(seconds))
+    d, s = divmod(s, 86400)
+    h, s = divmod(s, 3600)
+    m, s = divmod(s, 60)
+    return f"{d}d {h:02d}:{m:02d}:{s:02d}" if d else f"{h}:{m:02d}:{s:02d}"
+
+
+@dataclass
+class _Task:
+    task_id: str
+    weight: float
+    steps_total: int
+    steps_at_start: int
+    steps_done: int = 0
+    bins_done: int = 0
+    bins_total: int = 0
+    started: float = 0.0
+
+
+class Progress:
+    """Task and run progress with ETAs on ``stream`` (see module docstring)."""
+
+    def __init__(self, stream: TextIO | None = None, *, min_interval: float = 0.2,
+                 plain_interval: float = 30.0, clock: Callable[[], float] = time.monotonic,
+                 tty: bool | None = None) -> None:
+        self.stream = stream if stream is not None else sys.stderr
+        self.tty = bool(getattr(self.stream, "isatty", lambda: False)()) if tty is None else tty
+        self.min_interval = min_interval
+        self.plain_interval = plain_interval
+        self.clock = clock
+        self.weights: dict[str, float] = {}
+        self.work_total = 0.0
+        self.work_done = 0.0
+        self.n_tasks = 0
+        self.n_started = 0
+        self.t0 = clock()
+        self.current: _Task | None = None
+        self._last_draw = -1e18
+        self._drawn = 0
+
+    # -------------------------------------------------------------------------------------------- planning
+    def plan(self, tasks: Iterable[tuple[str, float, int, int]]) -> None:
+        """Tasks of this run as ``(task_id, weight, steps_total, steps_done)``; starts the run clock."""
+        self.t0 = self.clock()
+        for task_id, weight, total, done in tasks:
+            self.weights[task_id] = float(weight)
+            self.work_total += float(weight) * max(0, int(total) - int(done))
+            self.n_tasks += 1
+
+    # --------------------------------------------------------------------------------------- ProgressSink
+    def task_started(self, task_id: str, steps_done: int, steps_total: int, bins_total: int) -> None:
+        if task_id not in self.weights:  # not planned: count it now
+            self.weights[task_id] = 1.0
+            self.work_total += max(0, steps_total - steps_done)
+            self.n_tasks += 1
+        self.n_started += 1
+        self.current = _Task(task_id, self.weights[task_id], steps_total, steps_done, steps_done, 0,
+                             bins_total, self.clock())
+        self._draw(force=True, event="start")
+
+    def task_advanced(self, steps_done: int, bins_done: int) -> None:
+        t = self.current
+        if t is None:
+            return
+        self.work_done += t.weight * max(0, steps_done - t.steps_done)
+        t.steps_done, t.bins_done = steps_done, bins_done
+        self._draw()
+
+    def task_finished(self, status: str) -> None:
+        if self.current is not None:
+            self._draw(force=True, event=status)
+        self.current = None
+
+    # -------------------------------------------------------------------------------------------- output
+    def message(self, text: str) -> None:
+        """Print a line of text (clearing the bar first on a terminal)."""
+        self._clear()
+        self.stream.write(text + "\n")
+        self.stream.flush()
+
+    def close(self) -> None:
+        self._clear()
+
+    def task_eta(self) -> float | None:
+        t = self.current
+        if t is None:
+            return None
+        done = t.steps_done - t.steps_at_start
+        elapsed = self.clock() - t.started
+        if done <= 0 or elapsed <= 0:
+            return None
+        return (t.steps_total - t.steps_done) * elapsed / done
+
+    def run_eta(self) -> float | None:
+        elapsed = self.clock() - self.t0
+        if self.work_done <= 0 or elapsed <= 0:
+            return None
+        return max(0.0, self.work_total - self.work_done) * elapsed / self.work_done
+
+    def line(self) -> str:
+        """The current status line (without bar characters when not on a terminal)."""
+        t = self.current
+        run_frac = self.work_done / self.work_total if self.work_total > 0 else 1.0
+        overall = f"all {100 * run_frac:3.0f}% ETA {format_duration(self.run_eta())}"
+        if t is None:
+            return overall
+        frac = t.steps_done / t.steps_total if t.steps_total else 1.0
+        head = f"[{self.n_started}/{self.n_tasks}] {t.task_id}"
+        body = f"{100 * frac:3.0f}% bins {t.bins_done}/{t.bins_total} ETA {format_duration(self.task_eta())}"
+        if self.tty:
+            width = 20
+            filled = int(round(width * min(max(frac, 0.0), 1.0)))
+            body = "|" + "#" * filled + "-" * (width - filled) + "| " + body
+        return f"{head} {body} | {overall}"
+
+    def _clear(self) -> None:
+        if self.tty and self._drawn:
+            self.stream.write("\r" + " " * self._drawn + "\r")
+            self.stream.flush()
+            self._drawn = 0
+
+    def _draw(self, force: bool = False, event: str = "") -> None:
+        now = self.clock()
+        interval = self.min_interval if self.tty else self.plain_interval
+        if not force and now - self._last_draw < interval:
+            return
+        self._last_draw = now
+        text = self.line()
+        if event and not (self.tty and event == "start"):
+            text = f"{event} {text}"
+        if self.tty:
+            width = max(20, shutil.get_terminal_size((100, 24)).columns - 1)
+            text = text[:width]
+            pad = max(0, self._drawn - len(text))
+            self.stream.write("\r" + text + " " * pad)
+            self._drawn = len(text)
+            if event and event != "start":
+                self.stream.write("\n")
+                self._drawn = 0
+        else:
+            self.stream.write(text + "\n")
+        self.stream.flush()
