@@ -1,0 +1,67 @@
+"""Config -> run -> analyze -> crossing, on a small bilayer sweep, against the published critical coupling.
+
+Reference: J_inter/J_intra = 2.5220(1) for the square-lattice Heisenberg bilayer (Wang, Beach and
+Sandvik, Phys. Rev. B 73, 014431 (2006)).  With only L = 4 and 8 the rho_s*L crossing still drifts with
+size; we allow a systematic 0.04 on top of 4 statistical error bars (the L = 4, 8 crossing was within
+0.01 of the reference in trial runs with other seeds; the allowance is a judgement, not a fit).
+"""
+
+from __future__ import annotations
+
+import json
+
+from click.testing import CliRunner
+
+from qmc.cli import cli
+
+G_C = 2.5220  # Wang, Beach and Sandvik, PRB 73, 014431 (2006)
+SYSTEMATIC = 0.04
+
+CONFIG = """
+[run]
+name = "bilayer-e2e"
+output = "run"
+seed = 4242
+
+[lattice]
+kind = "bilayer"
+size = ["L", "L"]
+
+[[terms]]
+type = "heisenberg"
+bonds = "intra"
+coupling = 1.0
+
+[[terms]]
+type = "heisenberg"
+bonds = "inter"
+coupling = "g"
+
+[scan]
+L = [4, 8]
+g = { start = 2.3, stop = 2.7, num = 5 }
+beta = "2*L"
+
+[sampling]
+warmup_steps = 1000
+measure_steps = 6000
+bins = 60
+"""
+
+
+def test_bilayer_sweep_crossing_brackets_published_critical_coupling(tmp_path):
+    config = tmp_path / "bilayer.toml"
+    config.write_text(CONFIG)
+    runner = CliRunner()
+    result = runner.invoke(cli, ["run", str(config), "--quiet"])
+    assert result.exit_code == 0, result.output
+    result = runner.invoke(cli, ["analyze", str(tmp_path / "run"), "--quantity", "stiffness_L"])
+    assert result.exit_code == 0, result.output
+    analysis = json.loads((tmp_path / "run" / "analysis" / "analysis.json").read_text())
+    crossing = analysis["crossings"]
+    g_star, err = crossing["g_c"]["limit"], crossing["g_c"]["limit_err"]
+    assert err < 0.05, f"crossing error bar {err} too large to test anything"
+    assert abs(g_star - G_C) <= 4 * err + SYSTEMATIC, f"g* = {g_star} +- {err}, published {G_C}"
+    # the tables hold every size and coupling
+    table = (tmp_path / "run" / "analysis" / "observables.csv").read_text().splitlines()
+    assert len(table) - 1 == 10
