@@ -125,10 +125,10 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
     from qmc.runner import StopFlag
 
     t_start = time.time()
+    world = mpi_world()  # before the signal handlers, so that MPI start-up cannot replace them
     flag = StopFlag()
     old = _install_signals(flag)
     try:
-        world = mpi_world()
         if world is not None and world.idle:  # an extra process of a launcher without mpi4py
             code = 0
         elif world is not None and world.rank != 0:
@@ -234,8 +234,21 @@ def _summary_table(s: dict[str, Any]) -> str:
         for name, d in obs.items():
             lines.append(f"  {name:<{width}}  {_fmt(d.get('mean'), '16.9g')}  "
                          f"{_fmt(d.get('error'), '10.3g')}  {_fmt(d.get('tau_int'), '8.2f')}")
+    if s.get("exchange"):
+        lines.append("  " + _exchange_text(s["exchange"]))
     lines += [f"  warning: {w}" for w in s.get("warnings", [])]
     return "\n".join(lines)
+
+
+def _exchange_text(x: dict[str, Any]) -> str:
+    """One line on a task's replica exchange: its place in the ladder and its acceptance rates."""
+    name, pos, values, tried = x["parameter"], x["position"], x["values"], x["attempted"]
+    parts = []
+    for j, rate, other in ((pos - 1, x["acceptance_down"], pos - 1), (pos, x["acceptance_up"], pos + 1)):
+        if 0 <= j < len(tried) and 0 <= other < len(values):
+            parts.append(f"with {name} = {values[other]:g}: {_fmt(rate, '.3f')} ({tried[j]} attempts)")
+    return (f"exchange along {name}: position {pos + 1} of {len(values)}, acceptance "
+            + ", ".join(parts) + f"; round trips of the ladder: {x['round_trips']}")
 
 
 @cli.command("summary")
@@ -250,14 +263,24 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
     """
     from qmc.analysis import group_replicas, summarize_task
     from qmc.analysis.tables import to_jsonable
+    from qmc.exchange import exchange_summary
     from qmc.storage import read_run
 
     tasks = read_run(run_dir)
     records = group_replicas(tasks) if merge_replicas else tasks
     summaries = [summarize_task(t) for t in records]
+    for rec, s in zip(records, summaries, strict=True):
+        x = exchange_summary(getattr(rec, "exchange", None))  # replica exchange: acceptance rates
+        if x is not None:
+            s["exchange"] = x
     if as_json:
-        out = [to_jsonable({"task": s["task"], "params": s["params"], "observables": s["observables"],
-                            "info": s.get("info", {}), "warnings": s.get("warnings", [])}) for s in summaries]
+        out = []
+        for s in summaries:
+            d = {"task": s["task"], "params": s["params"], "observables": s["observables"],
+                 "info": s.get("info", {}), "warnings": s.get("warnings", [])}
+            if "exchange" in s:
+                d["exchange"] = s["exchange"]
+            out.append(to_jsonable(d))
         click.echo(json.dumps(out, indent=1))
         return
     if not summaries:
@@ -291,9 +314,13 @@ def _inspect_text(d: Any) -> str:
                                       f"[-{d.vbs_hist_range:g}, {d.vbs_hist_range:g}]^2, "
                                       f"{int(d.vbs_histogram.sum())} samples"))
     if d.exchange:
+        from qmc.exchange import exchange_summary
+
+        x = exchange_summary(d.exchange)
+        plain = {k: (v.tolist() if hasattr(v, "tolist") else v) for k, v in d.exchange.items()}
         short = {k: (f"[{len(v)} values]" if isinstance(v, list) and len(v) > 8 else v)
-                 for k, v in d.exchange.items()}
-        rows.append(("exchange", _params_text(short)))
+                 for k, v in plain.items()}
+        rows.append(("exchange", _exchange_text(x) if x is not None else _params_text(short)))
     width = max(len(k) for k, _ in rows)
     lines = [f"{k:<{width}}  {v}" for k, v in rows]
     prov = dict(d.provenance)

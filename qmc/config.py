@@ -16,7 +16,8 @@ Schema (sections and keys; ``*`` marks required ones)::
     [scan]      NAME = number | [numbers] | {start, stop, num} (num values, both ends included) |
                 "expression of other scan names" (e.g. beta = "2*L");  beta* is required
     [sampling]  warmup_steps*, measure_steps*, bins* (>= 2, divides measure_steps), replicas = 1,
-                checkpoint_seconds = 300, exchange = scan name of a coupling for replica exchange
+                checkpoint_seconds = 300, exchange = scan name of a coupling for replica exchange,
+                exchange_every = 10 (Monte Carlo steps between swap attempts; only with exchange)
 
 Numbers in ``size`` and ``coupling`` may be scan names or products such as ``"2*L"`` (see
 :mod:`qmc.expressions`).  Every combination of the scanned values (cartesian product in file order,
@@ -72,7 +73,8 @@ _SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring,
                   "bins": "number of bins the measurement is split into, >= 2, dividing measure_steps",
                   "replicas": "independent copies of every parameter point, an integer >= 1",
                   "checkpoint_seconds": "seconds between checkpoints, > 0",
-                  "exchange": "scan name of a coupling to exchange replicas along"}
+                  "exchange": "scan name of a coupling to exchange replicas along",
+                  "exchange_every": "Monte Carlo steps between swap attempts of replica exchange, >= 1"}
 _TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
                              "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
               "projector-product": {"type": "projector-product",
@@ -147,7 +149,8 @@ class ScanEntry:
 
 @dataclass(frozen=True)
 class Sampling:
-    """``[sampling]``: Monte Carlo steps, binning, replicas, checkpoint interval, exchange parameter."""
+    """``[sampling]``: Monte Carlo steps, binning, replicas, checkpoint interval, exchange parameter and
+    the number of Monte Carlo steps between replica-exchange swap attempts (``exchange_every``)."""
 
     warmup_steps: int
     measure_steps: int
@@ -155,6 +158,7 @@ class Sampling:
     replicas: int = 1
     checkpoint_seconds: float = 300.0
     exchange: str | None = None
+    exchange_every: int = 10
 
     @property
     def steps_per_bin(self) -> int:
@@ -602,8 +606,13 @@ class _Parser:
         if checkpoint <= 0:
             raise self.fail("sampling.checkpoint_seconds", f"must be positive, got {checkpoint}")
         exchange = self.string("sampling.exchange", t["exchange"]) if "exchange" in t else None
+        every = self.integer("sampling.exchange_every", t.get("exchange_every", 10), minimum=1)
+        if "exchange_every" in t and exchange is None:
+            raise self.fail("sampling.exchange_every", "exchange_every is set but exchange is not: name the "
+                                                       'scanned coupling to exchange along (exchange = "g") '
+                                                       "or remove exchange_every")
         return Sampling(warmup_steps=warmup, measure_steps=measure, bins=bins, replicas=replicas,
-                        checkpoint_seconds=float(checkpoint), exchange=exchange)
+                        checkpoint_seconds=float(checkpoint), exchange=exchange, exchange_every=every)
 
     # -- cross references ---------------------------------------------------------------------------------
     def check_names(self, lattice: LatticeSpec, terms, scan, sampling: Sampling) -> None:
@@ -825,6 +834,8 @@ def config_fingerprint(config: RunConfig) -> str:
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output`` and
     ``sampling.checkpoint_seconds`` do not enter; numbers enter by value (1 and 1.0 are the same).
+    ``sampling.exchange_every`` enters only with ``sampling.exchange`` set (so fingerprints of runs without
+    replica exchange are those of earlier releases).
     """
     lat = config.lattice
     s = config.sampling
@@ -839,5 +850,7 @@ def config_fingerprint(config: RunConfig) -> str:
         "sampling": {"warmup_steps": s.warmup_steps, "measure_steps": s.measure_steps, "bins": s.bins,
                      "replicas": s.replicas, "exchange": s.exchange},
     }
+    if s.exchange is not None:
+        content["sampling"]["exchange_every"] = s.exchange_every
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()

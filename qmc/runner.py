@@ -103,12 +103,15 @@ class TaskOutcome:
 
 
 def task_fingerprint(task: Task) -> str:
-    """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream)."""
+    """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream;
+    with replica exchange also the exchanged parameter, the ladder and the exchange interval)."""
     s = task.sampling
     content = {"seed": task.seed, "seed_key": task.seed_key, "lattice": task.lattice_kind,
                "size": list(task.size), "boundary": task.boundary, "explicit": task.explicit,
                "terms": task.terms, "beta": repr(float(task.beta)), "warmup_steps": s.warmup_steps,
                "measure_steps": s.measure_steps, "bins": s.bins}
+    if task.exchange is not None:  # only then: fingerprints of plain tasks stay what they were
+        content["exchange"] = [task.exchange, task.exchange_group, s.exchange_every]
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
 

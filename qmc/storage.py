@@ -15,7 +15,8 @@ Task file layout (``format = "dsqmc-task"``, ``format_version = 1``)::
                       warmup_steps, measure_steps
     /vbs_histogram    int64[nh, nh] counts of (D_x, D_y), attr range r (edges linspace(-r, r, nh+1))
     /checkpoint/<key> Simulation.state() arrays; attrs steps_done, bins_done, steps_total, time, time_iso
-    /exchange         optional attrs written by a replica-exchange driver
+    /exchange         optional, written by replica exchange (:mod:`qmc.exchange`): attrs for scalars and
+                      short lists, datasets for numpy arrays, subgroups for nested mappings
 
 Crash safety: :func:`write_task` writes a complete new file ``<name>.h5.tmp``, flushes and fsyncs it,
 ``os.replace``-s it onto ``<name>.h5`` and fsyncs the directory, so a kill at any moment leaves the previous
@@ -256,9 +257,26 @@ def _fill(f: Any, rec: TaskRecord) -> None:
     for k, v in rec.checkpoint_attrs.items():
         g.attrs[k] = v
     if rec.exchange is not None:
-        g = f.create_group("exchange")
-        for k, v in rec.exchange.items():
+        _fill_mapping(f.create_group("exchange"), rec.exchange)
+
+
+def _fill_mapping(g: Any, values: Mapping[str, Any]) -> None:
+    """numpy arrays -> datasets, mappings -> subgroups, everything else -> attributes."""
+    for k, v in values.items():
+        if isinstance(v, np.ndarray):
+            g.create_dataset(k, data=_storable(v))
+        elif isinstance(v, Mapping):
+            _fill_mapping(g.create_group(k), v)
+        else:
             g.attrs[k] = _attr(v)
+
+
+def _read_mapping(g: Any) -> dict[str, Any]:
+    """Inverse of :func:`_fill_mapping` (attributes as plain values, datasets as numpy arrays)."""
+    out: dict[str, Any] = {k: _py(v) for k, v in g.attrs.items()}
+    for k, v in g.items():
+        out[k] = _read_mapping(v) if hasattr(v, "keys") else np.asarray(v[()])
+    return out
 
 
 # ----------------------------------------------------------------------------------------------------------
@@ -381,9 +399,7 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
     prov = {k: _py(v) for k, v in f["provenance"].attrs.items()}
     if isinstance(prov.get("sessions"), str):
         prov["sessions"] = json.loads(prov["sessions"])
-    exchange = None
-    if "exchange" in f:
-        exchange = {k: _py(v) for k, v in f["exchange"].attrs.items()}
+    exchange = _read_mapping(f["exchange"]) if "exchange" in f else None
     model_info = {}
     if "model" in f:
         for key in ("n_sites", "linear_size", "lattice_kind", "group_names", "dir_names"):

@@ -1,0 +1,174 @@
+"""Parallel efficiency of `mpiexec -n 2 qmc run` against `mpiexec -n 1 qmc run` on a sweep of equal tasks.
+
+Usage::
+
+    python benchmarks/parallel_efficiency.py [--tasks 8] [--size 8] [--beta 4] [--steps 120000] [--ranks 2]
+
+Prints one JSON object:
+
+* ``wall_seconds``: wall time of the whole command for 1 and K ranks (start-up included);
+* ``efficiency`` = T(1) / (K T(K)) from those wall times;
+* ``startup_seconds``: wall time of the same command when every task is already done (interpreter,
+  imports, MPI start-up, configuration and run-directory checks), and ``efficiency_excluding_startup`` =
+  (T(1) - S(1)) / (K (T(K) - S(K)));
+* ``coordinator``: rank 0's own count of what coordinating cost it (seconds spent answering requests and
+  writing the index, per unit handed out; the index writes alone), read from the run log of the K-rank
+  run;
+* ``bins_identical``: the K-rank bins equal the 1-rank bins bit for bit;
+* ``hardware_ceiling``: the same test without MPI or coordination -- K plain serial ``qmc run`` processes,
+  each with 1/K of the tasks, started together, against one of them alone: T(alone) / T(together).  It
+  is what K busy processes get out of this machine's K cores (shared caches, memory bandwidth, clock
+  boost, virtual CPUs); ``efficiency_vs_ceiling`` = efficiency_excluding_startup / hardware_ceiling;
+* ``cpu_seconds`` of each run (all its processes) and ``cores_used`` = CPU time / wall time: with K ranks
+  on K idle cores this is close to K; much less means other processes took the cores, and the efficiency
+  figures then measure the machine's load rather than the program;
+* the machine's core count and load average.
+
+All tasks are replicas of one parameter point (equal cost).  The numba compilation cache is warmed by a
+tiny run first, so compilation is not timed.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import resource
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+CONFIG = """
+[run]
+seed = 4242
+output = "run"
+[lattice]
+kind = "square"
+size = [{size}, {size}]
+[[terms]]
+type = "heisenberg"
+bonds = "nn"
+coupling = 1.0
+[scan]
+beta = {beta}
+[sampling]
+warmup_steps = {warmup}
+measure_steps = {steps}
+bins = 20
+replicas = {tasks}
+checkpoint_seconds = 60
+"""
+
+
+def _mpiexec() -> str:
+    here = Path(sys.executable).parent / "mpiexec"
+    found = str(here) if here.exists() else shutil.which("mpiexec")
+    if not found:
+        sys.exit("error: no mpiexec next to the Python interpreter or on PATH (pip extra 'mpi')")
+    return found
+
+
+def _cpu() -> float:
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
+def _run(cmd: list[str]) -> tuple[float, float]:
+    """(wall seconds, CPU seconds of the command and all its processes)."""
+    c0, t0 = _cpu(), time.perf_counter()
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    dt, dc = time.perf_counter() - t0, _cpu() - c0
+    if proc.returncode != 0:
+        sys.exit(f"error: {' '.join(cmd)} failed ({proc.returncode}):\n{proc.stderr}")
+    return dt, dc
+
+
+def _bins(run_dir: Path) -> dict[str, dict[str, np.ndarray]]:
+    from qmc.storage import read_run
+
+    return {d.task_id: d.bins for d in read_run(run_dir)}
+
+
+def _ceiling(tmp_path: Path, qmc: list[str], args: argparse.Namespace) -> float:
+    """T(one serial process with tasks/K tasks alone) / T(K such processes at once), start-up excluded."""
+    k = args.ranks
+    part = tmp_path / "part.toml"
+    part.write_text(CONFIG.format(size=args.size, beta=args.beta, steps=args.steps,
+                                  tasks=max(1, args.tasks // k), warmup=max(100, args.steps // 10)))
+    cmd = [*qmc, str(part), "--quiet", "--out"]
+    alone = _run([*cmd, str(tmp_path / "alone")])[0] - _run([*cmd, str(tmp_path / "alone")])[0]
+    t0 = time.perf_counter()
+    procs = [subprocess.Popen([*cmd, str(tmp_path / f"together{i}")], stdout=subprocess.DEVNULL,
+                              stderr=subprocess.DEVNULL) for i in range(k)]
+    for p in procs:
+        p.wait()
+    together = time.perf_counter() - t0 - _run([*cmd, str(tmp_path / "together0")])[0]
+    return alone / together
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--tasks", type=int, default=8, help="number of equal tasks (replicas)")
+    ap.add_argument("--size", type=int, default=8, help="L of the L x L Heisenberg lattice")
+    ap.add_argument("--beta", type=float, default=4.0)
+    ap.add_argument("--steps", type=int, default=120000, help="measured Monte Carlo steps per task")
+    ap.add_argument("--ranks", type=int, default=2)
+    args = ap.parse_args()
+    mpiexec = _mpiexec()
+    qmc = [sys.executable, "-m", "qmc", "run"]
+    with tempfile.TemporaryDirectory(prefix="qmc-efficiency-") as tmp:
+        tmp_path = Path(tmp)
+        cfg = tmp_path / "sweep.toml"
+        cfg.write_text(CONFIG.format(size=args.size, beta=args.beta, steps=args.steps, tasks=args.tasks,
+                                     warmup=max(100, args.steps // 10)))
+        warm = tmp_path / "warm.toml"
+        warm.write_text(CONFIG.format(size=4, beta=1.0, steps=200, tasks=1, warmup=100))
+        _run([*qmc, str(warm), "--quiet", "--out", str(tmp_path / "warm")])  # numba cache, page cache
+
+        wall, cpu, startup = {}, {}, {}
+        for k in (1, args.ranks):
+            out = tmp_path / f"n{k}"
+            cmd = [mpiexec, "-n", str(k), *qmc, str(cfg), "--quiet", "--out", str(out)]
+            wall[k], cpu[k] = _run(cmd)
+            startup[k] = _run(cmd)[0]  # everything done: start-up and checks only
+        log = (tmp_path / f"n{args.ranks}" / "run.log").read_text()
+        m = re.findall(r"MPI farm statistics: (\{.*\})", log)
+        farm = json.loads(m[-2] if len(m) > 1 else m[-1]) if m else {}
+        ceiling = _ceiling(tmp_path, qmc, args)
+        a, b = _bins(tmp_path / "n1"), _bins(tmp_path / f"n{args.ranks}")
+        identical = set(a) == set(b) and all(np.array_equal(a[t][n], b[t][n]) for t in a for n in a[t])
+        index = json.loads((tmp_path / "n1" / "index.json").read_text())
+        task_seconds = [e["seconds"] for e in index["tasks"].values()]
+
+    k = args.ranks
+    result = {
+        "tasks": args.tasks, "lattice": f"{args.size}x{args.size}", "beta": args.beta,
+        "steps_per_task": args.steps + max(100, args.steps // 10), "ranks": k,
+        "task_seconds_mean": round(float(np.mean(task_seconds)), 3),
+        "wall_seconds": {"1": round(wall[1], 3), str(k): round(wall[k], 3)},
+        "startup_seconds": {"1": round(startup[1], 3), str(k): round(startup[k], 3)},
+        "efficiency": round(wall[1] / (k * wall[k]), 4),
+        "efficiency_excluding_startup": round((wall[1] - startup[1]) / (k * (wall[k] - startup[k])), 4),
+        "hardware_ceiling": round(ceiling, 4),
+        "efficiency_vs_ceiling": round((wall[1] - startup[1]) / (k * (wall[k] - startup[k])) / ceiling, 4),
+        "coordinator": {"seconds_per_unit": farm.get("coordinator_seconds_per_unit"),
+                        "seconds_total": farm.get("coordinator_seconds"),
+                        "index_write_seconds_total": farm.get("index_seconds"),
+                        "units_by_rank": farm.get("units_by_rank"), "index_writes": farm.get("index_writes")},
+        "bins_identical": identical,
+        "cpu_seconds": {"1": round(cpu[1], 3), str(k): round(cpu[k], 3)},
+        "cores_used": {"1": round(cpu[1] / wall[1], 2), str(k): round(cpu[k] / wall[k], 2)},
+        "cores": os.cpu_count(),
+        "load_average_1min": round(os.getloadavg()[0], 2),
+    }
+    print(json.dumps(result, indent=1))
+
+
+if __name__ == "__main__":
+    main()

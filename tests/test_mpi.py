@@ -1,0 +1,262 @@
+"""`qmc run` under a real `mpiexec` (the mpich/mpi4py wheels): same bins as a serial run, clean stops,
+recorded failures, and the fallback without mpi4py.
+
+Every comparison is bit for bit (np.array_equal) against a serial run of the same configuration: a task's
+random stream depends only on the master seed and its own parameters, never on the rank or the number
+of ranks.  Configurations are tiny (4x4 and 6x6 lattices, a few thousand steps) so that each launch costs
+mostly its start-up.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+from qmc.config import load_config
+from qmc.exchange import Ladder, work_units
+from qmc.mpi_farm import launcher_rank_size, mpi_world
+from qmc.runner import StopFlag, run_task
+from qmc.storage import load_index, read_task, task_path
+
+pytest.importorskip("mpi4py")
+
+
+def _mpiexec() -> str | None:
+    here = Path(sys.executable).parent / "mpiexec"
+    return str(here) if here.exists() else shutil.which("mpiexec")
+
+
+MPIEXEC = _mpiexec()
+pytestmark = pytest.mark.skipif(MPIEXEC is None, reason="no mpiexec beside the Python interpreter or on PATH")
+
+PLAIN = """
+[run]
+seed = 31
+output = "run"
+[lattice]
+kind = "square"
+size = ["L", "L"]
+[[terms]]
+type = "heisenberg"
+bonds = "nn"
+coupling = "J"
+[scan]
+L = [4, 6]
+J = [1.0, 1.5, 2.0]
+beta = 1.5
+[sampling]
+warmup_steps = 100
+measure_steps = {measure}
+bins = {bins}
+checkpoint_seconds = 0.3
+"""
+
+EXCHANGE = """
+[run]
+seed = 32
+output = "run"
+[lattice]
+kind = "square"
+size = ["L", "L"]
+[[terms]]
+type = "heisenberg"
+bonds = "nn"
+coupling = 1.0
+[[terms]]
+type = "projector-product"
+shape = "plaquette-pair"
+coupling = "Q"
+[scan]
+L = [4]
+Q = [0.5, 0.75, 1.0]
+beta = 2.0
+[sampling]
+warmup_steps = 200
+measure_steps = {measure}
+bins = {bins}
+replicas = 2
+exchange = "Q"
+exchange_every = 4
+checkpoint_seconds = 0.3
+"""
+
+
+def write(tmp: Path, template: str, name: str, measure: int = 2000, bins: int = 10) -> Path:
+    path = tmp / name
+    path.write_text(template.format(measure=measure, bins=bins))
+    return path
+
+
+def qmc_run(config: Path, out: Path, ranks: int | None = None, *extra: str, env: dict | None = None,
+            timeout: float = 180) -> subprocess.CompletedProcess:
+    cmd = [sys.executable, "-m", "qmc", "run", str(config), "--quiet", "--out", str(out), *extra]
+    if ranks is not None:
+        cmd = [MPIEXEC, "-n", str(ranks), *cmd]
+    full_env = dict(os.environ, PYTHONUNBUFFERED="1", **(env or {}))
+    return subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, env=full_env)
+
+
+def start(config: Path, out: Path, ranks: int, *extra: str) -> subprocess.Popen:
+    cmd = [MPIEXEC, "-n", str(ranks), sys.executable, "-m", "qmc", "run", str(config), "--quiet", "--out",
+           str(out), *extra]
+    return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
+
+
+def all_bins(run_dir: Path, config: Path) -> dict[str, dict[str, np.ndarray]]:
+    return {t.task_id: read_task(task_path(run_dir, t.task_id)).bins for t in load_config(config).tasks()}
+
+
+def assert_same_bins(a: dict, b: dict) -> None:
+    assert set(a) == set(b)
+    for tid in a:
+        assert set(a[tid]) == set(b[tid])
+        for name in a[tid]:
+            assert np.array_equal(a[tid][name], b[tid][name]), f"{tid} {name}"
+
+
+# ------------------------------------------------------------------------------------------- detection
+
+
+def test_launcher_environment_is_read(monkeypatch):
+    for var in ("PMI_RANK", "PMI_SIZE", "OMPI_COMM_WORLD_RANK", "OMPI_COMM_WORLD_SIZE", "MV2_COMM_WORLD_RANK",
+                "MV2_COMM_WORLD_SIZE", "PMIX_RANK", "QMC_MPI"):
+        monkeypatch.delenv(var, raising=False)
+    assert launcher_rank_size() is None
+    assert mpi_world() is None  # not started by a launcher: serial, mpi4py not even imported
+    monkeypatch.setenv("OMPI_COMM_WORLD_RANK", "3")
+    monkeypatch.setenv("OMPI_COMM_WORLD_SIZE", "8")
+    assert launcher_rank_size() == (3, 8)
+    monkeypatch.setenv("QMC_MPI", "0")
+    assert mpi_world() is None  # forced serial
+
+
+# ------------------------------------------------------------------------------------------- same bins
+
+
+@pytest.mark.parametrize("template", [PLAIN, EXCHANGE], ids=["plain", "exchange"])
+def test_bins_identical_serial_n1_n2(tmp_path, template):
+    config = write(tmp_path, template, "c.toml")
+    results = {}
+    for label, ranks in (("serial", None), ("n1", 1), ("n2", 2)):
+        proc = qmc_run(config, tmp_path / label, ranks)
+        assert proc.returncode == 0, proc.stderr
+        index = load_index(tmp_path / label)
+        assert all(e["status"] == "done" for e in index["tasks"].values())
+        results[label] = all_bins(tmp_path / label, config)
+    assert_same_bins(results["serial"], results["n1"])
+    assert_same_bins(results["serial"], results["n2"])
+    log = (tmp_path / "n2" / "run.log").read_text()
+    assert "MPI farm statistics" in log and '"ranks": 2' in log
+    assert "rank 1:" in log  # the worker's log lines reach run.log through rank 0
+    if template is EXCHANGE:
+        d = read_task(task_path(tmp_path / "n2", load_config(config).tasks()[0].task_id))
+        assert d.exchange is not None and d.exchange["parameter"] == "Q"
+
+
+def test_without_mpi4py_rank0_runs_everything_serially(tmp_path):
+    shadow = tmp_path / "shadow" / "mpi4py"
+    shadow.mkdir(parents=True)
+    (shadow / "__init__.py").write_text("raise ImportError('mpi4py hidden by the test')\n")
+    config = write(tmp_path, PLAIN, "c.toml")
+    ref = qmc_run(config, tmp_path / "serial")
+    assert ref.returncode == 0, ref.stderr
+    path = os.pathsep.join([str(shadow.parent), os.environ.get("PYTHONPATH", "")])
+    proc = qmc_run(config, tmp_path / "n2", 2, env={"PYTHONPATH": path})
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stderr.count("mpi4py cannot be imported") == 1  # rank 0 says it once; rank 1 exits
+    assert_same_bins(all_bins(tmp_path / "serial", config), all_bins(tmp_path / "n2", config))
+    for t in load_config(config).tasks():  # each task ran once: one session per file
+        assert len(read_task(task_path(tmp_path / "n2", t.task_id)).provenance["sessions"]) == 1
+
+
+# ------------------------------------------------------------------------------------------- failures
+
+
+def test_a_failed_task_is_recorded_and_the_others_go_on(tmp_path):
+    config = write(tmp_path, PLAIN, "c.toml")
+    tasks = load_config(config).tasks()
+    victim = tasks[2]
+    run_dir = tmp_path / "run"
+    flag = StopFlag()
+    flag.set("test")
+    run_task(victim, run_dir, stop_flag=flag, config_text=config.read_text())  # a checkpoint at step 0
+    with h5py.File(task_path(run_dir, victim.task_id), "r+") as f:
+        f["checkpoint/ops"][0] = 1 << 30  # an operator index beyond the model: restoring it fails
+    proc = qmc_run(config, run_dir, 2)
+    assert proc.returncode == 1, proc.stderr
+    assert f"task {victim.task_id} failed" in proc.stderr
+    index = load_index(run_dir)
+    for t in tasks:
+        entry = index["tasks"][t.task_id]
+        if t is victim:
+            assert entry["status"] == "failed" and "inconsistent" in entry["message"]
+        else:
+            assert entry["status"] == "done", (t.task_id, entry)
+    before = {t.task_id: task_path(run_dir, t.task_id).stat().st_mtime_ns for t in tasks if t is not victim}
+    proc = qmc_run(config, run_dir, 2)  # resumes only what is unfinished: the failed task, again
+    assert proc.returncode == 1 and f"task {victim.task_id} failed" in proc.stderr
+    assert {t: task_path(run_dir, t).stat().st_mtime_ns for t in before} == before
+
+
+def test_bad_configuration_is_reported_once_and_all_ranks_exit(tmp_path):
+    config = tmp_path / "bad.toml"
+    config.write_text(PLAIN.format(measure=2000, bins=7))  # 7 does not divide 2000
+    proc = qmc_run(config, tmp_path / "run", 2, timeout=60)
+    assert proc.returncode == 2
+    assert proc.stderr.count("error:") == 1 and "sampling.bins" in proc.stderr
+    assert "Traceback" not in proc.stderr
+
+
+# ------------------------------------------------------------------------------------------- SIGTERM
+
+
+def _started(run_dir: Path, ids: list[str]) -> bool:
+    return all(task_path(run_dir, tid).exists() for tid in ids)
+
+
+def test_sigterm_checkpoints_every_rank_and_resumes_bit_identically(tmp_path):
+    config = write(tmp_path, EXCHANGE, "c.toml", measure=60000, bins=60)
+    cfg = load_config(config)
+    units = work_units(cfg.tasks())
+    assert len(units) == 2  # two ladders: one per rank
+    run_dir = tmp_path / "run"
+    proc = start(config, run_dir, 2)
+    ids = [t.task_id for u in units for t in u]
+    t0 = time.monotonic()
+    while time.monotonic() - t0 < 120:  # both ladders (so both ranks) have started: their first files
+        assert proc.poll() is None, proc.communicate()[1]
+        if _started(run_dir, ids):
+            break
+        time.sleep(0.05)
+    else:
+        pytest.fail("the ladders did not start")
+    time.sleep(0.5)  # a ladder takes several seconds: stop it well inside
+    proc.send_signal(signal.SIGTERM)  # to mpiexec, which forwards it to every rank
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 0, err
+    assert "SIGTERM" in err and "unfinished" in err
+    index = load_index(run_dir)
+    for t in cfg.tasks():
+        d = read_task(task_path(run_dir, t.task_id))
+        assert d.status == "stopped" and 0 < d.steps_done < d.steps_total, (t.task_id, d.status)
+        assert index["tasks"][t.task_id]["status"] == "stopped"
+    # resume with two ranks until done: bit-identical to uninterrupted in-memory ladders
+    proc = qmc_run(config, run_dir, 2)
+    assert proc.returncode == 0, proc.stderr
+    for unit in units:
+        rows = Ladder(unit).advance(10**12)
+        for t, ref in zip(unit, rows, strict=True):
+            d = read_task(task_path(run_dir, t.task_id))
+            got = np.column_stack([d.bins[n] for n in d.bin_names])
+            assert d.status == "done" and np.array_equal(got, ref), t.task_id
+            assert [s["ended"] for s in d.provenance["sessions"]] == ["stopped", "done"]
