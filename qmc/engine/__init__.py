@@ -4,7 +4,7 @@
 - :mod:`qmc.engine.diagonal`     the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.loops`        the operator-loop update (all loops, each flipped with probability 1/2)
 - :mod:`qmc.engine.equal_time`   estimators of a single propagated state
-- :mod:`qmc.engine.steps`        one Monte Carlo step = diagonal sweep + loop update, repeated, with accumulation
+- :mod:`qmc.engine.steps`        Monte Carlo steps (diagonal sweep + loop update) with accumulation
 """
 
 __all__: list[str] = []

@@ -43,7 +43,7 @@ def diagonal_sweep(
     term_start, term_bonds, term_group, bond_sites, bond_disp, phase,
     rng, group_counts, out,
 ):
-    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is in units of 2 S^z (spins are +-1)."""
+    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is 2 M_s (spins are +-1)."""
     M = ops.shape[0]
     n_sites = spins.shape[0]
     n_terms = alias_prob.shape[0]

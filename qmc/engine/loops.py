@@ -22,7 +22,7 @@ U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot
 
 @njit(cache=True, boundscheck=False)
 def loop_update(links, vflip, n_vertices, spins, first, rng):
-    """Construct all loops of the linked vertex list, flip each with probability 1/2; returns the loop count."""
+    """Build all loops of the linked vertex list, flip each with probability 1/2; returns the loop count."""
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_legs = 4 * n_vertices
     n_loops = 0

@@ -32,7 +32,7 @@ OFFMASK_BITS = 3
 
 @njit(cache=True)
 def apply_pending_flips(ops, vflip, term_start):
-    """Toggle the bonds recorded in ``vflip`` into ``ops`` and clear ``vflip`` (one pass, same order as the sweep)."""
+    """Toggle the bonds recorded in ``vflip`` into ``ops`` and clear ``vflip`` (same order as the sweep)."""
     v = 0
     for p in range(ops.shape[0]):
         op = ops[p]
