@@ -1,6 +1,6 @@
 """Test-suite setup.
 
-* Makes the helper modules in tests/ (e.g. ``exact_diag``) importable by plain name.
+* Makes the helper modules in tests/ importable by plain name.
 * Defaults OpenBLAS to one thread (``OPENBLAS_NUM_THREADS``, unless already set): the dense
   diagonalizations of the exact reference run several times slower with two BLAS threads as soon as
   another process shares the two cores.  Must happen before numpy is first imported.

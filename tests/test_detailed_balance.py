@@ -11,12 +11,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import scipy.linalg
-from exact_diag import build_hamiltonian, chain_bonds, q2_plaquette_pairs, square_bonds
 from scipy import stats
 
 from models import HeisenbergTerm, Lattice, ProjectorProductTerm, build_lattice, compile_model
 from qmc.rng import stream_seed
 from qmc.simulation import Simulation
+from qmc.validation.exact import build_hamiltonian, chain_bonds, q2_plaquette_pairs, square_bonds
 
 
 def _exact_distribution(H, beta):

@@ -10,7 +10,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from exact_diag import (
+
+from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
+from qmc.analysis.jackknife import jackknife
+from qmc.rng import stream_seed
+from qmc.simulation import Simulation
+from qmc.validation.exact import (
     ExactSpectrum,
     SymmetryGroup,
     basis_states,
@@ -24,11 +29,6 @@ from exact_diag import (
     square_bonds,
     square_translations,
 )
-
-from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
-from qmc.analysis.jackknife import jackknife
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
 
 SIGMAS = 4.0
 

@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 import scipy.linalg as sla
 import scipy.sparse.linalg as spla
-from exact_diag import (
+
+from qmc.validation.exact import (
     ExactSpectrum,
     bilayer_bonds,
     bilayer_translations,

@@ -1,7 +1,7 @@
 """Replica exchange along a coupling (qmc.exchange): exact results, bookkeeping, files, resuming.
 
 Physics: on the 4x4 J-Q2 model (J = 1, beta = 2) at four values of Q, the energy per site and m_stag2 with
-exchange agree with exact diagonalization (tests/exact_diag.py, independent of the project) within 4 error
+exchange agree with exact diagonalization (qmc/validation/exact, independent of the engine) within 4 error
 bars, and with independent chains (no exchange) within 4 combined error bars.  The exact numbers are
 stored below; ``test_stored_exact_values`` (slow) recomputes them.
 
@@ -67,7 +67,7 @@ checkpoint_seconds = 0.2
 Q_VALUES = [0.5, 0.75, 1.0, 1.25]
 
 # 4x4 periodic J-Q2 model, J = 1, beta = 2: (energy per site, <(M_s/N)^2>) computed with
-# tests/exact_diag.py (ExactSpectrum with translations); test_stored_exact_values recomputes them.
+# qmc/validation/exact (ExactSpectrum with translations); test_stored_exact_values recomputes them.
 EXACT = {
     0.5: (-1.1001222488325018, 0.0842630108155485),
     0.75: (-1.3215782069398796, 0.08150908238259098),
@@ -348,7 +348,7 @@ def test_exchange_matches_exact_and_independent_chains(tmp_path):
 
 @pytest.mark.slow
 def test_stored_exact_values():
-    from exact_diag import (
+    from qmc.validation.exact import (
         ExactSpectrum,
         basis_states,
         build_hamiltonian,
