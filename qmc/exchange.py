@@ -57,6 +57,7 @@ from models.compiled import CompiledModel
 from qmc.config import Task, build_model
 from qmc.errors import UserError
 from qmc.exchange_rule import group_couplings, swap_log_ratio
+from qmc.pacing import next_chunk, write_due
 from qmc.progress import NullProgress, ProgressSink
 from qmc.provenance import session_entry, task_provenance
 from qmc.rng import draw_doubles, stream_seed
@@ -76,8 +77,6 @@ walker directions (0 none yet, +1 last extreme was the lowest coupling, -1 highe
 
 _CP_GROUP = "exchange:"
 _CP_PREV = "previous:"
-_CHUNK_SECONDS = 0.3
-_MIN_WRITE_INTERVAL = 1.0
 
 
 def exchange_seed_key(group: str) -> str:
@@ -666,11 +665,10 @@ class _GroupRun:
                     self.pending = self.pending or len(rows) > 0
                 done = lad.steps_done - before
                 if done > 0:
-                    step_time = dt / (done * m)
-                    chunk = max(1, min(chunk * 4, int(_CHUNK_SECONDS / max(step_time * m, 1e-9))))
+                    step_time = dt / (done * m)  # per chain step: a ladder step advances all m chains
+                chunk = next_chunk(chunk, dt, done)
                 self.sink.task_advanced(m * lad.steps_done, lad.sims[0].bins_done)
-            since = time.monotonic() - self.last_write
-            if since >= _MIN_WRITE_INTERVAL and (self.pending or since >= self.interval) and not lad.done:
+            if write_due(time.monotonic() - self.last_write, self.pending, self.interval, lad.done):
                 self._write("running")
         status = "done" if lad.done else "stopped"
         self._write(status)

@@ -38,6 +38,7 @@ import numpy as np
 
 from qmc.config import RunConfig, Task, build_model, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
+from qmc.pacing import CHUNK_SECONDS, MIN_WRITE_INTERVAL, next_chunk, write_due
 from qmc.progress import NullProgress, ProgressSink
 from qmc.provenance import session_entry, task_provenance
 from qmc.rng import stream_seed
@@ -60,11 +61,6 @@ __all__ = [
     "task_fingerprint", "task_weight", "run_task", "prepare_run", "run_serial", "update_index",
 ]
 
-CHUNK_SECONDS = 0.3
-"""Target wall time of one Simulation.advance call (signals are handled between chunks)."""
-MIN_WRITE_INTERVAL = 1.0
-"""At most one task-file write per this many seconds, except the final write."""
-_MAX_GROWTH = 4  # a chunk is at most this many times longer (in steps) than the previous one
 
 
 class _Flag(Protocol):
@@ -324,10 +320,9 @@ class _TaskRun:
             self.pending = self.pending or len(new) > 0
             if done > 0:
                 step_time = dt / done
-                chunk = max(1, min(chunk * _MAX_GROWTH, int(CHUNK_SECONDS / max(step_time, 1e-9))))
+            chunk = next_chunk(chunk, dt, done)
             self.sink.task_advanced(sim.steps_done, sim.bins_done)
-            since = time.monotonic() - self.last_write
-            if since >= MIN_WRITE_INTERVAL and (self.pending or since >= self.interval) and not sim.done:
+            if write_due(time.monotonic() - self.last_write, self.pending, self.interval, sim.done):
                 self._write("running")
         status = "done" if sim.done else "stopped"
         self._write(status)

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+import qmc.pacing as pacing
 import qmc.runner as runner
 from qmc.config import load_config
 from qmc.errors import UserError
@@ -100,7 +101,7 @@ def test_run_task_matches_an_unchunked_simulation(tmp_path):
 
 
 def test_stop_and_resume_is_bit_identical(tmp_path, monkeypatch):
-    monkeypatch.setattr(runner, "CHUNK_SECONDS", 1e-3)  # chunks of ~100 steps, so the stops land inside
+    monkeypatch.setattr(pacing, "CHUNK_SECONDS", 1e-3)  # chunks of ~100 steps, so the stops land inside
     cfg = load_config(config_file(tmp_path, measure=20000))
     task = cfg.tasks()[0]
     run_dir = tmp_path / "run"
