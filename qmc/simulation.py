@@ -15,6 +15,7 @@ import numpy as np
 
 from models.compiled import CompiledModel
 from qmc.alias import alias_table
+from qmc.engine.diagonal import SWEEP_OUT_SIZE
 from qmc.engine.steps import acc_size, run_steps
 from qmc.engine.vertices import apply_pending_flips, count_ops
 from qmc.estimators import bin_names, bin_row
@@ -128,6 +129,9 @@ class Simulation:
         self.vflip = np.zeros(cutoff * self.kmax, dtype=np.uint8)
         self.links = np.zeros(4 * cutoff * self.kmax, dtype=np.int32)
         self.first = np.zeros(self.model.n_sites, dtype=np.int32)
+        self._group_counts = np.zeros(max(len(self.model.group_names), 1), dtype=np.int64)
+        self._sweep_out = np.zeros(SWEEP_OUT_SIZE, dtype=np.float64)
+        self._et_out = np.zeros(4, dtype=np.float64)
         self.last = np.zeros(self.model.n_sites, dtype=np.int32)
 
     def _grow_cutoff(self) -> None:
@@ -180,7 +184,7 @@ class Simulation:
             self.beta, self.beta_wtot, self.alias_prob, self.alias_idx,
             self.term_start, self.term_bonds, self.term_group, self.bond_sites, self.bond_disp, self.phase,
             self.cos_tab, self.sin_tab, self.vbs_bonds, self.vbs_dir, self.vbs_phase, self.hist, HIST_RANGE,
-            self.rng, self.acc,
+            self.rng, self.acc, self._group_counts, self._sweep_out, self._et_out,
         )
 
     def advance(self, max_steps: int) -> np.ndarray:
