@@ -1,32 +1,16 @@
 """Replica exchange along one scanned coupling: the chains of an exchange group run side by side.
 
 An exchange group (``Task.exchange_group``) is the set of tasks that differ only in the coupling named by
-``[sampling] exchange``; sorted by that coupling they form a *ladder* of M chains.  The chains advance in
-lockstep; every ``exchange_every`` Monte Carlo steps (warm-up and measurement alike) neighbouring pairs
-(i, i+1) -- even i at odd exchange rounds, odd i at even rounds, round r = step / exchange_every -- try to
-swap their configurations, accepted with probability min(1, R) where ln R is
-:func:`qmc.exchange_rule.swap_log_ratio` of the two chains' group couplings and group operator counts.
-One uniform number per attempted pair is drawn from the group's own xoshiro stream
-``stream_seed(master_seed, "exchange:" + group key)``; each chain keeps its own RNG, step counter, bin
-accumulators and VBS histogram (they belong to the coupling); only the configuration (spins, operator
-string, operator count) moves.  Nothing depends on the process or the number of MPI ranks.
+``[sampling] exchange``; sorted by that coupling they form a *ladder* of M chains that advance in lockstep
+and swap configurations at exchange points.  The ladder in memory (swap rule, random stream, cutoff
+padding, walker bookkeeping) is :class:`Ladder` in :mod:`qmc.exchange_ladder`, re-exported here with its
+helpers; this module runs ladders with their task files.
 
 Design choice: a whole ladder is one unit of work, run by one process that interleaves its chains
 (:func:`run_group`).  This is always correct and bit-identical however a run is spread over ranks;
 parallelism comes from running different ladders (sizes, other parameters, replicas) on different ranks.
 Running a ladder's chains on separate ranks would only pay off for few, very long ladders, and every rank
 would wait at each exchange point for the slowest chain (cost grows with the coupling).
-
-Cutoff: during warm-up each chain grows the cutoff of the configuration it holds; at the end of the
-warm-up all configurations are padded with empty slots to the largest cutoff of the ladder, so that any
-configuration fits any coupling during measurement (the weight summed over placements does not depend on
-the cutoff; warm-up states are never measured).
-
-Walkers: configuration ``w`` starts at position ``w``; ``labels[i]`` is the configuration now at
-position i.  A round trip is counted when a configuration that went from the lowest to the highest
-coupling comes back to the lowest.  Acceptance counts, round trips and the up/down occupation (``n_up``,
-``n_down``: exchange points at which the configuration at position i last visited the lowest / highest
-coupling) cover the measurement phase; the warm-up attempts are counted separately.
 
 Files: each task of the ladder has its own task file (see :mod:`qmc.storage`) with an ``/exchange`` group:
 attrs ``parameter, group, position, value, values, task_ids, exchange_every, acceptance_up,
@@ -43,7 +27,6 @@ from __future__ import annotations
 
 import json
 import logging
-import math
 import os
 import time
 import traceback
@@ -53,80 +36,23 @@ from typing import Any
 
 import numpy as np
 
-from models.compiled import CompiledModel
 from qmc.config import Task, build_model
 from qmc.errors import UserError
-from qmc.exchange_rule import group_couplings, swap_log_ratio
+from qmc.exchange_ladder import GROUP_STATE_KEYS, Ladder, check_ladder_models, exchange_seed_key, ladder_tasks
 from qmc.pacing import next_chunk, write_due
 from qmc.progress import NullProgress, ProgressSink
 from qmc.provenance import session_entry, task_provenance
-from qmc.rng import draw_doubles, stream_seed
-from qmc.simulation import Simulation
+from qmc.rng import stream_seed
 from qmc.storage import TaskRecord, now_iso, read_task, task_path, write_task
+from qmc.task_identity import task_fingerprint
 
 __all__ = [
     "Ladder", "ladder_tasks", "check_ladder_models", "check_ladders", "exchange_seed_key", "work_units",
     "run_group", "run_unit", "exchange_summary", "GROUP_STATE_KEYS",
 ]
 
-GROUP_STATE_KEYS = ("rng", "labels", "direction", "round_trips", "attempted", "accepted",
-                    "warmup_attempted", "warmup_accepted", "n_up", "n_down")
-"""Arrays of the ladder state (besides the chains): exchange RNG words, configuration at each position,
-walker directions (0 none yet, +1 last extreme was the lowest coupling, -1 highest after the lowest,
--2 highest without the lowest before), round trips per configuration, per-pair counts, occupations."""
-
 _CP_GROUP = "exchange:"
 _CP_PREV = "previous:"
-
-
-def exchange_seed_key(group: str) -> str:
-    """Key of the swap-decision stream of an exchange group: ``"exchange:" + group``."""
-    return "exchange:" + group
-
-
-def ladder_tasks(tasks: Sequence[Task]) -> list[Task]:
-    """The tasks of one exchange group sorted by the exchanged parameter (lowest first); checks the group."""
-    tasks = list(tasks)
-    if not tasks:
-        raise ValueError("an exchange group needs tasks")
-    name, group = tasks[0].exchange, tasks[0].exchange_group
-    if name is None or group is None or any(t.exchange_group != group or t.exchange != name for t in tasks):
-        raise ValueError("tasks of different exchange groups (or without exchange) cannot form one ladder")
-    ordered = sorted(tasks, key=lambda t: float(t.params[name]))
-    values = [float(t.params[name]) for t in ordered]
-    if len(set(values)) != len(values):
-        raise UserError(f"exchange group {group} has the value {name} = {values} twice", ordered[0].source)
-    return ordered
-
-
-def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) -> np.ndarray:
-    """Check that the models differ only in their couplings; return the group couplings, float64[M, G].
-
-    Replica exchange compares the weights of one configuration under two couplings, which needs the same
-    terms (``term_start``, ``term_bonds``, ``term_group``, sites, groups) at every point of the ladder.
-    """
-    name = tasks[0].exchange
-    where = f"{tasks[0].source}: sampling.exchange"
-    ref = models[0]
-    out = []
-    for task, m in zip(tasks, models, strict=True):
-        same = (m.n_sites == ref.n_sites and tuple(m.group_names) == tuple(ref.group_names)
-                and all(np.array_equal(getattr(m, k), getattr(ref, k))
-                        for k in ("term_start", "term_bonds", "term_group")))
-        if not same:
-            raise UserError(
-                f"replica exchange along '{name}' needs the same terms at every value of {name}, but at "
-                f"{name} = {task.params[name]} the model has {m.n_terms} terms in groups "
-                f"{list(m.group_names)} "
-                f"and at {name} = {tasks[0].params[name]} {ref.n_terms} terms in groups "
-                f"{list(ref.group_names)} (a zero coupling drops its terms: use a small positive value, or "
-                "leave that point out of the exchange)", where)
-        try:
-            out.append(group_couplings(np.asarray(m.term_coupling, dtype=np.float64),
-                                       np.asarray(m.term_group), len(m.group_names)))
-        except ValueError as exc:
-            raise UserError(f"replica exchange along '{name}': {exc} (task {task.task_id})", where) from None
-    return np.array(out, dtype=np.float64)
 
 
 def check_ladders(tasks: Sequence[Task]) -> int:
@@ -140,168 +66,6 @@ def check_ladders(tasks: Sequence[Task]) -> int:
         ordered = ladder_tasks(members)
         check_ladder_models(ordered, [build_model(t) for t in ordered])
     return len(groups)
-
-
-# ----------------------------------------------------------------------------------------------------------
-# the ladder in memory
-
-
-class Ladder:
-    """M chains of one exchange group in lockstep, with configuration swaps at exchange points.
-
-    ``tasks`` must be in ladder order (:func:`ladder_tasks`).  Without ``chain_states`` the chains start
-    from their tasks' own streams; otherwise every chain is restored from its :meth:`Simulation.state`
-    (all at the same step) and the ladder from ``group_state`` (:data:`GROUP_STATE_KEYS`).
-    :meth:`advance` returns the bins completed by each chain; :attr:`walker_rows` collects, per chain,
-    the configuration label at that chain when each of those bins closed.
-    """
-
-    def __init__(self, tasks: Sequence[Task], models: Sequence[CompiledModel] | None = None, *,
-                 chain_states: Sequence[dict[str, np.ndarray]] | None = None,
-                 group_state: dict[str, np.ndarray] | None = None) -> None:
-        self.tasks = list(tasks)
-        if ladder_tasks(self.tasks) != self.tasks:
-            raise ValueError("tasks must be in ladder order (sorted by the exchanged parameter)")
-        self.models = list(models) if models is not None else [build_model(t) for t in self.tasks]
-        self.couplings = check_ladder_models(self.tasks, self.models)
-        t0 = self.tasks[0]
-        s = t0.sampling
-        self.m = len(self.tasks)
-        self.every = int(s.exchange_every)
-        self.warmup_steps = int(s.warmup_steps)
-        self.total_steps = int(s.warmup_steps + s.measure_steps)
-        self.group = str(t0.exchange_group)
-        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
-        if chain_states is None:
-            self.sims = [Simulation(m, t.beta, seed_words=stream_seed(t.seed, t.seed_key), **kw)
-                         for t, m in zip(self.tasks, self.models, strict=True)]
-            m = self.m
-            self.state = {
-                "rng": stream_seed(t0.seed, exchange_seed_key(self.group)),
-                "labels": np.arange(m, dtype=np.int64),
-                "direction": np.zeros(m, dtype=np.int8),
-                "round_trips": np.zeros(m, dtype=np.int64),
-                "attempted": np.zeros(m - 1, dtype=np.int64), "accepted": np.zeros(m - 1, dtype=np.int64),
-                "warmup_attempted": np.zeros(m - 1, dtype=np.int64),
-                "warmup_accepted": np.zeros(m - 1, dtype=np.int64),
-                "n_up": np.zeros(m, dtype=np.int64), "n_down": np.zeros(m, dtype=np.int64),
-            }
-            self._walk(count=False)
-            self._boundary(0)
-        else:
-            if group_state is None or len(chain_states) != self.m:
-                raise ValueError("restoring a ladder needs one chain state per task and the ladder state")
-            self.sims = [Simulation.restore(m, t.beta, state=st, **kw)
-                         for t, m, st in zip(self.tasks, self.models, chain_states, strict=True)]
-            if len({sim.steps_done for sim in self.sims}) != 1:
-                raise ValueError("the chains of a ladder checkpoint are at different steps")
-            self.state = self._check_state(group_state)
-        self.walker_rows: list[list[int]] = [[] for _ in range(self.m)]
-
-    def _check_state(self, st: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-        m = self.m
-        shapes = {"rng": 4, "labels": m, "direction": m, "round_trips": m, "attempted": m - 1,
-                  "accepted": m - 1, "warmup_attempted": m - 1, "warmup_accepted": m - 1, "n_up": m,
-                  "n_down": m}
-        dtypes = {"rng": np.uint64, "direction": np.int8}
-        out = {}
-        for k, n in shapes.items():
-            if k not in st:
-                raise ValueError(f"ladder checkpoint lacks {k}")
-            a = np.array(st[k], dtype=dtypes.get(k, np.int64)).reshape(-1)
-            if a.shape != (n,):
-                raise ValueError(f"ladder checkpoint {k} has {a.size} entries, expected {n}")
-            out[k] = a
-        if sorted(out["labels"].tolist()) != list(range(m)):
-            raise ValueError("ladder checkpoint labels are not a permutation")
-        return out
-
-    # -------------------------------------------------------------------------------------------- counters
-    @property
-    def steps_done(self) -> int:
-        return self.sims[0].steps_done
-
-    @property
-    def done(self) -> bool:
-        return self.steps_done >= self.total_steps
-
-    def next_stop(self) -> int:
-        """The next step at which the ladder is at an exchange point (or the warm-up end, or the end)."""
-        s = self.steps_done
-        nxt = min(self.total_steps, (s // self.every + 1) * self.every)
-        if s < self.warmup_steps:
-            nxt = min(nxt, self.warmup_steps)
-        return nxt
-
-    def group_state(self) -> dict[str, np.ndarray]:
-        """Copy of the ladder state (:data:`GROUP_STATE_KEYS`)."""
-        return {k: self.state[k].copy() for k in GROUP_STATE_KEYS}
-
-    # -------------------------------------------------------------------------------------------- running
-    def advance(self, max_steps: int) -> list[np.ndarray]:
-        """Advance every chain by up to ``max_steps`` steps (all chains equally), swapping at each exchange
-        point reached; returns the completed bins of each chain (list of arrays (k_i, n_columns))."""
-        rows: list[list[np.ndarray]] = [[] for _ in range(self.m)]
-        left = int(max_steps)
-        while left > 0 and not self.done:
-            k = min(left, self.next_stop() - self.steps_done)
-            labels = self.state["labels"]
-            for i, sim in enumerate(self.sims):
-                new = sim.advance(k)
-                rows[i].extend(new)
-                self.walker_rows[i].extend([int(labels[i])] * len(new))
-            left -= k
-            self._boundary(self.steps_done)
-        return [np.array(r, dtype=np.float64).reshape(len(r), len(self.sims[i].bin_names))
-                for i, r in enumerate(rows)]
-
-    def _boundary(self, s: int) -> None:
-        if s == self.warmup_steps:
-            self._pad_cutoffs()
-        if s % self.every == 0 and 0 < s < self.total_steps:
-            self._swap_round(s)
-            self._walk(count=s >= self.warmup_steps)
-
-    def _pad_cutoffs(self) -> None:
-        top = max(sim.cutoff for sim in self.sims)
-        for sim in self.sims:
-            if sim.cutoff < top:
-                conf = sim.configuration()
-                conf["ops"] = np.concatenate([conf["ops"], np.full(top - sim.cutoff, -1, dtype=np.int32)])
-                sim.set_configuration(conf)
-
-    def _swap_round(self, s: int) -> None:
-        st = self.state
-        measuring = s >= self.warmup_steps
-        tried = st["attempted"] if measuring else st["warmup_attempted"]
-        took = st["accepted"] if measuring else st["warmup_accepted"]
-        first = (s // self.every - 1) % 2
-        for i in range(first, self.m - 1, 2):
-            a, b = self.sims[i], self.sims[i + 1]
-            log_r = swap_log_ratio(self.couplings[i], self.couplings[i + 1], a.group_op_counts(),
-                                   b.group_op_counts())
-            u = float(draw_doubles(st["rng"], 1)[0])
-            tried[i] += 1
-            if log_r >= 0.0 or u < math.exp(log_r):
-                took[i] += 1
-                conf_a, conf_b = a.configuration(), b.configuration()
-                a.set_configuration(conf_b)
-                b.set_configuration(conf_a)
-                st["labels"][i], st["labels"][i + 1] = st["labels"][i + 1], st["labels"][i]
-
-    def _walk(self, count: bool) -> None:
-        st = self.state
-        lab, d = st["labels"], st["direction"]
-        bottom, top = int(lab[0]), int(lab[-1])
-        if d[bottom] == -1 and count:
-            st["round_trips"][bottom] += 1
-        d[bottom] = 1
-        if d[top] >= 0:
-            d[top] = -1 if d[top] == 1 else -2
-        if count:
-            dirs = d[lab]
-            st["n_up"] += dirs == 1
-            st["n_down"] += dirs < 0
 
 
 # ----------------------------------------------------------------------------------------------------------
@@ -390,8 +154,6 @@ class _Member:
     """File-side bookkeeping of one task of a ladder."""
 
     def __init__(self, task: Task, run_dir: Path) -> None:
-        from qmc.runner import task_fingerprint
-
         self.task = task
         self.path = task_path(run_dir, task.task_id)
         self.fingerprint = task_fingerprint(task)

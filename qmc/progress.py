@@ -21,7 +21,7 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import Protocol, TextIO
 
-__all__ = ["ProgressSink", "NullProgress", "Progress", "format_duration"]
+__all__ = ["ProgressSink", "NullProgress", "LineDisplay", "Progress", "format_duration"]
 
 
 class ProgressSink(Protocol):
@@ -79,14 +79,47 @@ class _Task:
     started: float = 0.0
 
 
-class Progress:
+class LineDisplay:
+    """A status line on ``stream``: redrawn in place on a terminal (``tty``), cleared before other text.
+
+    Base of :class:`Progress` and :class:`qmc.validation.progress.SuiteProgress`; ``_drawn`` is the length
+    of the line now shown (0 when none).
+    """
+
+    def __init__(self, stream: TextIO | None, tty: bool | None) -> None:
+        self.stream = stream if stream is not None else sys.stderr
+        self.tty = bool(getattr(self.stream, "isatty", lambda: False)()) if tty is None else tty
+        self._drawn = 0
+
+    def message(self, text: str) -> None:
+        """Print a line of text (clearing the status line first on a terminal)."""
+        self._clear()
+        self.stream.write(text + "\n")
+        self.stream.flush()
+
+    def close(self) -> None:
+        self._clear()
+
+    def _clear(self) -> None:
+        if self.tty and self._drawn:
+            self.stream.write("\r" + " " * self._drawn + "\r")
+            self.stream.flush()
+            self._drawn = 0
+
+    def _overwrite(self, text: str) -> None:
+        """Replace the line shown on the terminal by ``text`` (no newline, no flush)."""
+        pad = max(0, self._drawn - len(text))
+        self.stream.write("\r" + text + " " * pad)
+        self._drawn = len(text)
+
+
+class Progress(LineDisplay):
     """Task and run progress with ETAs on ``stream`` (see module docstring)."""
 
     def __init__(self, stream: TextIO | None = None, *, min_interval: float = 0.2,
                  plain_interval: float = 30.0, clock: Callable[[], float] = time.monotonic,
                  tty: bool | None = None) -> None:
-        self.stream = stream if stream is not None else sys.stderr
-        self.tty = bool(getattr(self.stream, "isatty", lambda: False)()) if tty is None else tty
+        super().__init__(stream, tty)
         self.min_interval = min_interval
         self.plain_interval = plain_interval
         self.clock = clock
@@ -98,7 +131,6 @@ class Progress:
         self.t0 = clock()
         self.current: _Task | None = None
         self._last_draw = -1e18
-        self._drawn = 0
 
     # -------------------------------------------------------------------------------------------- planning
     def plan(self, tasks: Iterable[tuple[str, float, int, int]]) -> None:
@@ -134,15 +166,6 @@ class Progress:
         self.current = None
 
     # -------------------------------------------------------------------------------------------- output
-    def message(self, text: str) -> None:
-        """Print a line of text (clearing the bar first on a terminal)."""
-        self._clear()
-        self.stream.write(text + "\n")
-        self.stream.flush()
-
-    def close(self) -> None:
-        self._clear()
-
     def task_eta(self) -> float | None:
         t = self.current
         if t is None:
@@ -175,12 +198,6 @@ class Progress:
             body = "|" + "#" * filled + "-" * (width - filled) + "| " + body
         return f"{head} {body} | {overall}"
 
-    def _clear(self) -> None:
-        if self.tty and self._drawn:
-            self.stream.write("\r" + " " * self._drawn + "\r")
-            self.stream.flush()
-            self._drawn = 0
-
     def _draw(self, force: bool = False, event: str = "") -> None:
         now = self.clock()
         interval = self.min_interval if self.tty else self.plain_interval
@@ -193,9 +210,7 @@ class Progress:
         if self.tty:
             width = max(20, shutil.get_terminal_size((100, 24)).columns - 1)
             text = text[:width]
-            pad = max(0, self._drawn - len(text))
-            self.stream.write("\r" + text + " " * pad)
-            self._drawn = len(text)
+            self._overwrite(text)
             if event and event != "start":
                 self.stream.write("\n")
                 self._drawn = 0

@@ -13,26 +13,24 @@ line is printed when a job finishes or every ``plain_interval`` seconds.
 
 from __future__ import annotations
 
-import sys
 import time
 from collections.abc import Callable, Iterable
 from typing import TextIO
 
-from qmc.progress import format_duration
+from qmc.progress import LineDisplay, format_duration
 
 __all__ = ["MIN_SHARE", "SuiteProgress"]
 
 MIN_SHARE = 0.02
 
 
-class SuiteProgress:
+class SuiteProgress(LineDisplay):
     """Progress display over a set of jobs given as ``(key, cost)`` pairs."""
 
     def __init__(self, jobs: Iterable[tuple[str, float]], stream: TextIO | None = None, *,
                  min_interval: float = 0.5, plain_interval: float = 20.0,
                  clock: Callable[[], float] = time.monotonic, tty: bool | None = None) -> None:
-        self.stream = stream if stream is not None else sys.stderr
-        self.tty = bool(getattr(self.stream, "isatty", lambda: False)()) if tty is None else tty
+        super().__init__(stream, tty)
         self.cost = {key: max(float(c), 1e-9) for key, c in jobs}
         self.total = sum(self.cost.values())
         self.fraction = dict.fromkeys(self.cost, 0.0)
@@ -42,7 +40,6 @@ class SuiteProgress:
         self.min_interval = min_interval
         self.plain_interval = plain_interval
         self._last = -1e18
-        self._drawn = 0
 
     @property
     def share_done(self) -> float:
@@ -76,21 +73,6 @@ class SuiteProgress:
             self.finished.add(key)
         self._draw(force=not self.tty)
 
-    def message(self, text: str) -> None:
-        """Print a line of text (clearing the progress line first on a terminal)."""
-        self._clear()
-        self.stream.write(text + "\n")
-        self.stream.flush()
-
-    def close(self) -> None:
-        self._clear()
-
-    def _clear(self) -> None:
-        if self.tty and self._drawn:
-            self.stream.write("\r" + " " * self._drawn + "\r")
-            self.stream.flush()
-            self._drawn = 0
-
     def _draw(self, force: bool = False) -> None:
         now = self.clock()
         if not force and now - self._last < (self.min_interval if self.tty else self.plain_interval):
@@ -98,9 +80,7 @@ class SuiteProgress:
         self._last = now
         text = self.line()
         if self.tty:
-            pad = max(0, self._drawn - len(text))
-            self.stream.write("\r" + text + " " * pad)
-            self._drawn = len(text)
+            self._overwrite(text)
         else:
             self.stream.write(text + "\n")
         self.stream.flush()

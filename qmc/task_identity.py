@@ -1,0 +1,39 @@
+"""Identity and cost of a task: the fingerprint of its Markov chain, its relative weight, its step count.
+
+Shared by the runner (:mod:`qmc.runner`), the run planning (:mod:`qmc.run_plan`), replica exchange
+(:mod:`qmc.exchange`) and the MPI farm, so that none of them has to import another for these.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+
+from qmc.config import Task
+
+__all__ = ["task_fingerprint", "task_weight", "steps_total"]
+
+
+def task_fingerprint(task: Task) -> str:
+    """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream;
+    with replica exchange also the exchanged parameter, the ladder and the exchange interval)."""
+    s = task.sampling
+    content = {"seed": task.seed, "seed_key": task.seed_key, "lattice": task.lattice_kind,
+               "size": list(task.size), "boundary": task.boundary, "explicit": task.explicit,
+               "terms": task.terms, "beta": repr(float(task.beta)), "warmup_steps": s.warmup_steps,
+               "measure_steps": s.measure_steps, "bins": s.bins}
+    if task.exchange is not None:  # only then: fingerprints of plain tasks stay what they were
+        content["exchange"] = [task.exchange, task.exchange_group, s.exchange_every]
+    text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def task_weight(task: Task) -> float:
+    """Relative cost of one Monte Carlo step of ``task``: (cells) * beta, as a step costs ~ N beta."""
+    return float(math.prod(task.size)) * float(task.beta)
+
+
+def steps_total(task: Task) -> int:
+    """Monte Carlo steps of ``task`` in all: warm-up plus measurement."""
+    return task.sampling.warmup_steps + task.sampling.measure_steps
