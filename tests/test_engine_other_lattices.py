@@ -1,4 +1,4 @@
-"""The engine on the honeycomb and simple cubic lattices against exact diagonalization.
+"""The engine on honeycomb, simple cubic and open-boundary lattices against exact diagonalization.
 
 The lattice geometry itself is checked in test_models.py (brute-force neighbour search); here the exact
 Hamiltonian is built from the lattice's bond list, so these tests check the engine's estimators on
@@ -49,6 +49,8 @@ CASES = {
                      1.5, (0, 1)),
     "cubic2x2x2": (lambda: compile_model(build_lattice("cubic", (2, 2, 2)), [HeisenbergTerm("nn", 1.0)]),
                    2.0, ()),
+    "open_square4x3": (lambda: compile_model(build_lattice("square", (4, 3), boundary="open"),
+                                             [HeisenbergTerm("nn", 1.0)]), 2.0, ()),
 }
 
 
