@@ -24,10 +24,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["EMPTY", "OFFMASK_BITS", "apply_pending_flips", "count_ops"]
-
-EMPTY = -1
-OFFMASK_BITS = 3
+__all__ = ["apply_pending_flips", "count_ops"]
 
 
 @njit(cache=True)
