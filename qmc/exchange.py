@@ -6,11 +6,12 @@ and swap configurations at exchange points.  The ladder in memory (swap rule, ra
 padding, walker bookkeeping) is :class:`Ladder` in :mod:`qmc.exchange_ladder`, re-exported here with its
 helpers; this module runs ladders with their task files.
 
-Design choice: a whole ladder is one unit of work, run by one process that interleaves its chains
-(:func:`run_group`).  This is always correct and bit-identical however a run is spread over ranks;
-parallelism comes from running different ladders (sizes, other parameters, replicas) on different ranks.
-Running a ladder's chains on separate ranks would only pay off for few, very long ladders, and every rank
-would wait at each exchange point for the slowest chain (cost grows with the coupling).
+A ladder is one unit of work for a *team* of processes (:mod:`qmc.ladder_team`): one process in a serial
+run, up to M MPI ranks under the farm (:mod:`qmc.mpi_farm`), each running a contiguous block of the chains
+and writing their task files.  The members meet only at synchronisation points, where they agree on
+stopping and on checkpoint writes (:meth:`_GroupRun.execute`), so all files of a ladder always hold the
+same step; any error on one member is raised on all of them.  Bins are bit-identical for every team
+size (tests/test_ladder_team.py, tests/test_mpi.py).
 
 Files: each task of the ladder has its own task file (see :mod:`qmc.storage`) with an ``/exchange`` group:
 attrs ``parameter, group, position, value, values, task_ids, exchange_every, acceptance_up,
@@ -38,7 +39,15 @@ import numpy as np
 
 from qmc.config import Task, build_model
 from qmc.errors import UserError
-from qmc.exchange_ladder import GROUP_STATE_KEYS, Ladder, check_ladder_models, exchange_seed_key, ladder_tasks
+from qmc.exchange_ladder import (
+    GROUP_STATE_KEYS,
+    Ladder,
+    LadderError,
+    check_ladder_models,
+    exchange_seed_key,
+    ladder_tasks,
+)
+from qmc.ladder_team import LadderTeam, SoloTeam, chain_blocks
 from qmc.pacing import next_chunk, write_due
 from qmc.progress import NullProgress, ProgressSink
 from qmc.provenance import session_entry, task_provenance
@@ -48,7 +57,7 @@ from qmc.task_identity import task_fingerprint
 
 __all__ = [
     "Ladder", "ladder_tasks", "check_ladder_models", "check_ladders", "exchange_seed_key", "work_units",
-    "run_group", "run_unit", "exchange_summary", "GROUP_STATE_KEYS",
+    "run_group", "run_unit", "is_ladder", "exchange_summary", "GROUP_STATE_KEYS",
 ]
 
 _CP_GROUP = "exchange:"
@@ -136,14 +145,21 @@ def work_units(tasks: Sequence[Task], all_tasks: Sequence[Task] | None = None) -
     return units
 
 
-def run_unit(unit: Sequence[Task], run_dir: str | os.PathLike, **kwargs: Any) -> list[Any]:
+def is_ladder(unit: Sequence[Task]) -> bool:
+    """Whether a unit of :func:`work_units` is an exchange ladder (else a single task)."""
+    return not (len(unit) == 1 and unit[0].exchange_group is None)
+
+
+def run_unit(unit: Sequence[Task], run_dir: str | os.PathLike, *, team: LadderTeam | None = None,
+             **kwargs: Any) -> list[Any]:
     """Run one unit of :func:`work_units`: :func:`qmc.runner.run_task` for a single task without exchange,
-    :func:`run_group` for a ladder.  Returns the TaskOutcome of every task of the unit."""
-    if len(unit) == 1 and unit[0].exchange_group is None:
+    :func:`run_group` for a ladder (on ``team``, default this process alone).  Returns the TaskOutcome of
+    every task of the unit run here."""
+    if not is_ladder(unit):
         from qmc.runner import run_task
 
         return [run_task(unit[0], run_dir, **kwargs)]
-    return run_group(unit, run_dir, **kwargs)
+    return run_group(unit, run_dir, team=team, **kwargs)
 
 
 # ----------------------------------------------------------------------------------------------------------
@@ -202,19 +218,41 @@ def _decoded(info: dict[str, Any]) -> dict[str, Any]:
 
 
 class _GroupRun:
-    """One execution of :func:`run_group`."""
+    """One execution of :func:`run_group` by one member of the ladder's team (all its members run it)."""
 
     def __init__(self, tasks: list[Task], run_dir: Path, stop_flag: Any, sink: Any, log: logging.Logger,
                  deadline: float | None, config_text: str | None, config_fp: str,
-                 checkpoint_seconds: float | None) -> None:
+                 checkpoint_seconds: float | None, team: LadderTeam) -> None:
         self.tasks, self.run_dir, self.stop_flag, self.sink, self.log = tasks, run_dir, stop_flag, sink, log
         self.deadline = deadline
         self.config_text, self.config_fp = config_text, config_fp
         self.interval = float(checkpoint_seconds or tasks[0].sampling.checkpoint_seconds)
-        self.members = [_Member(t, run_dir) for t in tasks]
+        self.team = team
+        self.local = chain_blocks(len(tasks), team.size)[team.member]
+        self.members = [_Member(tasks[i], run_dir) for i in self.local]
         self.ladder: Ladder | None = None
         self.stop_reason = ""
         self.write_seconds = 0.0
+        self.write_error: str | None = None
+
+    # -------------------------------------------------------------------------------------------- team
+    def _agree(self, fn: Any) -> list[Any]:
+        """Run ``fn()`` here, share its result with the other members and return all results (member
+        order); an exception on any member is raised on every member (a UserError as such)."""
+        try:
+            mine: tuple[Any, Any] = (None, fn())
+        except UserError as exc:
+            mine = (("user", exc.message, exc.where), None)
+        except Exception as exc:
+            mine = (("other", f"{type(exc).__name__}: {exc}", traceback.format_exc()), None)
+        got = self.team.allgather(mine)
+        for err, _ in got:
+            if err is not None:
+                kind, text, extra = err
+                if kind == "user":
+                    raise UserError(text, extra)
+                raise LadderError(text)
+        return [r for _, r in got]
 
     # -------------------------------------------------------------------------------------------- setup
     def _config(self) -> tuple[str, str]:
@@ -234,9 +272,8 @@ class _GroupRun:
                 "exchange_every": t.sampling.exchange_every, "task_ids": [x.task_id for x in self.tasks],
                 "values": [float(x.params[t.exchange]) for x in self.tasks]}
 
-    def _load(self) -> bool:
-        """Create or restore the ladder; False when every file says done."""
-        models = [build_model(t) for t in self.tasks]
+    def _read_files(self) -> list[tuple[Any, dict] | None]:
+        """This member's task files (None where missing), checked against the tasks and the settings."""
         settings = self._settings()
         found: list[tuple[Any, dict] | None] = []
         for mem in self.members:
@@ -255,59 +292,105 @@ class _GroupRun:
                                 f"{settings['exchange_every']} steps; move it away (or run with --force)",
                                 str(mem.path))
             found.append((data, info))
-        if all(f is not None and f[0].status == "done" for f in found):
+        return found
+
+    def _load(self) -> bool:
+        """Create or restore the ladder (all members agree on the step); False when every file says done."""
+        models = [build_model(t) for t in self.tasks]
+        found: list[tuple[Any, dict] | None] = []
+        cands: list[dict[int, tuple[dict, dict]]] = []
+
+        def scan() -> dict[str, Any]:
+            found.extend(self._read_files())
+            cands.extend((_candidates(f[0]) if f is not None else {}) for f in found)
+            local = set.intersection(*(set(c) for c in cands)) if all(cands) else set()
+            group = {}
+            for step in local:  # the ladder state each step in every local file; they must agree
+                group[step] = cands[0][step][1]
+                for c in cands[1:]:
+                    g = c[step][1]
+                    if any(not np.array_equal(np.asarray(g[k]), np.asarray(group[step][k]))
+                           for k in GROUP_STATE_KEYS):
+                        group[step] = None
+            return {"done": all(f is not None and f[0].status == "done" for f in found), "steps": local,
+                    "group": group}
+
+        scans = self._agree(scan)
+        if all(x["done"] for x in scans):
             for mem, f in zip(self.members, found, strict=True):
                 mem.bins_done, mem.steps_done = f[0].bins_done, f[0].steps_done
             return False
-        cands = [(_candidates(f[0]) if f is not None else {}) for f in found]
-        common = set.intersection(*(set(c) for c in cands)) if all(cands) else set()
+        common = set.intersection(*(x["steps"] for x in scans))
         step = max(common) if common else None
-        if step is None:  # start over: some file never got past its first write (or none exists)
-            self.ladder = Ladder(self.tasks, models)
-            for mem, f in zip(self.members, found, strict=True):
-                mem.sessions = list(f[0].provenance.get("sessions", [])) if f is not None else []
-            self.log.info("exchange group %s: starting %d chains along %s (%d sites, beta %g, %d steps)",
-                          self.tasks[0].exchange_group, len(self.tasks), self.tasks[0].exchange,
-                          models[0].n_sites, self.tasks[0].beta, self.ladder.total_steps)
-        else:
-            chains = [c[step][0] for c in cands]
-            group = cands[0][step][1]
-            for c in cands[1:]:
-                g = c[step][1]
-                if any(not np.array_equal(np.asarray(g[k]), np.asarray(group[k])) for k in GROUP_STATE_KEYS):
+        if step is not None:
+            ref = scans[0]["group"][step]
+            for x in scans:
+                g = x["group"][step]
+                if ref is None or g is None or any(not np.array_equal(np.asarray(g[k]), np.asarray(ref[k]))
+                                                   for k in GROUP_STATE_KEYS):
                     raise UserError(f"the task files of exchange group {self.tasks[0].exchange_group} "
                                     f"disagree about the ladder state at step {step}; move them away to "
-                                    "start over",
-                                    str(self.members[0].path.parent))
-            self.ladder = Ladder(self.tasks, models, chain_states=chains, group_state=group)
-            for i, (mem, f) in enumerate(zip(self.members, found, strict=True)):
-                data, info = f
-                sim = self.ladder.sims[i]
-                nb = sim.bins_done
-                if data.bins_done < nb or tuple(data.bin_names) != sim.bin_names:
-                    raise UserError(f"damaged task file: checkpoint at {sim.steps_done} steps does not match "
-                                    f"its {data.bins_done} stored bins", str(mem.path))
-                table = np.column_stack([data.bins[n][:nb] for n in sim.bin_names]).reshape(nb, -1)
-                mem.rows = [np.array(r) for r in table]
-                walker = np.asarray(info.get("walker", np.zeros(0)), dtype=np.int64).reshape(-1)
-                if walker.size < nb:
-                    raise UserError("damaged task file: the exchange walk is shorter than the bins",
-                                    str(mem.path))
-                mem.walker = [int(x) for x in walker[:nb]]
-                mem.sessions = list(data.provenance.get("sessions", []))
-                mem.prev = {**sim.state(), **{_CP_GROUP + k: v for k, v in self.ladder.group_state().items()}}
-                mem.prev_steps = sim.steps_done
-            self.log.info("exchange group %s: resuming %d chains at step %d of %d",
-                          self.tasks[0].exchange_group, len(self.tasks), step, self.ladder.total_steps)
+                                    "start over", str(self.members[0].path.parent))
+        self._agree(lambda: self._start(models, found, cands, step))
         self.models = models
         for mem in self.members:
             mem.session = session_entry(now_iso(), self.ladder.steps_done)
             mem.sessions.append(mem.session)
         return True
 
+    def _start(self, models: list, found: list, cands: list, step: int | None) -> None:
+        """Build the ladder: from the start (``step`` None) or from every file's checkpoint at ``step``."""
+        if step is None:  # start over: some file never got past its first write (or none exists)
+            self.ladder = Ladder(self.tasks, models, team=self.team)
+            for mem, f in zip(self.members, found, strict=True):
+                mem.sessions = list(f[0].provenance.get("sessions", [])) if f is not None else []
+            spread = self._spread()
+            if self.team.member == 0:
+                self.log.info("exchange group %s: starting %d chains along %s (%d sites, beta %g, "
+                              "%d steps)%s",
+                              self.tasks[0].exchange_group, len(self.tasks), self.tasks[0].exchange,
+                              models[0].n_sites, self.tasks[0].beta, self.ladder.total_steps, spread)
+            return
+        chains = [c[step][0] for c in cands]
+        self.ladder = Ladder(self.tasks, models, chain_states=chains, group_state=cands[0][step][1],
+                             team=self.team)
+        for j, (mem, f) in enumerate(zip(self.members, found, strict=True)):
+            data, info = f
+            sim = self.ladder.sims[self.local[j]]
+            nb = sim.bins_done
+            if data.bins_done < nb or tuple(data.bin_names) != sim.bin_names:
+                raise UserError(f"damaged task file: checkpoint at {sim.steps_done} steps does not match "
+                                f"its {data.bins_done} stored bins", str(mem.path))
+            table = np.column_stack([data.bins[n][:nb] for n in sim.bin_names]).reshape(nb, -1)
+            mem.rows = [np.array(r) for r in table]
+            walker = np.asarray(info.get("walker", np.zeros(0)), dtype=np.int64).reshape(-1)
+            if walker.size < nb:
+                raise UserError("damaged task file: the exchange walk is shorter than the bins",
+                                str(mem.path))
+            mem.walker = [int(x) for x in walker[:nb]]
+            mem.sessions = list(data.provenance.get("sessions", []))
+            mem.prev = {**sim.state(), **{_CP_GROUP + k: v for k, v in self.ladder.group_state().items()}}
+            mem.prev_steps = sim.steps_done
+        spread = self._spread()
+        if self.team.member == 0:
+            self.log.info("exchange group %s: resuming %d chains at step %d of %d%s",
+                          self.tasks[0].exchange_group, len(self.tasks), step, self.ladder.total_steps,
+                          spread)
+
+    def _spread(self) -> str:
+        if self.team.size == 1:
+            return ""
+        self.log.info("exchange group %s: here chains %d..%d of %d (team member %d of %d)",
+                      self.tasks[0].exchange_group, self.local.start, self.local.stop - 1, len(self.tasks),
+                      self.team.member, self.team.size)
+        return f", side by side on {self.team.size} ranks"
+
     # -------------------------------------------------------------------------------------------- writing
-    def _record(self, i: int, status: str, text: str, source: str, t: float) -> TaskRecord:
-        lad, mem, task = self.ladder, self.members[i], self.tasks[i]
+    def _record(self, j: int, status: str, text: str, source: str, t: float) -> TaskRecord:
+        """The file content of local member ``j`` (ladder position ``self.local[j]``)."""
+        lad, mem = self.ladder, self.members[j]
+        i = self.local[j]
+        task = self.tasks[i]
         assert lad is not None
         sim, model = lad.sims[i], self.models[i]
         mem.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status)
@@ -351,17 +434,18 @@ class _GroupRun:
         )
 
     def _write(self, status: str) -> None:
+        """Rewrite this member's task files (all at the ladder's current step)."""
         t0 = time.perf_counter()
         t = time.time()
         text, source = self._config()
         lad = self.ladder
         assert lad is not None
-        for i, mem in enumerate(self.members):
-            rec = self._record(i, status, text, source, t)
+        for j, mem in enumerate(self.members):
+            rec = self._record(j, status, text, source, t)
             mem.path.parent.mkdir(parents=True, exist_ok=True)
             write_task(mem.path, rec)
             mem.last = rec
-            sim = lad.sims[i]
+            sim = lad.sims[self.local[j]]
             mem.prev = {k: v for k, v in rec.checkpoint.items() if not k.startswith(_CP_PREV)}
             mem.prev_steps = sim.steps_done
             mem.bins_done, mem.steps_done = sim.bins_done, sim.steps_done
@@ -369,8 +453,17 @@ class _GroupRun:
         self.last_write = time.monotonic()
         self.pending = False
 
+    def _try_write(self, status: str) -> None:
+        """:meth:`_write`; a failure is kept for the next meeting of the team (where every member stops)."""
+        try:
+            self._write(status)
+        except Exception as exc:
+            if self.team.size == 1:
+                raise
+            self.write_error = f"writing the task files failed: {type(exc).__name__}: {exc}"
+
     def record_failure(self, message: str) -> None:
-        """Rewrite each member's last good file with status ``failed``."""
+        """Rewrite each local member's last good file with status ``failed``."""
         for mem in self.members:
             if mem.last is None:
                 continue
@@ -382,39 +475,48 @@ class _GroupRun:
                                exc)
 
     # -------------------------------------------------------------------------------------------- running
-    def _should_stop(self, next_seconds: float) -> bool:
+    def _local_stop(self, next_seconds: float) -> str:
+        """Why this member wants to stop ("" if it does not)."""
         flag = self.stop_flag
         if flag is not None and flag.is_set():
-            self.stop_reason = getattr(flag, "reason", "") or "stop requested"
-            return True
+            return getattr(flag, "reason", "") or "stop requested"
         need = next_seconds + self.write_seconds + 0.05
         if self.deadline is not None and time.time() + need >= self.deadline:
-            self.stop_reason = "time budget used up"
-            return True
-        return False
+            return "time budget used up"
+        return ""
 
     def execute(self) -> str:
+        """Advance the ladder to the end or to an agreed stop.
+
+        Stops and checkpoint writes happen only at synchronisation points, decided from the votes the
+        members cast before their last chunk of steps ahead of that point: stop if any member asks (stop
+        flag, or its time budget would not cover the rest of the interval and the next one), write when the
+        first member's clock says a checkpoint is due.  All members thus stop and write at the same step."""
         if not self._load():
-            self.sink.task_started(self.tasks[0].task_id, self.members[0].steps_done,
+            self.sink.task_started(self.members[0].task.task_id, self.members[0].steps_done,
                                    self.members[0].steps_done, self.tasks[0].sampling.bins)
-            self.log.info("exchange group %s: already done", self.tasks[0].exchange_group)
+            if self.team.member == 0:
+                self.log.info("exchange group %s: already done", self.tasks[0].exchange_group)
             return "done"
         lad = self.ladder
         assert lad is not None
-        m = lad.m
-        self.sink.task_started(self.tasks[0].task_id, m * lad.steps_done, m * lad.total_steps,
+        m = len(self.local)
+        self.sink.task_started(self.members[0].task.task_id, m * lad.steps_done, m * lad.total_steps,
                                self.tasks[0].sampling.bins)
         if any(mem.prev is None for mem in self.members):  # a fresh start: files at step 0 first
             self._write("running")
         self.last_write = time.monotonic()
         self.pending = False
         chunk, step_time = 16, 0.0
-        while not lad.done:
-            # only at exchange points (all chains at the same step): stop, or write
-            if self._should_stop(step_time * m * (lad.next_stop() - lad.steps_done)):
-                break
+        stopping = False
+        while not lad.done and not stopping:
             target = lad.next_stop()
             while lad.steps_done < target:
+                # the vote the members share at the next meeting (the latest one cast counts)
+                left = target - lad.steps_done + lad.every
+                lad.vote = {"stop": self._local_stop(step_time * m * left), "error": self.write_error,
+                            "write": write_due(time.monotonic() - self.last_write, self.pending,
+                                               self.interval, False)}
                 n = min(chunk, target - lad.steps_done)
                 before = lad.steps_done
                 t0 = time.perf_counter()
@@ -427,19 +529,29 @@ class _GroupRun:
                     self.pending = self.pending or len(rows) > 0
                 done = lad.steps_done - before
                 if done > 0:
-                    step_time = dt / (done * m)  # per chain step: a ladder step advances all m chains
+                    step_time = dt / (done * m)  # per chain step: a ladder step advances all local chains
                 chunk = next_chunk(chunk, dt, done)
-                self.sink.task_advanced(m * lad.steps_done, lad.sims[0].bins_done)
-            if write_due(time.monotonic() - self.last_write, self.pending, self.interval, lad.done):
-                self._write("running")
+                self.sink.task_advanced(m * lad.steps_done, lad.sims[self.local.start].bins_done)
+            if lad.done or lad.voted_at != lad.steps_done:
+                continue
+            errors = [v["error"] for v in lad.votes if v["error"]]
+            if errors:
+                raise LadderError(errors[0])
+            reasons = [v["stop"] for v in lad.votes if v["stop"]]
+            if reasons:
+                stopping, self.stop_reason = True, reasons[0]
+            elif lad.votes[0]["write"]:
+                self._try_write("running")
         status = "done" if lad.done else "stopped"
         self._write(status)
-        if status == "done":
-            self.log.info("exchange group %s: done (%d chains, %d bins each)", self.tasks[0].exchange_group,
-                          m, lad.sims[0].bins_done)
-        else:
-            self.log.info("exchange group %s: stopped at step %d of %d (%s); checkpoint written",
-                          self.tasks[0].exchange_group, lad.steps_done, lad.total_steps, self.stop_reason)
+        if self.team.member == 0:
+            if status == "done":
+                self.log.info("exchange group %s: done (%d chains, %d bins each)",
+                              self.tasks[0].exchange_group, len(self.tasks),
+                              lad.sims[self.local.start].bins_done)
+            else:
+                self.log.info("exchange group %s: stopped at step %d of %d (%s); checkpoint written",
+                              self.tasks[0].exchange_group, lad.steps_done, lad.total_steps, self.stop_reason)
         return status
 
 
@@ -465,12 +577,15 @@ def run_group(
     config_text: str | None = None,
     config_fingerprint: str = "",
     checkpoint_seconds: float | None = None,
+    team: LadderTeam | None = None,
 ) -> list[Any]:
     """Run (or resume) the ladder of one exchange group until done, stopped or out of time.
 
     Same contract as :func:`qmc.runner.run_task`, for all tasks of the group at once: returns one
     :class:`qmc.runner.TaskOutcome` per task in ladder order (all with the same status); a problem of the
-    group is recorded as status ``failed`` with its message in every task of it, never raised.
+    group is recorded as status ``failed`` with its message in every task of it, never raised.  With a
+    ``team`` of several processes (:mod:`qmc.ladder_team`; every member calls this with the same tasks)
+    each member runs and writes the tasks of its block of the ladder and returns their outcomes.
     """
     from qmc.runner import TaskOutcome
 
@@ -479,7 +594,7 @@ def run_group(
     sink = progress if progress is not None else NullProgress()
     ordered = ladder_tasks(tasks)
     run = _GroupRun(ordered, Path(run_dir), stop_flag, sink, log, deadline, config_text, config_fingerprint,
-                    checkpoint_seconds)
+                    checkpoint_seconds, team if team is not None else SoloTeam())
     try:
         status = run.execute()
         message = run.stop_reason if status == "stopped" else ""

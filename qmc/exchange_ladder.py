@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -34,10 +35,12 @@ from models.compiled import CompiledModel
 from qmc.config import Task, build_model
 from qmc.errors import UserError
 from qmc.exchange_rule import group_couplings, swap_log_ratio
+from qmc.ladder_team import LadderTeam, SoloTeam, chain_blocks
 from qmc.rng import draw_doubles, stream_seed
 from qmc.simulation import Simulation
 
-__all__ = ["Ladder", "ladder_tasks", "check_ladder_models", "exchange_seed_key", "GROUP_STATE_KEYS"]
+__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "exchange_seed_key",
+           "GROUP_STATE_KEYS"]
 
 GROUP_STATE_KEYS = ("rng", "labels", "direction", "round_trips", "attempted", "accepted",
                     "warmup_attempted", "warmup_accepted", "n_up", "n_down")
@@ -100,19 +103,31 @@ def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) 
 # the ladder in memory
 
 
+class LadderError(RuntimeError):
+    """A chain of the ladder failed on some team member; raised on every member at the same step."""
+
+
 class Ladder:
     """M chains of one exchange group in lockstep, with configuration swaps at exchange points.
 
-    ``tasks`` must be in ladder order (:func:`ladder_tasks`).  Without ``chain_states`` the chains start
-    from their tasks' own streams; otherwise every chain is restored from its :meth:`Simulation.state`
-    (all at the same step) and the ladder from ``group_state`` (:data:`GROUP_STATE_KEYS`).
-    :meth:`advance` returns the bins completed by each chain; :attr:`walker_rows` collects, per chain,
-    the configuration label at that chain when each of those bins closed.
+    ``tasks`` must be in ladder order (:func:`ladder_tasks`).  With a ``team`` of several processes
+    (:mod:`qmc.ladder_team`) this process holds only the chains of its block, :attr:`local` (a range of
+    positions); all members must make the same calls.  Without ``chain_states`` the chains start from
+    their tasks' own streams; otherwise the local chains are restored from their :meth:`Simulation.state`
+    (one per local position, all at the same step) and the ladder from ``group_state``
+    (:data:`GROUP_STATE_KEYS`).  :meth:`advance` returns the bins completed by each local chain;
+    :attr:`walker_rows` collects, per local chain, the configuration label at that chain when each of
+    those bins closed.
+
+    Synchronisation points are the end of the warm-up and every exchange point; there the members share
+    their :attr:`vote` (any picklable object, set by the caller before :meth:`advance`), and afterwards
+    :attr:`votes` holds every member's vote and :attr:`voted_at` the step.  A chain that raises makes
+    every member raise :class:`LadderError` at the next synchronisation point.
     """
 
     def __init__(self, tasks: Sequence[Task], models: Sequence[CompiledModel] | None = None, *,
                  chain_states: Sequence[dict[str, np.ndarray]] | None = None,
-                 group_state: dict[str, np.ndarray] | None = None) -> None:
+                 group_state: dict[str, np.ndarray] | None = None, team: LadderTeam | None = None) -> None:
         self.tasks = list(tasks)
         if ladder_tasks(self.tasks) != self.tasks:
             raise ValueError("tasks must be in ladder order (sorted by the exchanged parameter)")
@@ -121,14 +136,21 @@ class Ladder:
         t0 = self.tasks[0]
         s = t0.sampling
         self.m = len(self.tasks)
+        self.team: LadderTeam = team if team is not None else SoloTeam()
+        self.blocks = chain_blocks(self.m, self.team.size)
+        self.local = self.blocks[self.team.member]
+        self.owner = [r for r, b in enumerate(self.blocks) for _ in b]
         self.every = int(s.exchange_every)
         self.warmup_steps = int(s.warmup_steps)
         self.total_steps = int(s.warmup_steps + s.measure_steps)
         self.group = str(t0.exchange_group)
         kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
+        self.sims: dict[int, Simulation] = {}
         if chain_states is None:
-            self.sims = [Simulation(m, t.beta, seed_words=stream_seed(t.seed, t.seed_key), **kw)
-                         for t, m in zip(self.tasks, self.models, strict=True)]
+            for i in self.local:
+                t = self.tasks[i]
+                self.sims[i] = Simulation(self.models[i], t.beta, seed_words=stream_seed(t.seed, t.seed_key),
+                                          **kw)
             m = self.m
             self.state = {
                 "rng": stream_seed(t0.seed, exchange_seed_key(self.group)),
@@ -141,16 +163,20 @@ class Ladder:
                 "n_up": np.zeros(m, dtype=np.int64), "n_down": np.zeros(m, dtype=np.int64),
             }
             self._walk(count=False)
-            self._boundary(0)
         else:
-            if group_state is None or len(chain_states) != self.m:
-                raise ValueError("restoring a ladder needs one chain state per task and the ladder state")
-            self.sims = [Simulation.restore(m, t.beta, state=st, **kw)
-                         for t, m, st in zip(self.tasks, self.models, chain_states, strict=True)]
-            if len({sim.steps_done for sim in self.sims}) != 1:
+            if group_state is None or len(chain_states) != len(self.local):
+                raise ValueError("restoring a ladder needs one chain state per local chain and the "
+                                 "ladder state")
+            for i, st in zip(self.local, chain_states, strict=True):
+                self.sims[i] = Simulation.restore(self.models[i], self.tasks[i].beta, state=st, **kw)
+            if len({sim.steps_done for sim in self.sims.values()}) != 1:
                 raise ValueError("the chains of a ladder checkpoint are at different steps")
             self.state = self._check_state(group_state)
-        self.walker_rows: list[list[int]] = [[] for _ in range(self.m)]
+        self.walker_rows: list[list[int]] = [[] for _ in self.local]
+        self.vote: Any = None
+        self.votes: list[Any] = []
+        self.voted_at = -1
+        self._padded = False
 
     def _check_state(self, st: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
         m = self.m
@@ -172,8 +198,13 @@ class Ladder:
 
     # -------------------------------------------------------------------------------------------- counters
     @property
+    def local_sims(self) -> list[Simulation]:
+        """The chains of this process, in ladder order."""
+        return [self.sims[i] for i in self.local]
+
+    @property
     def steps_done(self) -> int:
-        return self.sims[0].steps_done
+        return self.sims[self.local.start].steps_done
 
     @property
     def done(self) -> bool:
@@ -187,61 +218,102 @@ class Ladder:
             nxt = min(nxt, self.warmup_steps)
         return nxt
 
+    def is_sync_point(self, s: int) -> bool:
+        """Whether the members meet at step ``s`` (end of the warm-up, or an exchange point)."""
+        return s == self.warmup_steps or (s % self.every == 0 and 0 < s < self.total_steps)
+
     def group_state(self) -> dict[str, np.ndarray]:
         """Copy of the ladder state (:data:`GROUP_STATE_KEYS`)."""
         return {k: self.state[k].copy() for k in GROUP_STATE_KEYS}
 
     # -------------------------------------------------------------------------------------------- running
     def advance(self, max_steps: int) -> list[np.ndarray]:
-        """Advance every chain by up to ``max_steps`` steps (all chains equally), swapping at each exchange
-        point reached; returns the completed bins of each chain (list of arrays (k_i, n_columns))."""
-        rows: list[list[np.ndarray]] = [[] for _ in range(self.m)]
+        """Advance every local chain by up to ``max_steps`` steps (all chains equally), meeting the other
+        members and swapping at each synchronisation point reached; returns the completed bins of each
+        local chain (list of arrays (k_i, n_columns), in ladder order)."""
+        rows: list[list[np.ndarray]] = [[] for _ in self.local]
         left = int(max_steps)
+        if self.steps_done == 0 and self.warmup_steps == 0 and not self._padded and left > 0:
+            self._sync(0, None)  # no warm-up: the cutoffs must agree before the first measured step
         while left > 0 and not self.done:
-            k = min(left, self.next_stop() - self.steps_done)
+            target = self.next_stop()
+            k = min(left, target - self.steps_done)
             labels = self.state["labels"]
-            for i, sim in enumerate(self.sims):
-                new = sim.advance(k)
-                rows[i].extend(new)
-                self.walker_rows[i].extend([int(labels[i])] * len(new))
+            error = None
+            for j, i in enumerate(self.local):
+                try:
+                    new = self.sims[i].advance(k)
+                except Exception as exc:  # shared with the other members at the next meeting
+                    error = f"chain at {self.tasks[i].task_id}: {type(exc).__name__}: {exc}"
+                    break
+                rows[j].extend(new)
+                self.walker_rows[j].extend([int(labels[i])] * len(new))
             left -= k
-            self._boundary(self.steps_done)
+            if error is not None:  # meet the others where they will wait for this member, then stop
+                if self.is_sync_point(target):
+                    self._sync(target, error)
+                raise LadderError(error)
+            if self.is_sync_point(self.steps_done):
+                self._sync(self.steps_done, None)
         return [np.array(r, dtype=np.float64).reshape(len(r), len(self.sims[i].bin_names))
-                for i, r in enumerate(rows)]
+                for i, r in zip(self.local, rows, strict=True)]
 
-    def _boundary(self, s: int) -> None:
+    def _sync(self, s: int, error: str | None) -> None:
+        """Meet the other members at step ``s``: share errors, votes, cutoffs and operator counts; pad
+        the cutoffs at the end of the warm-up; run the swap round of an exchange point."""
+        mine = {"error": error, "vote": self.vote,
+                "cutoff": max(sim.cutoff for sim in self.local_sims),
+                "counts": {i: self.sims[i].group_op_counts() for i in self.local} if error is None else {}}
+        got = self.team.allgather(mine)
+        errors = [g["error"] for g in got if g["error"] is not None]
+        if errors:
+            raise LadderError(errors[0])
+        self.votes, self.voted_at = [g["vote"] for g in got], s
         if s == self.warmup_steps:
-            self._pad_cutoffs()
+            self._pad_cutoffs(max(g["cutoff"] for g in got))
         if s % self.every == 0 and 0 < s < self.total_steps:
-            self._swap_round(s)
+            counts: dict[int, np.ndarray] = {}
+            for g in got:
+                counts.update(g["counts"])
+            self._swap_round(s, counts)
             self._walk(count=s >= self.warmup_steps)
 
-    def _pad_cutoffs(self) -> None:
-        top = max(sim.cutoff for sim in self.sims)
-        for sim in self.sims:
+    def _pad_cutoffs(self, top: int) -> None:
+        self._padded = True
+        for sim in self.local_sims:
             if sim.cutoff < top:
                 conf = sim.configuration()
                 conf["ops"] = np.concatenate([conf["ops"], np.full(top - sim.cutoff, -1, dtype=np.int32)])
                 sim.set_configuration(conf)
 
-    def _swap_round(self, s: int) -> None:
+    def _swap_round(self, s: int, counts: dict[int, np.ndarray]) -> None:
+        """Decide every pair of this round (identically on all members: same counts, same stream), then
+        move the configurations of the accepted pairs (across members with :meth:`LadderTeam.sendrecv`,
+        pairs in increasing order)."""
         st = self.state
         measuring = s >= self.warmup_steps
         tried = st["attempted"] if measuring else st["warmup_attempted"]
         took = st["accepted"] if measuring else st["warmup_accepted"]
         first = (s // self.every - 1) % 2
+        accepted = []
         for i in range(first, self.m - 1, 2):
-            a, b = self.sims[i], self.sims[i + 1]
-            log_r = swap_log_ratio(self.couplings[i], self.couplings[i + 1], a.group_op_counts(),
-                                   b.group_op_counts())
+            log_r = swap_log_ratio(self.couplings[i], self.couplings[i + 1], counts[i], counts[i + 1])
             u = float(draw_doubles(st["rng"], 1)[0])
             tried[i] += 1
             if log_r >= 0.0 or u < math.exp(log_r):
                 took[i] += 1
+                accepted.append(i)
+                st["labels"][i], st["labels"][i + 1] = st["labels"][i + 1], st["labels"][i]
+        for i in accepted:
+            a, b = self.sims.get(i), self.sims.get(i + 1)
+            if a is not None and b is not None:
                 conf_a, conf_b = a.configuration(), b.configuration()
                 a.set_configuration(conf_b)
                 b.set_configuration(conf_a)
-                st["labels"][i], st["labels"][i + 1] = st["labels"][i + 1], st["labels"][i]
+            elif a is not None:
+                a.set_configuration(self.team.sendrecv(a.configuration(), self.owner[i + 1]))
+            elif b is not None:
+                b.set_configuration(self.team.sendrecv(b.configuration(), self.owner[i]))
 
     def _walk(self, count: bool) -> None:
         st = self.state

@@ -16,10 +16,18 @@ index.  To hide the up-to-one-chunk answer delay, a worker asks for its next uni
 one ("prefetch"); such a request is granted only while at least K units are queued, so that near the
 end no unit waits behind another one while some rank is idle.  Everything sent by rank 0 uses ``isend``
 (it never blocks on a busy worker); all waits are ``Iprobe`` polls with short sleeps, so signals are
-handled promptly and idle ranks do not spin.  Only standard point-to-point calls and one ``bcast`` are
-used (``send/isend/recv/Iprobe/bcast``, pickled objects).
+handled promptly and idle ranks do not spin.  The farm itself uses only standard point-to-point calls and
+one ``bcast`` (``send/isend/recv/Iprobe/bcast``, pickled objects); ladder teams add ``Create_group``,
+``allgather`` and ``sendrecv`` on their own communicators.
 
-Files: each task file is written only by the rank that runs the task (an exchange ladder by one rank);
+Exchange ladders: a ladder of M chains runs side by side on ``p = team_size(M, K)`` ranks
+(:mod:`qmc.ladder_team`).  Rank 0 keeps the queue order: waiting workers are answered by
+:meth:`_Coordinator._dispatch`; when the front unit is a ladder it waits until p ranks wait for work (rank 0
+counts when it has no unit of its own), then sends each of them ("team", unit, ranks); the team makes its
+own communicator (``Create_group``, collective over its members only) and each member reports the
+outcomes of its chains.  Prefetching is granted for single tasks only.
+
+Files: each task file is written only by the rank that runs the task (a ladder's by the rank of its block);
 ``index.json`` and ``run.log`` only by rank 0 (workers ship their log lines with their reports).  The
 index is rewritten at most every :data:`INDEX_INTERVAL` seconds while running, and at the end.
 
@@ -40,7 +48,8 @@ from collections import deque
 from dataclasses import dataclass, field
 from typing import Any
 
-from qmc.exchange import run_unit, work_units
+from qmc.exchange import is_ladder, run_unit, work_units
+from qmc.ladder_team import form_team, team_size
 from qmc.runner import RunPlan, RunReport, TaskOutcome, task_weight, update_index
 from qmc.storage import now_iso, write_index
 
@@ -211,6 +220,7 @@ class _Coordinator:
         self.units = [units[i] for i in order]
         self.queue: deque[int] = deque(range(len(self.units)))
         self.inflight: dict[int, set[int]] = {r: set() for r in range(1, world.size)}
+        self.idle: list[int] = []  # workers whose request for work is not answered yet, oldest first
         self.finished: set[int] = set()
         self.previous: dict[str, dict[str, Any]] = {}  # index entries before "running"
         self.outcomes: list[TaskOutcome] = []
@@ -268,6 +278,11 @@ class _Coordinator:
         if len(self.sends) > 64:
             self.sends = [r for r in self.sends if not r.test()[0]]
 
+    def _members(self, idx: int) -> int:
+        """Ranks a unit runs on: 1 for a single task, :func:`qmc.ladder_team.team_size` for a ladder."""
+        unit = self.units[idx]
+        return team_size(len(unit), self.world.size) if is_ladder(unit) else 1
+
     def _give(self, rank: int) -> None:
         idx = self.queue.popleft()
         unit = self.units[idx]
@@ -277,20 +292,52 @@ class _Coordinator:
         self.stats.units_by_rank[rank] = self.stats.units_by_rank.get(rank, 0) + 1
         self._send(("unit", idx, unit), rank, TAG_WORK)
 
+    def _give_team(self, ranks: list[int]) -> int:
+        """Hand the ladder at the front of the queue to ``ranks`` (rank 0 among them runs its part itself
+        after this returns); returns its unit index."""
+        idx = self.queue.popleft()
+        unit = self.units[idx]
+        self._mark_running(unit)
+        self.stats.handed_out += 1
+        for r in ranks:
+            self.stats.units_by_rank[r] = self.stats.units_by_rank.get(r, 0) + 1
+            if r != 0:
+                self.inflight[r].add(idx)
+                self._send(("team", idx, unit, list(ranks)), r, TAG_WORK)
+        self.log.info("exchange ladder %s (%d chains) on ranks %s", unit[0].exchange_group, len(unit),
+                      ", ".join(map(str, ranks)))
+        return idx
+
+    def _dispatch(self) -> None:
+        """Answer the waiting workers: the next unit, a place in a ladder's team once enough of them wait
+        (the queue order is kept: a ladder at the front holds back the units behind it), or finish."""
+        while self.idle:
+            if self.stopping or not self.queue:
+                for r in self.idle:
+                    self._send((_FINISH,), r, TAG_WORK)
+                    self.finished.add(r)
+                self.idle.clear()
+                return
+            need = self._members(self.queue[0])
+            if need == 1:
+                self._give(self.idle.pop(0))
+            elif len(self.idle) >= need:
+                ranks = sorted(self.idle[:need])
+                del self.idle[:need]
+                self._give_team(ranks)
+            else:
+                return
+
     def _handle(self, rank: int, msg: tuple) -> None:
         kind = msg[0]
         if kind == "req":
-            prefetch = bool(msg[1])
-            if self.stopping or not self.queue:
-                if prefetch:
-                    self._send((_NONE,), rank, TAG_WORK)
-                else:
-                    self._send((_FINISH,), rank, TAG_WORK)
-                    self.finished.add(rank)
-            elif prefetch and len(self.queue) < self.world.size:
-                self._send((_NONE,), rank, TAG_WORK)
+            if not msg[1]:  # waiting for work: answered by _dispatch
+                self.idle.append(rank)
+            elif (not self.stopping and len(self.queue) >= self.world.size
+                  and self._members(self.queue[0]) == 1):
+                self._give(rank)  # prefetch: granted only for single tasks while the queue is long
             else:
-                self._give(rank)
+                self._send((_NONE,), rank, TAG_WORK)
         elif kind == "done":
             _, idx, outcomes, lines = msg
             self.inflight[rank].discard(idx)
@@ -325,6 +372,7 @@ class _Coordinator:
             for r in range(1, self.world.size):
                 if r not in self.finished:
                     self._send(self.stop_reason, r, TAG_STOP)
+        self._dispatch()
         self._write_index()
         self.stats.coordinator_seconds += time.perf_counter() - t0
 
@@ -339,24 +387,42 @@ class _Coordinator:
         # unit of its own (they come right after the set-up broadcast; the wait is bounded all the same)
         wait, t0 = _POLL_MIN, time.monotonic()
         while (self.queue and not self.stopping and time.monotonic() - t0 < _FIRST_WAIT
-               and any(not self.inflight[r] and r not in self.finished for r in self.inflight)):
+               and any(not self.inflight[r] and r not in self.finished and r not in self.idle
+                       for r in self.inflight)):
             self.serve()
             wait = _poll_sleep(wait)
         wait = _POLL_MIN
         while True:
             self.serve()
             if not self.stopping and self.queue:
-                idx = self.queue.popleft()
-                unit = self.units[idx]
-                self._mark_running(unit)
-                self.stats.units_by_rank[0] = self.stats.units_by_rank.get(0, 0) + 1
-                outcomes = run_unit(unit, self.plan.run_dir, stop_flag=self.flag, progress=sink,
-                                    logger=self.log, deadline=self.deadline,
-                                    config_text=self.plan.config.text, config_fingerprint=fp)
-                self._record(outcomes, 0)
-                wait = _POLL_MIN
-                continue
-            if len(self.finished) == self.world.size - 1:
+                need = self._members(self.queue[0])
+                if need == 1:
+                    idx = self.queue.popleft()
+                    unit = self.units[idx]
+                    self._mark_running(unit)
+                    self.stats.units_by_rank[0] = self.stats.units_by_rank.get(0, 0) + 1
+                    outcomes = run_unit(unit, self.plan.run_dir, stop_flag=self.flag, progress=sink,
+                                        logger=self.log, deadline=self.deadline,
+                                        config_text=self.plan.config.text, config_fingerprint=fp)
+                    self._record(outcomes, 0)
+                    wait = _POLL_MIN
+                    continue
+                if len(self.idle) + 1 >= need:  # a ladder's team with rank 0 in it
+                    ranks = [0, *sorted(self.idle[:need - 1])]
+                    del self.idle[:need - 1]
+                    idx = self._give_team(ranks)
+                    team = form_team(self.comm, ranks, tag=idx)
+                    try:
+                        outcomes = run_unit(self.units[idx], self.plan.run_dir, stop_flag=self.flag,
+                                            progress=sink, logger=self.log, deadline=self.deadline,
+                                            config_text=self.plan.config.text, config_fingerprint=fp,
+                                            team=team)
+                    finally:
+                        team.close()
+                    self._record(outcomes, 0)
+                    wait = _POLL_MIN
+                    continue
+            elif len(self.finished) == self.world.size - 1:
                 break
             wait = _poll_sleep(wait)
         t0 = time.perf_counter()
@@ -478,6 +544,18 @@ class _Worker:
                 msg = self.receive()
                 if msg[0] == _FINISH:
                     break
+            if msg[0] == "team":  # a block of an exchange ladder, side by side with the other ranks
+                _, idx, unit, ranks = msg
+                team = form_team(self.comm, ranks, tag=idx)
+                try:
+                    outcomes = run_unit(unit, setup["run_dir"], stop_flag=self.flag, progress=sink,
+                                        logger=self.log, deadline=setup["deadline"],
+                                        config_text=setup["config_text"],
+                                        config_fingerprint=setup["fingerprint"], team=team)
+                finally:
+                    team.close()
+                self.send(("done", idx, [_outcome_dict(o) for o in outcomes], self.buffer.take()))
+                continue
             _, idx, unit = msg
             if self.stopped():
                 self.send(("unstarted", idx))

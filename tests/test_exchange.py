@@ -151,7 +151,7 @@ def test_first_steps_equal_an_independent_chain(tmp_path):
     _, unit = ladder_of(write_config(tmp_path, warmup=100, measure=400, bins=20, every=50))
     lad = Ladder(unit)
     lad.advance(40)
-    for t, got in zip(unit, lad.sims, strict=True):
+    for t, got in zip(unit, lad.local_sims, strict=True):
         s = t.sampling
         sim = Simulation(build_model(t), t.beta, warmup_steps=s.warmup_steps, measure_steps=s.measure_steps,
                          bins=s.bins, seed_words=stream_seed(t.seed, t.seed_key))
@@ -184,8 +184,8 @@ def test_cutoffs_are_equal_after_the_warm_up(tmp_path):
     lad = Ladder(unit)
     lad.advance(199)
     lad.advance(1)
-    assert len({sim.cutoff for sim in lad.sims}) == 1
-    assert max(sim.n_ops for sim in lad.sims) < lad.sims[0].cutoff
+    assert len({sim.cutoff for sim in lad.local_sims}) == 1
+    assert max(sim.n_ops for sim in lad.local_sims) < lad.local_sims[0].cutoff
 
 
 def test_round_trips_on_scripted_walks(tmp_path):

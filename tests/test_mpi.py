@@ -161,6 +161,9 @@ def test_bins_identical_serial_n1_n2(tmp_path, template):
     if template is EXCHANGE:
         d = read_task(task_path(tmp_path / "n2", load_config(config).tasks()[0].task_id))
         assert d.exchange is not None and d.exchange["parameter"] == "Q"
+        # each 3-chain ladder ran side by side on both ranks: chains 0..1 on rank 0, chain 2 on rank 1
+        assert log.count("on ranks 0, 1") == 2
+        assert "rank 1: (at" in log and "here chains 2..2 of 3 (team member 1 of 2)" in log
 
 
 def test_without_mpi4py_rank0_runs_everything_serially(tmp_path):
@@ -228,28 +231,34 @@ def test_sigterm_checkpoints_every_rank_and_resumes_bit_identically(tmp_path):
     config = write(tmp_path, EXCHANGE, "c.toml", measure=60000, bins=60)
     cfg = load_config(config)
     units = work_units(cfg.tasks())
-    assert len(units) == 2  # two ladders: one per rank
+    assert len(units) == 2  # two 3-chain ladders, each side by side on both ranks, one after the other
     run_dir = tmp_path / "run"
     proc = start(config, run_dir, 2)
-    ids = [t.task_id for u in units for t in u]
+    first = [t.task_id for t in units[0]]
     t0 = time.monotonic()
-    while time.monotonic() - t0 < 120:  # both ladders (so both ranks) have started: their first files
+    while time.monotonic() - t0 < 120:  # the first ladder has started on both ranks: its first files
         assert proc.poll() is None, proc.communicate()[1]
-        if _started(run_dir, ids):
+        if _started(run_dir, first):
             break
         time.sleep(0.05)
     else:
-        pytest.fail("the ladders did not start")
+        pytest.fail("the first ladder did not start")
     time.sleep(0.5)  # a ladder takes several seconds: stop it well inside
     proc.send_signal(signal.SIGTERM)  # to mpiexec, which forwards it to every rank
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 0, err
     assert "SIGTERM" in err and "unfinished" in err
     index = load_index(run_dir)
-    for t in cfg.tasks():
+    steps = set()
+    for t in units[0]:  # chains 0, 1 written by rank 0, chain 2 by rank 1: all at the same step
         d = read_task(task_path(run_dir, t.task_id))
         assert d.status == "stopped" and 0 < d.steps_done < d.steps_total, (t.task_id, d.status)
         assert index["tasks"][t.task_id]["status"] == "stopped"
+        steps.add(d.steps_done)
+    assert len(steps) == 1
+    for t in units[1]:
+        assert not task_path(run_dir, t.task_id).exists()
+        assert index["tasks"][t.task_id]["status"] == "pending"
     # resume with two ranks until done: bit-identical to uninterrupted in-memory ladders
     proc = qmc_run(config, run_dir, 2)
     assert proc.returncode == 0, proc.stderr
@@ -259,4 +268,5 @@ def test_sigterm_checkpoints_every_rank_and_resumes_bit_identically(tmp_path):
             d = read_task(task_path(run_dir, t.task_id))
             got = np.column_stack([d.bins[n] for n in d.bin_names])
             assert d.status == "done" and np.array_equal(got, ref), t.task_id
-            assert [s["ended"] for s in d.provenance["sessions"]] == ["stopped", "done"]
+            ended = ["stopped", "done"] if unit is units[0] else ["done"]
+            assert [s["ended"] for s in d.provenance["sessions"]] == ended
