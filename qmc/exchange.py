@@ -43,6 +43,7 @@ from qmc.exchange_ladder import (
     GROUP_STATE_KEYS,
     Ladder,
     LadderError,
+    chain_costs,
     check_ladder_models,
     exchange_seed_key,
     ladder_tasks,
@@ -228,7 +229,8 @@ class _GroupRun:
         self.config_text, self.config_fp = config_text, config_fp
         self.interval = float(checkpoint_seconds or tasks[0].sampling.checkpoint_seconds)
         self.team = team
-        self.local = chain_blocks(len(tasks), team.size)[team.member]
+        self.models = [build_model(t) for t in tasks]
+        self.local = chain_blocks(len(tasks), team.size, chain_costs(tasks, self.models))[team.member]
         self.members = [_Member(tasks[i], run_dir) for i in self.local]
         self.ladder: Ladder | None = None
         self.stop_reason = ""
@@ -296,7 +298,7 @@ class _GroupRun:
 
     def _load(self) -> bool:
         """Create or restore the ladder (all members agree on the step); False when every file says done."""
-        models = [build_model(t) for t in self.tasks]
+        models = self.models
         found: list[tuple[Any, dict] | None] = []
         cands: list[dict[int, tuple[dict, dict]]] = []
 
@@ -332,7 +334,6 @@ class _GroupRun:
                                     f"disagree about the ladder state at step {step}; move them away to "
                                     "start over", str(self.members[0].path.parent))
         self._agree(lambda: self._start(models, found, cands, step))
-        self.models = models
         for mem in self.members:
             mem.session = session_entry(now_iso(), self.ladder.steps_done)
             mem.sessions.append(mem.session)
@@ -593,8 +594,18 @@ def run_group(
     log = logger if logger is not None else logging.getLogger("qmc.run")
     sink = progress if progress is not None else NullProgress()
     ordered = ladder_tasks(tasks)
-    run = _GroupRun(ordered, Path(run_dir), stop_flag, sink, log, deadline, config_text, config_fingerprint,
-                    checkpoint_seconds, team if team is not None else SoloTeam())
+    team = team if team is not None else SoloTeam()
+    try:
+        run = _GroupRun(ordered, Path(run_dir), stop_flag, sink, log, deadline, config_text,
+                        config_fingerprint, checkpoint_seconds, team)
+    except Exception as exc:  # the models cannot be built: the same on every member, nothing written
+        message = str(exc) if isinstance(exc, UserError) else f"{type(exc).__name__}: {exc}"
+        log.error("exchange group %s failed: %s", ordered[0].exchange_group, message)
+        sink.task_finished("failed")
+        local = chain_blocks(len(ordered), team.size)[team.member]
+        return [TaskOutcome(ordered[i].task_id, "failed", message, 0, ordered[i].sampling.bins, 0,
+                            ordered[i].sampling.warmup_steps + ordered[i].sampling.measure_steps, 0.0,
+                            str(task_path(Path(run_dir), ordered[i].task_id))) for i in local]
     try:
         status = run.execute()
         message = run.stop_reason if status == "stopped" else ""

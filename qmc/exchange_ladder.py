@@ -39,7 +39,7 @@ from qmc.ladder_team import LadderTeam, SoloTeam, chain_blocks
 from qmc.rng import draw_doubles, stream_seed
 from qmc.simulation import Simulation
 
-__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "exchange_seed_key",
+__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "chain_costs", "exchange_seed_key",
            "GROUP_STATE_KEYS"]
 
 GROUP_STATE_KEYS = ("rng", "labels", "direction", "round_trips", "attempted", "accepted",
@@ -67,6 +67,16 @@ def ladder_tasks(tasks: Sequence[Task]) -> list[Task]:
     if len(set(values)) != len(values):
         raise UserError(f"exchange group {group} has the value {name} = {values} twice", ordered[0].source)
     return ordered
+
+
+def chain_costs(tasks: Sequence[Task], models: Sequence[CompiledModel]) -> list[float]:
+    """Relative cost of a Monte Carlo step of each chain: beta W_tot = beta sum_t C_t / 2^{k_t}, which sets
+    the length of the operator string (used to balance a ladder's blocks over its team)."""
+    out = []
+    for t, m in zip(tasks, models, strict=True):
+        k = np.diff(np.asarray(m.term_start)).astype(np.int64)
+        out.append(max(float(t.beta) * float(np.sum(np.asarray(m.term_coupling) / 2.0 ** k)), 1e-300))
+    return out
 
 
 def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) -> np.ndarray:
@@ -137,7 +147,7 @@ class Ladder:
         s = t0.sampling
         self.m = len(self.tasks)
         self.team: LadderTeam = team if team is not None else SoloTeam()
-        self.blocks = chain_blocks(self.m, self.team.size)
+        self.blocks = chain_blocks(self.m, self.team.size, chain_costs(self.tasks, self.models))
         self.local = self.blocks[self.team.member]
         self.owner = [r for r, b in enumerate(self.blocks) for _ in b]
         self.every = int(s.exchange_every)

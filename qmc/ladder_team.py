@@ -78,17 +78,56 @@ class CommTeam:
             self.comm = None
 
 
-def chain_blocks(m: int, size: int) -> list[range]:
-    """Split chain positions 0..m-1 into ``size`` contiguous blocks whose lengths differ by at most one
-    (the first ``m % size`` blocks are one longer); needs 1 <= size <= m."""
+def chain_blocks(m: int, size: int, costs: Sequence[float] | None = None) -> list[range]:
+    """Split chain positions 0..m-1 into ``size`` contiguous non-empty blocks (needs 1 <= size <= m).
+
+    Without ``costs`` the block lengths differ by at most one (the first ``m % size`` blocks are one
+    longer).  With ``costs`` (the relative cost of a step of each chain, e.g. beta times the total
+    operator weight) the largest block cost is as small as possible: the smallest achievable maximum T is
+    found among the sums of contiguous runs, and blocks are filled from the left up to T while leaving one
+    chain for each block still to come.  Deterministic: every team member computes the same blocks.
+    """
     if not 1 <= size <= m:
         raise ValueError(f"a ladder of {m} chains cannot be split over {size} team members")
-    base, extra = divmod(m, size)
+    if costs is None:
+        base, extra = divmod(m, size)
+        out, start = [], 0
+        for r in range(size):
+            n = base + (1 if r < extra else 0)
+            out.append(range(start, start + n))
+            start += n
+        return out
+    c = [float(x) for x in costs]
+    if len(c) != m or any(not x > 0.0 for x in c):
+        raise ValueError("chain costs must be positive, one per chain")
+
+    def blocks_needed(limit: float) -> int:
+        n, acc = 1, 0.0
+        for x in c:
+            if acc + x > limit:
+                n, acc = n + 1, x
+            else:
+                acc += x
+        return n
+
+    candidates = sorted({sum(c[i:j]) for i in range(m) for j in range(i + 1, m + 1) if sum(c[i:j]) >= max(c)})
+    lo, hi = 0, len(candidates) - 1
+    while lo < hi:  # smallest limit that needs at most `size` blocks
+        mid = (lo + hi) // 2
+        if blocks_needed(candidates[mid]) <= size:
+            hi = mid
+        else:
+            lo = mid + 1
+    limit = candidates[lo]
     out, start = [], 0
     for r in range(size):
-        n = base + (1 if r < extra else 0)
-        out.append(range(start, start + n))
-        start += n
+        stop, acc = start, 0.0
+        last = m - (size - r - 1)  # leave one chain for every block still to come
+        while stop < last and (stop == start or acc + c[stop] <= limit or r == size - 1):
+            acc += c[stop]
+            stop += 1
+        out.append(range(start, stop))
+        start = stop
     return out
 
 

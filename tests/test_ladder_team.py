@@ -158,3 +158,21 @@ def test_a_failing_chain_fails_every_member(tmp_path, monkeypatch):
     flat = [o for part in out for o in part]
     assert {o.status for o in flat} == {"failed"}
     assert all("injected failure" in o.message for o in flat)
+
+
+def test_blocks_balance_the_chains_costs():
+    # contiguous blocks minimising the largest block cost (checked against all splits by brute force)
+    import itertools
+
+    rng = np.random.default_rng(5)
+    for _ in range(200):
+        m = int(rng.integers(1, 9))
+        size = int(rng.integers(1, m + 1))
+        costs = list(rng.uniform(0.5, 3.0, m))
+        blocks = chain_blocks(m, size, costs)
+        assert [i for b in blocks for i in b] == list(range(m)) and all(len(b) > 0 for b in blocks)
+        got = max(sum(costs[i] for i in b) for b in blocks)
+        best = min(max(sum(costs[a:b]) for a, b in zip((0, *cuts), (*cuts, m), strict=True))
+                   for cuts in itertools.combinations(range(1, m), size - 1))
+        assert got == pytest.approx(best, rel=1e-12)
+    assert [len(b) for b in chain_blocks(4, 2, [1.0, 1.0, 1.0, 3.0])] == [3, 1]
