@@ -19,8 +19,8 @@ import tempfile
 import time
 
 import numpy as np
+from _cases import CASES, add_case_arguments, case_model, selected_cases
 
-from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 from qmc.rng import stream_seed
 from qmc.simulation import Simulation
 
@@ -28,13 +28,9 @@ __all__ = ["measure_case", "main"]
 
 
 def make_model(case: str, L: int):
-    lat = build_lattice("square", (L, L))
-    if case == "square":
-        return compile_model(lat, [HeisenbergTerm(bonds="nn", coupling=1.0)])
-    if case == "jq2":
-        return compile_model(lat, [HeisenbergTerm(bonds="nn", coupling=0.05),
-                                   ProjectorProductTerm(shape="plaquette-pair", coupling=1.0)])
-    raise SystemExit(f"unknown case {case!r}")
+    if case not in CASES:
+        raise SystemExit(f"unknown case {case!r}")
+    return case_model(L, *CASES[case])
 
 
 def measure_case(case: str, L: int, beta: float, steps: int, warmup: int) -> dict:
@@ -84,18 +80,14 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
 
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    p.add_argument("--case", default="all", choices=["square", "jq2", "all"])
-    p.add_argument("--L", type=int, default=32)
-    p.add_argument("--beta", type=float, default=32.0)
-    p.add_argument("--steps", type=int, default=200)
-    p.add_argument("--warmup", type=int, default=300)
+    add_case_arguments(p)
     a = p.parse_args()
     with tempfile.TemporaryDirectory() as cache:
         cold, cold_whole = startup_seconds(cache)
         warm, warm_whole = startup_seconds(cache)
     print(json.dumps({"startup_cold_seconds": cold, "startup_cold_process_seconds": cold_whole,
                       "startup_cached_seconds": warm, "startup_cached_process_seconds": warm_whole}))
-    for case in (["square", "jq2"] if a.case == "all" else [a.case]):
+    for case in selected_cases(a.case):
         print(json.dumps(measure_case(case, a.L, a.beta, a.steps, a.warmup)))
     np.seterr(all="ignore")
 

@@ -19,6 +19,11 @@ One pass over the string does three things per slot:
    numbers (net displacement of up spins along each direction),
 3. performs the diagonal update at that slot and appends the resulting operator's bond vertices to the
    linked vertex list (leg layout in :mod:`qmc.engine.vertices`).
+
+Implementation notes (measured, see benchmarks/c_compare.py): the sweep is bound by data-dependent branches,
+so the loop flips are applied without a branch (``op ^= vflip << a``) and the insertion test ORs the bond
+checks instead of leaving early; the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit
+off-diagonal mask), which stops LLVM from vectorising the one-to-three-bond loops behind run-time checks.
 """
 
 from __future__ import annotations
@@ -71,14 +76,15 @@ def diagonal_sweep(
     for p in range(M):
         op = ops[p]
         t = 0
+        b0 = 0
+        k = 0
         if op >= 0:
             t = op >> 3
             b0 = term_start[U(t)]
-            k = term_start[U(t + 1)] - b0
-            for a in range(k):
-                if vflip[U(v_old + a)] != 0:
-                    op ^= 1 << a
-                    vflip[U(v_old + a)] = 0
+            k = (term_start[U(t + 1)] - b0) & 3  # k <= 3: tells LLVM the bond loops are short
+            for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
+                op ^= np.int32(vflip[U(v_old + a)]) << a
+                vflip[U(v_old + a)] = 0
             v_old += k
             n_old += 1
             group_counts[U(term_group[U(t)])] += 1
@@ -124,20 +130,16 @@ def diagonal_sweep(
             if r - t >= alias_prob[U(t)]:
                 t = alias_idx[U(t)]
             b0 = term_start[U(t)]
-            k = term_start[U(t + 1)] - b0
-            allowed = True
-            for a in range(k):
+            k = (term_start[U(t + 1)] - b0) & 3
+            blocked = False
+            for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
                 b = term_bonds[U(b0 + a)]
-                if spins[U(bond_sites[U(b), 0])] == spins[U(bond_sites[U(b), 1])]:
-                    allowed = False
-                    break
-            if not allowed:
+                blocked |= spins[U(bond_sites[U(b), 0])] == spins[U(bond_sites[U(b), 1])]
+            if blocked:
                 continue
             ops[p] = t << 3
             n += 1
-        # append the bond vertices of the operator now at slot p (term t)
-        b0 = term_start[U(t)]
-        k = term_start[U(t + 1)] - b0
+        # append the bond vertices of the operator now at slot p (term t: bonds b0 .. b0 + k - 1)
         for a in range(k):
             b = term_bonds[U(b0 + a)]
             i = bond_sites[U(b), 0]

@@ -1,0 +1,187 @@
+"""Engine speed against the reference C implementation of the same algorithm (benchmarks/c_reference).
+
+Usage:  python benchmarks/c_compare.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
+                                       [--warmup 300] [--repeats 3] [--seed 1] [--cc cc]
+
+Compiles ``c_reference/sse_ref.c`` with ``<cc> -O3 -march=native`` into a temporary directory (if there is
+no C compiler it prints a JSON note and exits with status 0), then for each case runs ``--repeats``
+independent chains of the C program and of the numba engine (:class:`qmc.simulation.Simulation`, with
+all its measurements, as in benchmarks/throughput.py) and prints one JSON object per case:
+
+- ``c_cpu_ns_per_slot_per_step`` / ``numba_cpu_ns_per_slot_per_step``: CPU time (``time.process_time``
+  for numba, ``CLOCK_PROCESS_CPUTIME_ID`` inside the C program) of the measured steps divided by
+  steps x cutoff, the minimum over repeats (the machine is shared), with the spread (max/min) of repeats;
+- ``ratio_numba_over_c``: the ratio of those minima (also per operator, since the two cutoffs differ);
+- the sweep / loop split of one step for both (for numba the two kernels are called one at a time from
+  Python, so the split includes a few microseconds of dispatch per call);
+- the energy per site of both, each the mean over the repeats with its error bar (bin errors combined
+  over the independent chains), their difference in combined error bars, and ``energies_agree``:
+  |difference| < 5 error bars or < 2e-3 relative (independent Markov chains; a loose check that the two
+  programs sample the same distribution, not a precision test).
+
+Canonical cases (the same as benchmarks/throughput.py): square-lattice Heisenberg 32x32 at beta = 32
+(J = 1), and J-Q2 32x32 at beta = 32 with J = 0.05, Q = 1.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+from _cases import CASES, add_case_arguments, case_model, selected_cases
+
+from qmc.engine.diagonal import diagonal_sweep
+from qmc.engine.loops import loop_update
+from qmc.rng import stream_seed
+from qmc.simulation import Simulation
+
+__all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "main"]
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+SOURCE = os.path.join(HERE, "c_reference", "sse_ref.c")
+N_BINS = 20
+
+
+def compile_reference(cc: str, workdir: str) -> str:
+    """Path of the compiled reference program (``cc -O3 -march=native``); raises CalledProcessError."""
+    exe = os.path.join(workdir, "sse_ref")
+    subprocess.run([cc, "-O3", "-march=native", "-std=c99", "-o", exe, SOURCE, "-lm"],
+                   check=True, capture_output=True, text=True)
+    return exe
+
+
+def run_c(exe: str, L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int) -> dict:
+    """One run of the C program (its JSON output as a dict)."""
+    out = subprocess.run([exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(steps), str(seed)],
+                         check=True, capture_output=True, text=True)
+    return json.loads(out.stdout)
+
+
+def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
+    """CPU seconds of the diagonal sweep and of the loop update over ``steps`` extra (unmeasured) steps,
+    each kernel called directly so that the two can be timed separately."""
+    t_sweep = t_loop = 0.0
+    for _ in range(steps):
+        c0 = time.process_time()
+        n, n_vert = diagonal_sweep(
+            sim.ops, sim.vflip, sim.spins, sim.links, sim.first, sim.last, sim.counters[0],
+            sim.beta_wtot, sim.alias_prob, sim.alias_idx,
+            sim.term_start, sim.term_bonds, sim.term_group, sim.bond_sites, sim.bond_disp, sim.phase,
+            sim.rng, sim._group_counts, sim._sweep_out,
+        )
+        c1 = time.process_time()
+        sim.counters[0] = n
+        loop_update(sim.links, sim.vflip, n_vert, sim.spins, sim.first, sim.rng)
+        c2 = time.process_time()
+        t_sweep += c1 - c0
+        t_loop += c2 - c1
+    return t_sweep, t_loop
+
+
+def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int,
+              split_steps: int) -> dict:
+    """One numba chain: warm-up, ``steps`` measured steps (CPU-timed), then the kernel split."""
+    model = case_model(L, J, Q)
+    bins = max(b for b in range(1, min(N_BINS, steps) + 1) if steps % b == 0)
+    sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=bins,
+                     seed_words=stream_seed(seed, f"c-compare-{L}-{beta}-{J}-{Q}"))
+    sim.advance(warmup)
+    c0 = time.process_time()
+    rows = sim.advance(steps)
+    cpu = time.process_time() - c0
+    energy = rows[:, sim.bin_names.index("energy")]
+    n_ops = rows[:, sim.bin_names.index("n_ops")]
+    err = float(np.std(energy, ddof=1) / np.sqrt(len(energy))) if len(energy) > 1 else 0.0
+    t_sweep, t_loop = _kernel_split(sim, split_steps)
+    return {
+        "cutoff": sim.cutoff, "mean_n": float(np.mean(n_ops)),
+        "energy_per_site": float(np.mean(energy)), "energy_per_site_err": err,
+        "cpu_ns_per_slot_per_step": cpu / steps / sim.cutoff * 1e9,
+        "cpu_ns_per_op_per_step": cpu / steps / max(float(np.mean(n_ops)), 1.0) * 1e9,
+        "sweep_cpu_ns_per_slot": t_sweep / split_steps / sim.cutoff * 1e9,
+        "loop_cpu_ns_per_slot": t_loop / split_steps / sim.cutoff * 1e9,
+    }
+
+
+def _combine(runs: list[dict]) -> tuple[float, float]:
+    """Mean energy over independent runs and its error bar."""
+    e = np.array([r["energy_per_site"] for r in runs])
+    s = np.array([r["energy_per_site_err"] for r in runs])
+    return float(np.mean(e)), float(np.sqrt(np.sum(s**2)) / len(runs))
+
+
+def _summary(runs: list[dict], prefix: str) -> dict:
+    out = {}
+    for key in ("cpu_ns_per_slot_per_step", "cpu_ns_per_op_per_step", "sweep_cpu_ns_per_slot",
+                "loop_cpu_ns_per_slot"):
+        vals = [r[key] for r in runs]
+        out[f"{prefix}_{key}"] = min(vals)
+        if key == "cpu_ns_per_slot_per_step":
+            out[f"{prefix}_{key}_all"] = vals
+            out[f"{prefix}_spread_max_over_min"] = max(vals) / min(vals)
+    out[f"{prefix}_cutoff"] = runs[0]["cutoff"]
+    out[f"{prefix}_mean_n"] = float(np.mean([r["mean_n"] for r in runs]))
+    e, err = _combine(runs)
+    out[f"{prefix}_energy_per_site"] = e
+    out[f"{prefix}_energy_per_site_err"] = err
+    return out
+
+
+def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, repeats: int,
+                 seed: int) -> dict:
+    """Timings and energies of the C program and the numba engine on one case (see module docstring)."""
+    J, Q = CASES[case]
+    split_steps = max(10, steps // 4)
+    c_runs, nb_runs = [], []
+    for r in range(repeats):  # interleaved, so that a burst of load on the machine hits both
+        c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r))
+        nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps))
+    out = {"case": case, "L": L, "beta": beta, "J": J, "Q": Q, "warmup": warmup, "steps": steps,
+           "repeats": repeats}
+    out.update(_summary(c_runs, "c"))
+    out.update(_summary(nb_runs, "numba"))
+    out["ratio_numba_over_c"] = out["numba_cpu_ns_per_slot_per_step"] / out["c_cpu_ns_per_slot_per_step"]
+    out["ratio_numba_over_c_per_op"] = out["numba_cpu_ns_per_op_per_step"] / out["c_cpu_ns_per_op_per_step"]
+    out["ratio_sweep"] = out["numba_sweep_cpu_ns_per_slot"] / out["c_sweep_cpu_ns_per_slot"]
+    out["ratio_loop"] = out["numba_loop_cpu_ns_per_slot"] / out["c_loop_cpu_ns_per_slot"]
+    diff = out["numba_energy_per_site"] - out["c_energy_per_site"]
+    sigma = float(np.hypot(out["numba_energy_per_site_err"], out["c_energy_per_site_err"]))
+    out["energy_diff"] = diff
+    out["energy_diff_sigmas"] = diff / sigma if sigma > 0 else float("inf")
+    out["energies_agree"] = bool(abs(diff) < 5.0 * sigma or abs(diff) < 2e-3 * abs(out["c_energy_per_site"]))
+    return out
+
+
+def main() -> None:
+    p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    add_case_arguments(p)
+    p.add_argument("--repeats", type=int, default=3)
+    p.add_argument("--seed", type=int, default=1)
+    p.add_argument("--cc", default=os.environ.get("CC", "cc"))
+    a = p.parse_args()
+    if a.L < 4 or a.L % 2 or a.steps < 1 or a.repeats < 1 or a.warmup < 1:
+        raise SystemExit("need an even --L >= 4 and positive --steps, --warmup and --repeats")
+    if shutil.which(a.cc) is None:
+        print(json.dumps({"note": f"no C compiler ({a.cc!r} not found): comparison skipped"}))
+        return
+    with tempfile.TemporaryDirectory() as work:
+        try:
+            exe = compile_reference(a.cc, work)
+        except subprocess.CalledProcessError as err:
+            print(json.dumps({"note": "compiling the C reference failed: comparison skipped",
+                              "stderr": err.stderr[-2000:]}))
+            return
+        for case in selected_cases(a.case):
+            print(json.dumps(compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed)))
+            sys.stdout.flush()
+
+
+if __name__ == "__main__":
+    main()

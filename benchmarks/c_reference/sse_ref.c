@@ -1,0 +1,550 @@
+/*
+ * Reference C implementation of the project's SSE loop algorithm, used only as a speed yardstick for the
+ * numba engine (benchmarks/c_compare.py).  Single file, C99, no dependencies:
+ *
+ *     cc -O3 -march=native -o sse_ref sse_ref.c -lm
+ *     ./sse_ref L beta J Q warmup_steps measured_steps seed
+ *
+ * Model (periodic L x L square lattice, L even >= 4), written as H = E_const - sum_t C_t prod_a P_{i_a j_a}
+ * with P_ij = 1/4 - S_i.S_j:
+ *   - J > 0: one k = 1 term per nearest-neighbour bond (2N of them), C_t = J; E_const = J/4 * 2N;
+ *   - Q > 0: one k = 2 term per 2x2 plaquette and orientation (the two parallel bonds), C_t = Q (2N terms).
+ * The J-Q2 energy per site is therefore J/2 - <n>/(beta N).
+ *
+ * Algorithm (the same as qmc/engine): fixed-length operator string of M slots sampling
+ *     W = beta^n (M - n)! / M!  prod_p C_{t_p} / 2^{k_{t_p}};
+ * one Monte Carlo step = one diagonal sweep + one full loop decomposition.
+ *   - The diagonal sweep is fused: per slot it applies the loop flips of the previous step (vflip, one
+ *     byte per bond vertex), measures the propagated state (operators per group, staggered magnetisation
+ *     after every operator, winding), does the diagonal update (insert with probability
+ *     min(1, beta W_tot / (M - n)) if all bonds of the chosen term are antiparallel, the term chosen
+ *     uniformly within its kind and the kind by weight; remove a fully diagonal operator with probability
+ *     min(1, (M - n + 1) / (beta W_tot))) and appends the operator's bond vertices to the linked vertex
+ *     list.  Vertices are numbered compactly: a k-bond operator is k four-leg bond vertices.
+ *     Leg 4v + l: l = 0 site i below, 1 site j below, 2 site i above, 3 site j above.
+ *   - The loop update builds every deterministic singlet-projector loop (enter at leg l, leave at l ^ 1),
+ *     each leg visited once, flips each loop with probability 1/2 by toggling vflip of the vertices it
+ *     passes, and flips free sites with probability 1/2.
+ *   - Per measured step it also does the numba engine's equal-time measurements (uniform magnetisation,
+ *     S(Q + dq) from cos/sin tables, columnar dimer order parameter and its 64 x 64 histogram).
+ *
+ * Random numbers: xoshiro256** (Blackman and Vigna), doubles = top 53 bits * 2^-53; seeded by splitmix64.
+ *
+ * Differences from the numba engine (deliberate; each makes the C side slightly cheaper, not dearer):
+ * the term is chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no
+ * table) instead of by an alias table over all terms; per-term site pairs are stored together
+ * (tsite[t][a]) instead of term -> bond -> sites; k <= 2 is a compile-time bound; winding numbers are
+ * integer sums; seeding uses splitmix64 rather than numpy's SeedSequence.  Cutoff start and growth
+ * (1.2 beta W_tot + 16, then n + n/2 + 16 whenever fewer than n/3 slots are empty) are the engine's.
+ * Output: one JSON object.  CPU time (CLOCK_PROCESS_CPUTIME_ID) of the measured steps only.
+ */
+#define _POSIX_C_SOURCE 199309L
+#include <math.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#define KMAX 2
+#define HIST_BINS 64
+#define HIST_RANGE 0.25
+#define TWO_PI 6.283185307179586476925286766559
+
+/* ------------------------------------------------------------------------------------------ RNG */
+static inline uint64_t rotl(uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
+
+static inline double next_double(uint64_t *s)
+{
+    const uint64_t result = rotl(s[1] * 5, 7) * 9;
+    const uint64_t t = s[1] << 17;
+    s[2] ^= s[0];
+    s[3] ^= s[1];
+    s[1] ^= s[2];
+    s[0] ^= s[3];
+    s[2] ^= t;
+    s[3] = rotl(s[3], 45);
+    return (double)(result >> 11) * 0x1.0p-53;
+}
+
+static uint64_t splitmix64(uint64_t *x)
+{
+    uint64_t z = (*x += 0x9E3779B97F4A7C15ull);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
+    return z ^ (z >> 31);
+}
+
+/* ------------------------------------------------------------------------------------------ state */
+typedef struct {
+    int L, N, T, nJ, nQ;
+    double beta, J, Q, beta_wtot, wJ_tot, inv_wJ, inv_wQ;
+    /* model */
+    int8_t *phase;          /* [N] staggered sign */
+    uint8_t *term_k;        /* [T] bonds per term */
+    uint8_t *term_group;    /* [T] 0 = J, 1 = Q */
+    int32_t *tsite;         /* [T * KMAX * 2] sites (i, j) of each bond of each term */
+    uint8_t *tdir;          /* [T * KMAX] 0 = x bond, 1 = y bond (displacement +1 along it) */
+    double *cos_tab, *sin_tab; /* [2 * N] phase_i cos/sin(2 pi r_a / L) */
+    int32_t *vbs_bonds;     /* [2N * 2] */
+    int8_t *vbs_dir, *vbs_phase;
+    /* configuration and work arrays */
+    int M;                  /* cutoff */
+    int n;                  /* operators in the string */
+    int8_t *spins;          /* [N] +-1 */
+    int32_t *ops;           /* [M] -1 or (t << 3) | offmask */
+    uint8_t *vflip;         /* [M * KMAX] pending loop flips per bond vertex */
+    int32_t *links;         /* [4 * M * KMAX] */
+    int32_t *first, *last;  /* [N] */
+    int64_t hist[HIST_BINS * HIST_BINS];
+    uint64_t rng[4];
+} sse_t;
+
+typedef struct {
+    int n_old, ms_end;
+    int64_t group[2];
+    double sum_ms, sum_ms2, sum_ms4;
+    int wind[2];
+} sweep_out_t;
+
+static void *xcalloc(size_t n, size_t size)
+{
+    void *p = calloc(n ? n : 1, size);
+    if (!p) {
+        fprintf(stderr, "out of memory\n");
+        exit(2);
+    }
+    return p;
+}
+
+static void add_term(sse_t *s, int t, int k, int group, const int *sites, const int *dirs)
+{
+    s->term_k[t] = (uint8_t)k;
+    s->term_group[t] = (uint8_t)group;
+    for (int a = 0; a < k; a++) {
+        s->tsite[(t * KMAX + a) * 2] = sites[2 * a];
+        s->tsite[(t * KMAX + a) * 2 + 1] = sites[2 * a + 1];
+        s->tdir[t * KMAX + a] = (uint8_t)dirs[a];
+    }
+}
+
+static void setup(sse_t *s, int L, double beta, double J, double Q, uint64_t seed)
+{
+    const int N = L * L;
+    s->L = L;
+    s->N = N;
+    s->beta = beta;
+    s->J = J;
+    s->Q = Q;
+    s->nJ = J > 0 ? 2 * N : 0;
+    s->nQ = Q > 0 ? 2 * N : 0;
+    s->T = s->nJ + s->nQ;
+    s->phase = xcalloc(N, 1);
+    s->term_k = xcalloc(s->T, 1);
+    s->term_group = xcalloc(s->T, 1);
+    s->tsite = xcalloc((size_t)s->T * KMAX * 2, sizeof(int32_t));
+    s->tdir = xcalloc((size_t)s->T * KMAX, 1);
+    s->cos_tab = xcalloc(2 * (size_t)N, sizeof(double));
+    s->sin_tab = xcalloc(2 * (size_t)N, sizeof(double));
+    s->vbs_bonds = xcalloc(4 * (size_t)N, sizeof(int32_t));
+    s->vbs_dir = xcalloc(2 * (size_t)N, 1);
+    s->vbs_phase = xcalloc(2 * (size_t)N, 1);
+#define SITE(x, y) ((((x) + L) % L) + L * (((y) + L) % L))
+    for (int y = 0; y < L; y++)
+        for (int x = 0; x < L; x++) {
+            const int i = SITE(x, y);
+            s->phase[i] = ((x + y) & 1) ? -1 : 1;
+            for (int a = 0; a < 2; a++) {
+                const double arg = TWO_PI * (a == 0 ? x : y) / L;
+                s->cos_tab[a * N + i] = s->phase[i] * cos(arg);
+                s->sin_tab[a * N + i] = s->phase[i] * sin(arg);
+            }
+            s->vbs_bonds[4 * i] = i;
+            s->vbs_bonds[4 * i + 1] = SITE(x + 1, y);
+            s->vbs_dir[2 * i] = 0;
+            s->vbs_phase[2 * i] = (x & 1) ? -1 : 1;
+            s->vbs_bonds[4 * i + 2] = i;
+            s->vbs_bonds[4 * i + 3] = SITE(x, y + 1);
+            s->vbs_dir[2 * i + 1] = 1;
+            s->vbs_phase[2 * i + 1] = (y & 1) ? -1 : 1;
+            if (s->nJ) {
+                const int bx[2] = {i, SITE(x + 1, y)}, by[2] = {i, SITE(x, y + 1)};
+                const int dx[1] = {0}, dy[1] = {1};
+                add_term(s, 2 * i, 1, 0, bx, dx);
+                add_term(s, 2 * i + 1, 1, 0, by, dy);
+            }
+            if (s->nQ) {
+                const int px[4] = {i, SITE(x + 1, y), SITE(x, y + 1), SITE(x + 1, y + 1)};
+                const int py[4] = {i, SITE(x, y + 1), SITE(x + 1, y), SITE(x + 1, y + 1)};
+                const int dx[2] = {0, 0}, dy[2] = {1, 1};
+                add_term(s, s->nJ + 2 * i, 2, 1, px, dx);
+                add_term(s, s->nJ + 2 * i + 1, 2, 1, py, dy);
+            }
+        }
+#undef SITE
+    /* weights w_t = C_t / 2^k: kind totals and per-term inverse weights for the uniform choice */
+    s->wJ_tot = s->nJ * J / 2.0;
+    const double wQ_tot = s->nQ * Q / 4.0;
+    s->beta_wtot = beta * (s->wJ_tot + wQ_tot);
+    s->inv_wJ = J > 0 ? 2.0 / J : 0.0;
+    s->inv_wQ = Q > 0 ? 4.0 / Q : 0.0;
+
+    uint64_t sm = seed;
+    for (int a = 0; a < 4; a++) s->rng[a] = splitmix64(&sm);
+    s->spins = xcalloc(N, 1);
+    for (int i = 0; i < N; i++) s->spins[i] = next_double(s->rng) < 0.5 ? 1 : -1;
+    s->M = (int)(1.2 * s->beta_wtot) + 16;
+    if (s->M < 32) s->M = 32;
+    s->n = 0;
+    s->ops = malloc(sizeof(int32_t) * (size_t)s->M);
+    for (int p = 0; p < s->M; p++) s->ops[p] = -1;
+    s->vflip = xcalloc((size_t)s->M * KMAX, 1);
+    s->links = xcalloc((size_t)s->M * KMAX * 4, sizeof(int32_t));
+    s->first = xcalloc(N, sizeof(int32_t));
+    s->last = xcalloc(N, sizeof(int32_t));
+}
+
+/* Append empty slots at the end (warm-up only, between steps).  Vertex numbering, and hence the pending
+ * vflip entries, does not change when empty slots are appended after the last operator. */
+static void grow_cutoff(sse_t *s)
+{
+    const int new_m = s->n + s->n / 2 + 16;
+    if (new_m <= s->M) return;
+    s->ops = realloc(s->ops, sizeof(int32_t) * (size_t)new_m);
+    uint8_t *vf = xcalloc((size_t)new_m * KMAX, 1);
+    memcpy(vf, s->vflip, (size_t)s->M * KMAX);
+    free(s->vflip);
+    s->vflip = vf;
+    free(s->links);
+    s->links = xcalloc((size_t)new_m * KMAX * 4, sizeof(int32_t));
+    if (!s->ops) {
+        fprintf(stderr, "out of memory\n");
+        exit(2);
+    }
+    for (int p = s->M; p < new_m; p++) s->ops[p] = -1;
+    s->M = new_m;
+}
+
+/* ------------------------------------------------------------------------------------------ sweep */
+/* Returns the number of bond vertices of the new string. */
+static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
+{
+    const int M = s->M, N = s->N, nJ = s->nJ, T = s->T;
+    const double beta_wtot = s->beta_wtot, wJ_tot = s->wJ_tot, inv_wJ = s->inv_wJ, inv_wQ = s->inv_wQ;
+    const double wtot = s->wJ_tot + (s->nQ * s->Q / 4.0);
+    int32_t *restrict ops = s->ops;
+    uint8_t *restrict vflip = s->vflip;
+    int8_t *restrict spins = s->spins;
+    int32_t *restrict links = s->links;
+    int32_t *restrict first = s->first;
+    int32_t *restrict last = s->last;
+    const int8_t *restrict phase = s->phase;
+    const uint8_t *restrict term_k = s->term_k;
+    const uint8_t *restrict term_group = s->term_group;
+    const int32_t *restrict tsite = s->tsite;
+    const uint8_t *restrict tdir = s->tdir;
+    uint64_t rng[4] = {s->rng[0], s->rng[1], s->rng[2], s->rng[3]};
+
+    int ms = 0;
+    for (int i = 0; i < N; i++) {
+        first[i] = -1;
+        last[i] = -1;
+        ms += phase[i] * spins[i];
+    }
+    int64_t group[2] = {0, 0};
+    int wind[2] = {0, 0};
+    double sum_ms = 0.0, sum_ms2 = 0.0, sum_ms4 = 0.0;
+    int n = s->n, n_old = 0, v_old = 0, v = 0;
+
+    for (int p = 0; p < M; p++) {
+        int op = ops[p];
+        int t;
+        if (op >= 0) {
+            t = op >> 3;
+            const int k = term_k[t];
+            for (int a = 0; a < k; a++) {
+                op ^= vflip[v_old + a] << a;
+                vflip[v_old + a] = 0;
+            }
+            v_old += k;
+            n_old++;
+            group[term_group[t]]++;
+            if (op & 7) {
+                for (int a = 0; a < k; a++) {
+                    if ((op >> a) & 1) {
+                        const int i = tsite[(t * KMAX + a) * 2], j = tsite[(t * KMAX + a) * 2 + 1];
+                        const int si = spins[i], sj = spins[j];
+                        wind[tdir[t * KMAX + a]] += si;
+                        ms -= 2 * phase[i] * si + 2 * phase[j] * sj;
+                        spins[i] = (int8_t)-si;
+                        spins[j] = (int8_t)-sj;
+                    }
+                }
+                ops[p] = op;
+                const double fm = ms, fm2 = fm * fm;
+                sum_ms += fm;
+                sum_ms2 += fm2;
+                sum_ms4 += fm2 * fm2;
+            } else {
+                const double fm = ms, fm2 = fm * fm;
+                sum_ms += fm;
+                sum_ms2 += fm2;
+                sum_ms4 += fm2 * fm2;
+                if (next_double(rng) * beta_wtot < (double)(M - n + 1)) {
+                    ops[p] = -1;
+                    n--;
+                    continue;
+                }
+                ops[p] = op;
+            }
+        } else {
+            if (next_double(rng) * (double)(M - n) >= beta_wtot) continue;
+            const double r = next_double(rng) * wtot;
+            if (r < wJ_tot) {
+                t = (int)(r * inv_wJ);
+                if (t >= nJ) t = nJ - 1;
+            } else {
+                t = nJ + (int)((r - wJ_tot) * inv_wQ);
+                if (t >= T) t = T - 1;
+            }
+            const int k = term_k[t];
+            const int32_t *ts = tsite + t * KMAX * 2;
+            int ok = 1;
+            for (int a = 0; a < k; a++) ok &= spins[ts[2 * a]] != spins[ts[2 * a + 1]];
+            if (!ok) continue;
+            ops[p] = t << 3;
+            n++;
+        }
+        /* append the bond vertices of the operator now at slot p */
+        const int k = term_k[t];
+        const int32_t *ts = tsite + t * KMAX * 2;
+        for (int a = 0; a < k; a++) {
+            const int i = ts[2 * a], j = ts[2 * a + 1];
+            const int leg = 4 * v;
+            int prev = last[i];
+            if (prev >= 0) {
+                links[prev] = leg;
+                links[leg] = prev;
+            } else {
+                first[i] = leg;
+            }
+            last[i] = leg + 2;
+            prev = last[j];
+            if (prev >= 0) {
+                links[prev] = leg + 1;
+                links[leg + 1] = prev;
+            } else {
+                first[j] = leg + 1;
+            }
+            last[j] = leg + 3;
+            v++;
+        }
+    }
+    for (int i = 0; i < N; i++) {
+        const int f = first[i];
+        if (f >= 0) {
+            links[f] = last[i];
+            links[last[i]] = f;
+        }
+    }
+    memcpy(s->rng, rng, sizeof rng);
+    s->n = n;
+    out->n_old = n_old;
+    out->ms_end = ms;
+    out->group[0] = group[0];
+    out->group[1] = group[1];
+    out->sum_ms = sum_ms;
+    out->sum_ms2 = sum_ms2;
+    out->sum_ms4 = sum_ms4;
+    out->wind[0] = wind[0];
+    out->wind[1] = wind[1];
+    return v;
+}
+
+/* ------------------------------------------------------------------------------------------ loops */
+static int loop_update(sse_t *restrict s, int n_vertices)
+{
+    int32_t *restrict links = s->links;
+    uint8_t *restrict vflip = s->vflip;
+    int8_t *restrict spins = s->spins;
+    const int32_t *restrict first = s->first;
+    uint64_t rng[4] = {s->rng[0], s->rng[1], s->rng[2], s->rng[3]};
+    const int n_legs = 4 * n_vertices;
+    int n_loops = 0;
+    for (int l0 = 0; l0 < n_legs; l0 += 2) {
+        if (links[l0] < 0) continue;
+        n_loops++;
+        int leg = l0;
+        if (next_double(rng) < 0.5) {
+            do {
+                vflip[leg >> 2] ^= 1;
+                const int nxt = links[leg ^ 1];
+                links[leg] = -2;
+                links[leg ^ 1] = -2;
+                leg = nxt;
+            } while (leg != l0);
+        } else {
+            do {
+                const int nxt = links[leg ^ 1];
+                links[leg] = -1;
+                links[leg ^ 1] = -1;
+                leg = nxt;
+            } while (leg != l0);
+        }
+    }
+    for (int i = 0; i < s->N; i++) {
+        const int f = first[i];
+        if (f < 0) {
+            if (next_double(rng) < 0.5) spins[i] = (int8_t)-spins[i];
+        } else if (links[f] == -2) {
+            spins[i] = (int8_t)-spins[i];
+        }
+    }
+    memcpy(s->rng, rng, sizeof rng);
+    return n_loops;
+}
+
+/* ------------------------------------------------------------------------------------------ measurement */
+enum { A_NOPS, A_NOPS2, A_MZ2, A_MS2, A_MS4, A_CHIS, A_SQN, A_DX2, A_DY2, A_D4, A_COS4, A_W2X, A_W2Y,
+       A_GJ, A_GQ, A_SIZE };
+
+static void measure(sse_t *s, const sweep_out_t *o, double *acc)
+{
+    const int N = s->N;
+    const double n_old = o->n_old;
+    acc[A_NOPS] += n_old;
+    acc[A_NOPS2] += n_old * n_old;
+    acc[A_GJ] += (double)o->group[0];
+    acc[A_GQ] += (double)o->group[1];
+    if (o->n_old > 0) {
+        const double m1 = 0.5 * o->sum_ms, m2 = 0.25 * o->sum_ms2;
+        acc[A_MS2] += m2 / n_old;
+        acc[A_MS4] += 0.0625 * o->sum_ms4 / n_old;
+        acc[A_CHIS] += s->beta * (m1 * m1 + m2) / (n_old * (n_old + 1.0));
+    } else {
+        const double m = 0.5 * o->ms_end;
+        acc[A_MS2] += m * m;
+        acc[A_MS4] += m * m * m * m;
+        acc[A_CHIS] += s->beta * m * m;
+    }
+    acc[A_W2X] += (double)o->wind[0] * o->wind[0];
+    acc[A_W2Y] += (double)o->wind[1] * o->wind[1];
+    /* equal-time estimators of the propagated state at slot 0 */
+    const int8_t *spins = s->spins;
+    int mz = 0;
+    for (int i = 0; i < N; i++) mz += spins[i];
+    acc[A_MZ2] += 0.25 * mz * mz;
+    double sqn = 0.0;
+    for (int a = 0; a < 2; a++) {
+        double re = 0.0, im = 0.0;
+        for (int i = 0; i < N; i++) {
+            re += spins[i] * s->cos_tab[a * N + i];
+            im += spins[i] * s->sin_tab[a * N + i];
+        }
+        sqn += re * re + im * im;
+    }
+    acc[A_SQN] += 0.25 * sqn / (2.0 * N);
+    double dx = 0.0, dy = 0.0;
+    for (int b = 0; b < 2 * N; b++) {
+        const double c = s->vbs_phase[b] * spins[s->vbs_bonds[2 * b]] * spins[s->vbs_bonds[2 * b + 1]];
+        if (s->vbs_dir[b] == 0)
+            dx += c;
+        else
+            dy += c;
+    }
+    dx *= 0.25 / N;
+    dy *= 0.25 / N;
+    int ix = (int)((dx + HIST_RANGE) / (2.0 * HIST_RANGE) * HIST_BINS);
+    int iy = (int)((dy + HIST_RANGE) / (2.0 * HIST_RANGE) * HIST_BINS);
+    ix = ix < 0 ? 0 : (ix >= HIST_BINS ? HIST_BINS - 1 : ix);
+    iy = iy < 0 ? 0 : (iy >= HIST_BINS ? HIST_BINS - 1 : iy);
+    s->hist[ix * HIST_BINS + iy]++;
+    const double dx2 = dx * dx, dy2 = dy * dy, d2 = dx2 + dy2;
+    acc[A_DX2] += dx2;
+    acc[A_DY2] += dy2;
+    acc[A_D4] += d2 * d2;
+    if (d2 > 0.0) acc[A_COS4] += (dx2 * dx2 - 6.0 * dx2 * dy2 + dy2 * dy2) / (d2 * d2);
+}
+
+static double cpu_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+    return ts.tv_sec + 1e-9 * ts.tv_nsec;
+}
+
+/* ------------------------------------------------------------------------------------------ main */
+int main(int argc, char **argv)
+{
+    if (argc != 8) {
+        fprintf(stderr, "usage: %s L beta J Q warmup_steps measured_steps seed\n", argv[0]);
+        return 1;
+    }
+    const int L = atoi(argv[1]);
+    const double beta = atof(argv[2]), J = atof(argv[3]), Q = atof(argv[4]);
+    const long warmup = atol(argv[5]), steps = atol(argv[6]);
+    const uint64_t seed = strtoull(argv[7], NULL, 10);
+    if (L < 4 || (L & 1) || !(beta > 0) || J < 0 || Q < 0 || !(J > 0 || Q > 0) || warmup < 0 || steps < 1) {
+        fprintf(stderr, "need even L >= 4, beta > 0, J, Q >= 0 (not both 0), warmup >= 0, steps >= 1\n");
+        return 1;
+    }
+    static sse_t s;
+    setup(&s, L, beta, J, Q, seed);
+    sweep_out_t o;
+
+    for (long w = 0; w < warmup; w++) {
+        const int nv = diagonal_sweep(&s, &o);
+        loop_update(&s, nv);
+        if (3 * (s.M - s.n) < s.n) grow_cutoff(&s);
+    }
+
+    const long n_bins = steps >= 40 ? 20 : steps;
+    const long per_bin = steps / n_bins;
+    double *bin_n = xcalloc(n_bins, sizeof(double));
+    double acc[A_SIZE] = {0};
+    double sum_loops = 0.0, t_sweep = 0.0, t_loop = 0.0, min_sweep = 1e300, min_loop = 1e300;
+    const double c0 = cpu_seconds();
+    for (long st = 0; st < steps; st++) {
+        const double a0 = cpu_seconds();
+        const int nv = diagonal_sweep(&s, &o);
+        const double a1 = cpu_seconds();
+        sum_loops += loop_update(&s, nv);
+        const double a2 = cpu_seconds();
+        t_sweep += a1 - a0;
+        t_loop += a2 - a1;
+        if (a1 - a0 < min_sweep) min_sweep = a1 - a0;
+        if (a2 - a1 < min_loop) min_loop = a2 - a1;
+        measure(&s, &o, acc);
+        if (st / per_bin < n_bins) bin_n[st / per_bin] += o.n_old;
+    }
+    const double cpu = cpu_seconds() - c0;
+
+    const long used = n_bins * per_bin;
+    double mean = 0.0, var = 0.0;
+    for (long b = 0; b < n_bins; b++) mean += bin_n[b] / per_bin;
+    mean /= n_bins;
+    for (long b = 0; b < n_bins; b++) {
+        const double d = bin_n[b] / per_bin - mean;
+        var += d * d;
+    }
+    const double err = n_bins > 1 ? sqrt(var / (n_bins - 1) / n_bins) : 0.0;
+    const int N = s.N;
+    const double e_const = 0.25 * J * s.nJ / N;
+    const double ns = 1e9 / ((double)steps * s.M);
+    printf("{\"implementation\": \"c\", \"L\": %d, \"N\": %d, \"beta\": %.17g, \"J\": %.17g, \"Q\": %.17g, "
+           "\"warmup\": %ld, \"steps\": %ld, \"seed\": %llu, \"cutoff\": %d, \"final_n_ops\": %d, "
+           "\"mean_n\": %.10g, \"mean_n_err\": %.6g, \"energy_per_site\": %.10g, \"energy_per_site_err\": %.6g, "
+           "\"bins\": %ld, \"steps_in_bins\": %ld, "
+           "\"cpu_seconds\": %.6g, \"cpu_ns_per_slot_per_step\": %.6g, \"cpu_ns_per_op_per_step\": %.6g, "
+           "\"sweep_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_slot\": %.6g, "
+           "\"sweep_cpu_ns_per_slot_fastest_step\": %.6g, \"loop_cpu_ns_per_slot_fastest_step\": %.6g, "
+           "\"mean_loops\": %.6g, "
+           "\"m_stag2_time_avg\": %.8g, \"s_q_next\": %.8g, \"w2\": %.8g, \"mz2\": %.8g}\n",
+           L, N, beta, J, Q, warmup, steps, (unsigned long long)seed, s.M, s.n, mean, err,
+           e_const - mean / (beta * N), err / (beta * N), n_bins, used,
+           cpu, cpu * ns, cpu * 1e9 / ((double)steps * (mean > 1 ? mean : 1)),
+           t_sweep * ns, t_loop * ns, min_sweep * 1e9 / s.M, min_loop * 1e9 / s.M, sum_loops / steps,
+           acc[A_MS2] / steps / ((double)N * N), acc[A_SQN] / steps,
+           (acc[A_W2X] + acc[A_W2Y]) / steps, acc[A_MZ2] / steps);
+    return 0;
+}
