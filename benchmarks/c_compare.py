@@ -73,7 +73,7 @@ def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
         n, n_vert = diagonal_sweep(
             sim.ops, sim.vflip, sim.spins, sim.links, sim.first, sim.last, sim.counters[0],
             sim.beta_wtot, sim.alias_prob, sim.alias_idx,
-            sim.term_start, sim.term_bonds, sim.term_group, sim.bond_sites, sim.bond_disp, sim.phase,
+            sim.term_table, sim.bond_disp, sim.phase,
             sim.rng, sim._group_counts, sim._sweep_out,
         )
         c1 = time.process_time()

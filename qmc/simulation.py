@@ -17,7 +17,7 @@ from models.compiled import CompiledModel
 from qmc.alias import alias_table
 from qmc.engine.diagonal import SWEEP_OUT_SIZE
 from qmc.engine.steps import acc_size, run_steps
-from qmc.engine.vertices import apply_pending_flips, count_ops
+from qmc.engine.vertices import apply_pending_flips, count_ops, term_table
 from qmc.estimators import bin_names, bin_row
 from qmc.rng import draw_doubles
 
@@ -109,6 +109,7 @@ class Simulation:
         self.term_bonds = np.ascontiguousarray(model.term_bonds, dtype=np.int32)
         self.term_group = np.ascontiguousarray(model.term_group, dtype=np.int32)
         self.bond_sites = np.ascontiguousarray(model.bond_sites, dtype=np.int32)
+        self.term_table = term_table(self.term_start, self.term_bonds, self.term_group, self.bond_sites)
         self.phase = np.ascontiguousarray(model.phase, dtype=np.int8)
         self.bond_disp = np.ascontiguousarray(model.bond_disp, dtype=np.float64).reshape(
             len(model.bond_sites), model.n_dirs
@@ -182,7 +183,7 @@ class Simulation:
             n_steps, measure, stop_when_full,
             self.ops, self.vflip, self.spins, self.links, self.first, self.last, self.counters,
             self.beta, self.beta_wtot, self.alias_prob, self.alias_idx,
-            self.term_start, self.term_bonds, self.term_group, self.bond_sites, self.bond_disp, self.phase,
+            self.term_table, self.bond_disp, self.phase,
             self.cos_tab, self.sin_tab, self.vbs_bonds, self.vbs_dir, self.vbs_phase, self.hist, HIST_RANGE,
             self.rng, self.acc, self._group_counts, self._sweep_out, self._et_out,
         )

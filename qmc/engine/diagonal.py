@@ -24,6 +24,8 @@ Implementation notes (measured, see benchmarks/c_compare.py): the sweep is bound
 so the loop flips are applied without a branch (``op ^= vflip << a``) and the insertion test ORs the bond
 checks instead of leaving early; the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit
 off-diagonal mask), which stops LLVM from vectorising the one-to-three-bond loops behind run-time checks.
+A term's bond count, group, sites and bonds come from one row of :func:`qmc.engine.vertices.term_table`
+rather than the chain term -> bond list -> bond -> sites.
 """
 
 from __future__ import annotations
@@ -45,10 +47,13 @@ SWEEP_OUT_SIZE = 8  # n_old, sum_ms, sum_ms2, sum_ms4, ms_end, w_0, w_1, w_2
 def diagonal_sweep(
     ops, vflip, spins, links, first, last, n_ops,
     beta_wtot, alias_prob, alias_idx,
-    term_start, term_bonds, term_group, bond_sites, bond_disp, phase,
+    table, bond_disp, phase,
     rng, group_counts, out,
 ):
-    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is 2 M_s (spins are +-1)."""
+    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is 2 M_s (spins are +-1).
+
+    ``table`` is :func:`qmc.engine.vertices.term_table` (int32[T, 4|8|16]: ``k + 4 group``, then
+    ``(i, j, b)`` per bond)."""
     M = ops.shape[0]
     n_sites = spins.shape[0]
     n_terms = alias_prob.shape[0]
@@ -76,25 +81,24 @@ def diagonal_sweep(
     for p in range(M):
         op = ops[p]
         t = 0
-        b0 = 0
         k = 0
         if op >= 0:
             t = op >> 3
-            b0 = term_start[U(t)]
-            k = (term_start[U(t + 1)] - b0) & 3  # k <= 3: tells LLVM the bond loops are short
+            meta = table[U(t), 0]
+            k = meta & 3  # k <= 3: tells LLVM the bond loops are short
             for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
                 op ^= np.int32(vflip[U(v_old + a)]) << a
                 vflip[U(v_old + a)] = 0
             v_old += k
             n_old += 1
-            group_counts[U(term_group[U(t)])] += 1
+            group_counts[U(meta >> 2)] += 1
             if (op & 7) != 0:
                 ops[p] = op
                 for a in range(k):
                     if (op >> a) & 1:
-                        b = term_bonds[U(b0 + a)]
-                        i = bond_sites[U(b), 0]
-                        j = bond_sites[U(b), 1]
+                        i = table[U(t), 1 + 3 * a]
+                        j = table[U(t), 2 + 3 * a]
+                        b = table[U(t), 3 + 3 * a]
                         si = spins[U(i)]
                         if n_dirs > 0:
                             w0 += si * bond_disp[U(b), 0]
@@ -129,21 +133,18 @@ def diagonal_sweep(
             t = int(r)
             if r - t >= alias_prob[U(t)]:
                 t = alias_idx[U(t)]
-            b0 = term_start[U(t)]
-            k = (term_start[U(t + 1)] - b0) & 3
+            k = table[U(t), 0] & 3
             blocked = False
             for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
-                b = term_bonds[U(b0 + a)]
-                blocked |= spins[U(bond_sites[U(b), 0])] == spins[U(bond_sites[U(b), 1])]
+                blocked |= spins[U(table[U(t), 1 + 3 * a])] == spins[U(table[U(t), 2 + 3 * a])]
             if blocked:
                 continue
             ops[p] = t << 3
             n += 1
-        # append the bond vertices of the operator now at slot p (term t: bonds b0 .. b0 + k - 1)
+        # append the bond vertices of the operator now at slot p (term t, k bonds)
         for a in range(k):
-            b = term_bonds[U(b0 + a)]
-            i = bond_sites[U(b), 0]
-            j = bond_sites[U(b), 1]
+            i = table[U(t), 1 + 3 * a]
+            j = table[U(t), 2 + 3 * a]
             leg = 4 * v
             prev = last[U(i)]
             if prev >= 0:

@@ -46,11 +46,12 @@ def run_steps(
     n_steps, measure, stop_when_full,
     ops, vflip, spins, links, first, last, counters,
     beta, beta_wtot, alias_prob, alias_idx,
-    term_start, term_bonds, term_group, bond_sites, bond_disp, phase,
+    table, bond_disp, phase,
     cos_tab, sin_tab, vbs_bonds, vbs_dir, vbs_phase, hist, hist_range,
     rng, acc, group_counts, sweep_out, et_out,
 ):
-    """Run up to ``n_steps`` Monte Carlo steps; returns the number done.
+    """Run up to ``n_steps`` Monte Carlo steps; returns the number done.  ``table`` is
+    :func:`qmc.engine.vertices.term_table`.
 
     ``counters[0]`` holds n (operators in the string).  ``group_counts`` (int64[max(G, 1)]), ``sweep_out``
     (float64[SWEEP_OUT_SIZE]) and ``et_out`` (float64[4]) are scratch arrays owned by the caller: allocating
@@ -64,7 +65,7 @@ def run_steps(
         n, n_vert = diagonal_sweep(
             ops, vflip, spins, links, first, last, counters[0],
             beta_wtot, alias_prob, alias_idx,
-            term_start, term_bonds, term_group, bond_sites, bond_disp, phase,
+            table, bond_disp, phase,
             rng, group_counts, sweep_out,
         )
         counters[0] = n

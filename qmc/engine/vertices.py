@@ -24,7 +24,40 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["apply_pending_flips", "count_ops"]
+__all__ = ["apply_pending_flips", "count_ops", "term_table", "TT_META", "TT_BOND"]
+
+TT_META = 0
+"""Column of :func:`term_table` holding ``k + 4 * group`` (k = bonds of the term, 1..3)."""
+TT_BOND = 1
+"""First column of the bond records: bond a of the term is ``(i, j, b)`` at ``TT_BOND + 3a + 0..2``."""
+
+
+def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.ndarray,
+               bond_sites: np.ndarray) -> np.ndarray:
+    """Everything the diagonal sweep needs about term t in one int32 row ``table[t]``.
+
+    ``table[t, TT_META] = k_t + 4 g_t`` (bond count k_t <= 3, term group g_t), then for each bond a of the
+    term its sites and bond index ``(i, j, b)`` at ``TT_BOND + 3a``.  Rows are padded to 4, 8 or 16
+    entries (k_max = 1, 2, 3), so that a row never straddles more cache lines than it must: one load
+    brings a term's bonds instead of the chain term -> bond list -> bond -> sites.
+    """
+    start = np.asarray(term_start, dtype=np.int64)
+    k = np.diff(start)
+    if k.size and (k.min() < 1 or k.max() > 3):
+        raise ValueError("terms must have 1 to 3 bonds")
+    kmax = int(k.max()) if k.size else 1
+    width = {1: 4, 2: 8, 3: 16}[kmax]
+    table = np.zeros((k.size, width), dtype=np.int32)
+    table[:, TT_META] = k + 4 * np.asarray(term_group, dtype=np.int64)
+    bonds = np.asarray(term_bonds, dtype=np.int64)
+    sites = np.asarray(bond_sites, dtype=np.int64).reshape(-1, 2)
+    for a in range(kmax):
+        rows = np.flatnonzero(k > a)
+        b = bonds[start[rows] + a]
+        table[rows, TT_BOND + 3 * a] = sites[b, 0]
+        table[rows, TT_BOND + 3 * a + 1] = sites[b, 1]
+        table[rows, TT_BOND + 3 * a + 2] = b
+    return table
 
 
 @njit(cache=True)
