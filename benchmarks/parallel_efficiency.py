@@ -2,7 +2,7 @@
 
 Usage::
 
-    python benchmarks/parallel_efficiency.py [--tasks 8] [--size 8] [--beta 4] [--steps 120000] [--ranks 2]
+    python benchmarks/parallel_efficiency.py [--tasks 8] [--size 8] [--beta 4] [--steps 400000] [--ranks 2]
     python benchmarks/parallel_efficiency.py --ladder 4 [--size 8] [--beta 4] [--steps 40000] [--ranks 2]
 
 With ``--ladder M`` the work is instead ONE replica-exchange ladder of M chains (J-Q2 model, J = 1, Q from
@@ -21,6 +21,10 @@ Prints one JSON object:
   writing the index, per unit handed out; the index writes alone), read from the run log of the K-rank
   run;
 * ``bins_identical``: the K-rank bins equal the 1-rank bins bit for bit;
+* ``task_seconds_mean``: mean time of one task (as its rank measured it) with 1 and K ranks: a larger
+  K-rank figure means the tasks themselves ran slower side by side (shared core resources), not that
+  the farm lost time; ``busy_fraction`` = (sum of K-rank task times) / (K x (T(K) - S(K))), the share of
+  the ranks' time spent inside tasks;
 * ``hardware_ceiling``: the same test without MPI or coordination -- K plain serial ``qmc run`` processes,
   each with 1/K of the tasks, started together, against one of them alone: T(alone) / T(together).  It
   is what K busy processes get out of this machine's K cores (shared caches, memory bandwidth, clock
@@ -159,7 +163,7 @@ def main() -> None:
     ap.add_argument("--tasks", type=int, default=8, help="number of equal tasks (replicas)")
     ap.add_argument("--size", type=int, default=8, help="L of the L x L Heisenberg lattice")
     ap.add_argument("--beta", type=float, default=4.0)
-    ap.add_argument("--steps", type=int, default=120000, help="measured Monte Carlo steps per task")
+    ap.add_argument("--steps", type=int, default=400000, help="measured Monte Carlo steps per task")
     ap.add_argument("--ranks", type=int, default=2)
     ap.add_argument("--ladder", type=int, default=0, metavar="M",
                     help="measure one exchange ladder of M chains instead of a sweep of equal tasks")
@@ -186,8 +190,10 @@ def main() -> None:
         ceiling = _ceiling(tmp_path, qmc, args)
         a, b = _bins(tmp_path / "n1"), _bins(tmp_path / f"n{args.ranks}")
         identical = set(a) == set(b) and all(np.array_equal(a[t][n], b[t][n]) for t in a for n in a[t])
-        index = json.loads((tmp_path / "n1" / "index.json").read_text())
-        task_seconds = [e["seconds"] for e in index["tasks"].values()]
+        task_seconds = {}
+        for kk in (1, args.ranks):
+            index = json.loads((tmp_path / f"n{kk}" / "index.json").read_text())
+            task_seconds[kk] = [e["seconds"] for e in index["tasks"].values()]
 
     k = args.ranks
     result = {
@@ -195,7 +201,8 @@ def main() -> None:
         else f"{args.tasks} equal tasks (Heisenberg)",
         "tasks": args.ladder or args.tasks, "lattice": f"{args.size}x{args.size}", "beta": args.beta,
         "steps_per_task": args.steps + max(100, args.steps // 10), "ranks": k,
-        "task_seconds_mean": round(float(np.mean(task_seconds)), 3),
+        "task_seconds_mean": {str(kk): round(float(np.mean(v)), 3) for kk, v in task_seconds.items()},
+        "busy_fraction": round(sum(task_seconds[k]) / (k * (wall[k] - startup[k])), 4),
         "wall_seconds": {"1": round(wall[1], 3), str(k): round(wall[k], 3)},
         "startup_seconds": {"1": round(startup[1], 3), str(k): round(startup[k], 3)},
         "efficiency": round(wall[1] / (k * wall[k]), 4),
