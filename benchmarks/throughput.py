@@ -1,6 +1,10 @@
 """Engine throughput: ns per operator slot per Monte Carlo step, steps/s, memory per slot, start-up.
 
 Usage:  python benchmarks/throughput.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
+        python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
+
+``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
+linear in N beta when ns per slot stays flat; it rises where the vertex list outgrows the caches.
 
 Prints one JSON object per case.  Start-up is measured in fresh subprocesses: once with an
 empty numba cache directory (cold: every kernel compiles) and once more with the same directory
@@ -81,7 +85,17 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     add_case_arguments(p)
+    p.add_argument("--scaling", default="", metavar="L1,L2,...",
+                   help="measure these L at beta = L (linearity in N beta) instead of one size")
     a = p.parse_args()
+    if a.scaling:
+        for case in selected_cases(a.case):
+            for L in (int(x) for x in a.scaling.split(",")):
+                r = measure_case(case, L, float(L), a.steps, a.warmup)
+                r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
+                print(json.dumps(r))
+                sys.stdout.flush()
+        return
     with tempfile.TemporaryDirectory() as cache:
         cold, cold_whole = startup_seconds(cache)
         warm, warm_whole = startup_seconds(cache)
