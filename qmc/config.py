@@ -17,7 +17,8 @@ Schema (sections and keys; ``*`` marks required ones)::
                 "expression of other scan names" (e.g. beta = "2*L");  beta* is required
     [sampling]  warmup_steps*, measure_steps*, bins* (>= 2, divides measure_steps), replicas = 1,
                 checkpoint_seconds = 300, exchange = scan name of a coupling for replica exchange,
-                exchange_every = 10 (Monte Carlo steps between swap attempts; only with exchange)
+                exchange_every = 10 (Monte Carlo steps between swap attempts; only with exchange),
+                exchange_ranks = at most this many MPI ranks per ladder (default: as many as help)
 
 Numbers in ``size`` and ``coupling`` may be scan names or products such as ``"2*L"`` (see
 :mod:`qmc.expressions`).  Every combination of the scanned values (cartesian product in file order,
@@ -74,7 +75,8 @@ _SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring,
                   "replicas": "independent copies of every parameter point, an integer >= 1",
                   "checkpoint_seconds": "seconds between checkpoints, > 0",
                   "exchange": "scan name of a coupling to exchange replicas along",
-                  "exchange_every": "Monte Carlo steps between swap attempts of replica exchange, >= 1"}
+                  "exchange_every": "Monte Carlo steps between swap attempts of replica exchange, >= 1",
+                  "exchange_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
 _TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
                              "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
               "projector-product": {"type": "projector-product",
@@ -150,7 +152,9 @@ class ScanEntry:
 @dataclass(frozen=True)
 class Sampling:
     """``[sampling]``: Monte Carlo steps, binning, replicas, checkpoint interval, exchange parameter and
-    the number of Monte Carlo steps between replica-exchange swap attempts (``exchange_every``)."""
+    the number of Monte Carlo steps between replica-exchange swap attempts (``exchange_every``) and the
+    largest number of MPI ranks one ladder may use (``exchange_ranks``, None: as many as shorten its step;
+    it changes where chains run, never the results, so it is not part of any fingerprint)."""
 
     warmup_steps: int
     measure_steps: int
@@ -159,6 +163,7 @@ class Sampling:
     checkpoint_seconds: float = 300.0
     exchange: str | None = None
     exchange_every: int = 10
+    exchange_ranks: int | None = None
 
     @property
     def steps_per_bin(self) -> int:
@@ -611,8 +616,16 @@ class _Parser:
             raise self.fail("sampling.exchange_every", "exchange_every is set but exchange is not: name the "
                                                        'scanned coupling to exchange along (exchange = "g") '
                                                        "or remove exchange_every")
+        ranks = None
+        if "exchange_ranks" in t:
+            ranks = self.integer("sampling.exchange_ranks", t["exchange_ranks"], minimum=1)
+            if exchange is None:
+                raise self.fail("sampling.exchange_ranks",
+                                "exchange_ranks is set but exchange is not: name the scanned coupling to "
+                                'exchange along (exchange = "g") or remove exchange_ranks')
         return Sampling(warmup_steps=warmup, measure_steps=measure, bins=bins, replicas=replicas,
-                        checkpoint_seconds=float(checkpoint), exchange=exchange, exchange_every=every)
+                        checkpoint_seconds=float(checkpoint), exchange=exchange, exchange_every=every,
+                        exchange_ranks=ranks)
 
     # -- cross references ---------------------------------------------------------------------------------
     def check_names(self, lattice: LatticeSpec, terms, scan, sampling: Sampling) -> None:

@@ -20,8 +20,8 @@ handled promptly and idle ranks do not spin.  The farm itself uses only standard
 one ``bcast`` (``send/isend/recv/Iprobe/bcast``, pickled objects); ladder teams add ``Create_group``,
 ``allgather`` and ``sendrecv`` on their own communicators.
 
-Exchange ladders: a ladder of M chains runs side by side on ``p = team_size(M, K)`` ranks
-(:mod:`qmc.ladder_team`).  Rank 0 keeps the queue order: waiting workers are answered by
+Exchange ladders: a ladder of M chains runs side by side on ``p = team_size(M, min(K, exchange_ranks))``
+ranks (:mod:`qmc.ladder_team`).  Rank 0 keeps the queue order: waiting workers are answered by
 :meth:`_Coordinator._dispatch`; when the front unit is a ladder it waits until p ranks wait for work (rank 0
 counts when it has no unit of its own), then sends each of them ("team", unit, ranks); the team makes its
 own communicator (``Create_group``, collective over its members only) and each member reports the
@@ -281,7 +281,10 @@ class _Coordinator:
     def _members(self, idx: int) -> int:
         """Ranks a unit runs on: 1 for a single task, :func:`qmc.ladder_team.team_size` for a ladder."""
         unit = self.units[idx]
-        return team_size(len(unit), self.world.size) if is_ladder(unit) else 1
+        if not is_ladder(unit):
+            return 1
+        cap = unit[0].sampling.exchange_ranks or self.world.size
+        return team_size(len(unit), min(cap, self.world.size))
 
     def _give(self, rank: int) -> None:
         idx = self.queue.popleft()

@@ -13,6 +13,7 @@ import pytest
 
 from qmc.config import build_model, config_fingerprint, load_config, validate
 from qmc.errors import UserError
+from qmc.task_identity import task_fingerprint
 from qmc.templates import TEMPLATES, template
 
 REPO = Path(__file__).resolve().parents[1]
@@ -145,6 +146,10 @@ BAD = [
      "sampling.exchange_every", ["must be an integer"]),
     ("exchange-every-alone", text(sampling=SAMPLING + "exchange_every = 5\n"), "sampling.exchange_every",
      ["exchange is not", "exchange = \"g\""]),
+    ("exchange-ranks-zero", text(sampling=SAMPLING + 'exchange = "g"\nexchange_ranks = 0\n'),
+     "sampling.exchange_ranks", ["at least 1"]),
+    ("exchange-ranks-alone", text(sampling=SAMPLING + "exchange_ranks = 2\n"), "sampling.exchange_ranks",
+     ["exchange is not"]),
     ("seed-text", text(run='[run]\nseed = "abc"\n'), "run.seed", ["must be an integer"]),
     ("seed-negative", text(run='[run]\nseed = -1\n'), "run.seed", ["at least 0"]),
     ("seed-float", text(run='[run]\nseed = 1.5\n'), "run.seed", ["must be an integer"]),
@@ -332,6 +337,12 @@ def test_exchange_every_default_value_and_fingerprint(tmp_path):
     # without exchange the fingerprint does not depend on the (unused) default
     plain = load_config(write(tmp_path, text(), name="d.toml"))
     assert plain.sampling.exchange_every == 10 and plain.sampling.exchange is None
+    # exchange_ranks says where chains run, not what they compute: no new fingerprint
+    capped = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\nexchange_ranks = 1\n'),
+                               name="e.toml"))
+    assert capped.sampling.exchange_ranks == 1 and base.sampling.exchange_ranks is None
+    assert config_fingerprint(capped) == config_fingerprint(base)
+    assert [task_fingerprint(t) for t in capped.tasks()] == [task_fingerprint(t) for t in base.tasks()]
 
 
 def test_scalar_size_and_derived_entries(tmp_path):

@@ -90,6 +90,9 @@ checkpoint_seconds = 0.3
 """
 
 
+EXCHANGE_ONE_RANK = EXCHANGE.replace("exchange_every = 4\n", "exchange_every = 4\nexchange_ranks = 1\n")
+
+
 def write(tmp: Path, template: str, name: str, measure: int = 2000, bins: int = 10) -> Path:
     path = tmp / name
     path.write_text(template.format(measure=measure, bins=bins))
@@ -143,7 +146,8 @@ def test_launcher_environment_is_read(monkeypatch):
 # ------------------------------------------------------------------------------------------- same bins
 
 
-@pytest.mark.parametrize("template", [PLAIN, EXCHANGE], ids=["plain", "exchange"])
+@pytest.mark.parametrize("template", [PLAIN, EXCHANGE, EXCHANGE_ONE_RANK],
+                         ids=["plain", "exchange", "exchange-one-rank"])
 def test_bins_identical_serial_n1_n2(tmp_path, template):
     config = write(tmp_path, template, "c.toml")
     results = {}
@@ -164,6 +168,9 @@ def test_bins_identical_serial_n1_n2(tmp_path, template):
         # each 3-chain ladder ran side by side on both ranks: chains 0..1 on rank 0, chain 2 on rank 1
         assert log.count("on ranks 0, 1") == 2
         assert "rank 1: (at" in log and "here chains 2..2 of 3 (team member 1 of 2)" in log
+    if template is EXCHANGE_ONE_RANK:  # exchange_ranks = 1: one ladder per rank, no teams
+        assert "on ranks" not in log and "side by side" not in log
+        assert '"units_by_rank": {"0": 1, "1": 1}' in log
 
 
 def test_without_mpi4py_rank0_runs_everything_serially(tmp_path):
