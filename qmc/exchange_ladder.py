@@ -113,6 +113,9 @@ def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) 
 # the ladder in memory
 
 
+_ROW_HEAD = 5  # error, stop, vote error, write, cutoff; then operator counts per position and group
+
+
 class LadderError(RuntimeError):
     """A chain of the ladder failed on some team member; raised on every member at the same step."""
 
@@ -130,8 +133,9 @@ class Ladder:
     those bins closed.
 
     Synchronisation points are the end of the warm-up and every exchange point; there the members share
-    their :attr:`vote` (any picklable object, set by the caller before :meth:`advance`), and afterwards
-    :attr:`votes` holds every member's vote and :attr:`voted_at` the step.  A chain that raises makes
+    their :attr:`vote` (set by the caller before :meth:`advance`: a dict with ``stop`` (a reason, "" for
+    none), ``error`` (a message or None) and ``write`` (bool)), and afterwards :attr:`votes` holds every
+    member's vote and :attr:`voted_at` the step.  A chain that raises makes
     every member raise :class:`LadderError` at the next synchronisation point.
     """
 
@@ -183,6 +187,7 @@ class Ladder:
                 raise ValueError("the chains of a ladder checkpoint are at different steps")
             self.state = self._check_state(group_state)
         self.walker_rows: list[list[int]] = [[] for _ in self.local]
+        self._n_groups = len(self.sims[self.local.start].group_op_counts())
         self.vote: Any = None
         self.votes: list[Any] = []
         self.voted_at = -1
@@ -270,22 +275,38 @@ class Ladder:
 
     def _sync(self, s: int, error: str | None) -> None:
         """Meet the other members at step ``s``: share errors, votes, cutoffs and operator counts; pad
-        the cutoffs at the end of the warm-up; run the swap round of an exchange point."""
-        mine = {"error": error, "vote": self.vote,
-                "cutoff": max(sim.cutoff for sim in self.local_sims),
-                "counts": {i: self.sims[i].group_op_counts() for i in self.local} if error is None else {}}
-        got = self.team.allgather(mine)
-        errors = [g["error"] for g in got if g["error"] is not None]
-        if errors:
-            raise LadderError(errors[0])
-        self.votes, self.voted_at = [g["vote"] for g in got], s
+        the cutoffs at the end of the warm-up; run the swap round of an exchange point.
+
+        The numbers travel in one fixed-size int64 row per member (:meth:`LadderTeam.allgather_array`:
+        flags error / stop / error-in-vote / write, the largest local cutoff, then the operator counts of
+        every position, zero where not local); texts (error messages, stop reasons) follow in a second,
+        pickled exchange only when some member raised a flag, which is rare."""
+        vote = self.vote if isinstance(self.vote, dict) else {}
+        n_groups = self._n_groups
+        row = np.zeros(_ROW_HEAD + self.m * n_groups, dtype=np.int64)
+        row[0] = error is not None
+        row[1] = bool(vote.get("stop"))
+        row[2] = bool(vote.get("error"))
+        row[3] = bool(vote.get("write"))
+        row[4] = max(sim.cutoff for sim in self.local_sims)
+        if error is None:
+            for i in self.local:
+                row[_ROW_HEAD + i * n_groups:_ROW_HEAD + (i + 1) * n_groups] = self.sims[i].group_op_counts()
+        got = self.team.allgather_array(row)
+        if got[:, 0:3].any():  # some member has something to say in words
+            texts = self.team.allgather((error, self.vote))
+            errors = [e for e, _ in texts if e is not None]
+            if errors:
+                raise LadderError(errors[0])
+            self.votes = [v for _, v in texts]
+        else:
+            self.votes = [{"stop": "", "error": None, "write": bool(r[3])} for r in got]
+        self.voted_at = s
         if s == self.warmup_steps:
-            self._pad_cutoffs(max(g["cutoff"] for g in got))
+            self._pad_cutoffs(int(got[:, 4].max()))
         if s % self.every == 0 and 0 < s < self.total_steps:
-            counts: dict[int, np.ndarray] = {}
-            for g in got:
-                counts.update(g["counts"])
-            self._swap_round(s, counts)
+            counts = got[:, _ROW_HEAD:].sum(axis=0).reshape(self.m, n_groups)
+            self._swap_round(s, {i: counts[i] for i in range(self.m)})
             self._walk(count=s >= self.warmup_steps)
 
     def _pad_cutoffs(self, top: int) -> None:

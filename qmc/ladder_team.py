@@ -2,7 +2,8 @@
 
 A ladder of M chains is split into contiguous blocks, one per team member (:func:`chain_blocks`); member r
 advances the chains of its block, and the members meet only at synchronisation points (exchange points
-and the end of the warm-up), where they exchange a few numbers (:meth:`LadderTeam.allgather`) and, for an
+and the end of the warm-up), where they exchange a few numbers (:meth:`LadderTeam.allgather_array`;
+messages only when someone has one, :meth:`LadderTeam.allgather`) and, for an
 accepted swap across two blocks, the two configurations (:meth:`LadderTeam.sendrecv`).  Every member keeps
 an identical copy of the ladder's own state (swap RNG, labels, counters), so swap decisions need no
 coordinator and the bins do not depend on how many members there are.
@@ -17,6 +18,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any, Protocol
 
+import numpy as np
+
 __all__ = ["LadderTeam", "SoloTeam", "CommTeam", "chain_blocks", "team_size", "form_team"]
 
 
@@ -28,6 +31,10 @@ class LadderTeam(Protocol):
 
     def allgather(self, obj: Any) -> list[Any]:
         """Every member's ``obj``, in member order (collective)."""
+        ...
+
+    def allgather_array(self, row: np.ndarray) -> np.ndarray:
+        """Every member's int64 ``row`` (all of one length), stacked in member order: shape (size, n)."""
         ...
 
     def sendrecv(self, obj: Any, member: int) -> Any:
@@ -47,6 +54,9 @@ class SoloTeam:
 
     def allgather(self, obj: Any) -> list[Any]:
         return [obj]
+
+    def allgather_array(self, row: np.ndarray) -> np.ndarray:
+        return np.asarray(row, dtype=np.int64).reshape(1, -1).copy()
 
     def sendrecv(self, obj: Any, member: int) -> Any:
         raise RuntimeError("a one-process team has no partner to exchange with")
@@ -68,6 +78,12 @@ class CommTeam:
 
     def allgather(self, obj: Any) -> list[Any]:
         return list(self.comm.allgather(obj))
+
+    def allgather_array(self, row: np.ndarray) -> np.ndarray:
+        mine = np.ascontiguousarray(row, dtype=np.int64)
+        out = np.empty((self.size, mine.size), dtype=np.int64)
+        self.comm.Allgather(mine, out)  # buffer form: no pickling (about 5 us instead of 70 us for 2 ranks)
+        return out
 
     def sendrecv(self, obj: Any, member: int) -> Any:
         return self.comm.sendrecv(obj, dest=member, sendtag=self.TAG, source=member, recvtag=self.TAG)

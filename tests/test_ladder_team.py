@@ -53,6 +53,9 @@ class ThreadTeam:
         self.hub.barrier.wait()
         return out
 
+    def allgather_array(self, row: np.ndarray) -> np.ndarray:
+        return np.array(self.allgather(np.asarray(row, dtype=np.int64).copy()))
+
     def sendrecv(self, obj: Any, member: int) -> Any:
         self.hub.boxes[(self.member, member)].put(obj)
         return self.hub.boxes[(member, self.member)].get(timeout=120)
