@@ -85,6 +85,13 @@ class CompiledModel:
         return int(np.max(np.diff(self.term_start))) if self.n_terms else 0
 
     @property
+    def term_weights(self) -> np.ndarray:
+        """SSE weight of one operator of each term, w_t = C_t / 2^{k_t} (energy units; k_t bonds of term t:
+        an operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k)."""
+        k = np.diff(np.asarray(self.term_start)).astype(np.int64)
+        return np.asarray(self.term_coupling, dtype=np.float64) / 2.0 ** k
+
+    @property
     def energy_constant(self) -> float:
         """E_const of H = E_const - sum_t C_t prod P (whole lattice, energy units)."""
         return float(np.sum(self.group_constant))

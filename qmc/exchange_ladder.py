@@ -72,11 +72,8 @@ def ladder_tasks(tasks: Sequence[Task]) -> list[Task]:
 def chain_costs(tasks: Sequence[Task], models: Sequence[CompiledModel]) -> list[float]:
     """Relative cost of a Monte Carlo step of each chain: beta W_tot = beta sum_t C_t / 2^{k_t}, which sets
     the length of the operator string (used to balance a ladder's blocks over its team)."""
-    out = []
-    for t, m in zip(tasks, models, strict=True):
-        k = np.diff(np.asarray(m.term_start)).astype(np.int64)
-        out.append(max(float(t.beta) * float(np.sum(np.asarray(m.term_coupling) / 2.0 ** k)), 1e-300))
-    return out
+    return [max(float(t.beta) * float(np.sum(m.term_weights)), 1e-300)
+            for t, m in zip(tasks, models, strict=True)]
 
 
 def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) -> np.ndarray:

@@ -101,7 +101,7 @@ class Simulation:
         self.n_bins = int(bins)
         self.steps_per_bin = self.measure_steps // self.n_bins
         k = np.diff(model.term_start).astype(np.int64)
-        weights = model.term_coupling / (2.0 ** k)
+        weights = model.term_weights
         self.alias_prob, self.alias_idx = alias_table(weights)
         self.beta_wtot = self.beta * float(np.sum(weights))
         self.kmax = int(np.max(k))
