@@ -54,9 +54,9 @@ from pathlib import Path
 
 import numpy as np
 
-CONFIG = """
+_HEADER = """
 [run]
-seed = 4242
+seed = {seed}
 output = "run"
 [lattice]
 kind = "square"
@@ -65,6 +65,9 @@ size = [{size}, {size}]
 type = "heisenberg"
 bonds = "nn"
 coupling = 1.0
+"""
+
+CONFIG = _HEADER.replace("{seed}", "4242") + """
 [scan]
 beta = {beta}
 [sampling]
@@ -75,17 +78,7 @@ replicas = {tasks}
 checkpoint_seconds = 60
 """
 
-LADDER_CONFIG = """
-[run]
-seed = 4243
-output = "run"
-[lattice]
-kind = "square"
-size = [{size}, {size}]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
+LADDER_CONFIG = _HEADER.replace("{seed}", "4243") + """
 [[terms]]
 type = "projector-product"
 shape = "plaquette-pair"
