@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import argparse
 
-from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
-from models.compiled import CompiledModel
+from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
+from qmc.models.compiled import CompiledModel
 
 __all__ = ["CASES", "case_model", "add_case_arguments", "selected_cases"]
 

@@ -5,7 +5,7 @@ Usage:  python benchmarks/c_compare.py [--case square|jq2|all] [--L 32] [--beta 
 
 Compiles ``c_reference/sse_ref.c`` with ``<cc> -O3 -march=native`` into a temporary directory (if there is
 no C compiler it prints a JSON note and exits with status 0), then for each case runs ``--repeats``
-independent chains of the C program and of the numba engine (:class:`qmc.simulation.Simulation`, with
+independent chains of the C program and of the numba engine (:class:`qmc.chain.simulation.Simulation`, with
 all its measurements, as in benchmarks/throughput.py) and prints one JSON object per case:
 
 - ``c_cpu_ns_per_slot_per_step`` / ``numba_cpu_ns_per_slot_per_step``: CPU time (``time.process_time``
@@ -37,10 +37,10 @@ import time
 import numpy as np
 from _cases import CASES, add_case_arguments, case_model, selected_cases
 
+from qmc.chain.simulation import Simulation
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.loops import loop_update
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
+from qmc.engine.rng import stream_seed
 
 __all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "main"]
 

@@ -128,7 +128,7 @@ def _run(cmd: list[str]) -> tuple[float, float]:
 
 
 def _bins(run_dir: Path) -> dict[str, dict[str, np.ndarray]]:
-    from qmc.storage import read_run
+    from qmc.storage.task_file import read_run
 
     return {d.task_id: d.bins for d in read_run(run_dir)}
 

@@ -25,8 +25,8 @@ import time
 import numpy as np
 from _cases import CASES, add_case_arguments, case_model, selected_cases
 
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
+from qmc.chain.simulation import Simulation
+from qmc.engine.rng import stream_seed
 
 __all__ = ["measure_case", "main"]
 
@@ -69,7 +69,7 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
     start-up, a second call with the same directory the cached one."""
     code = ("import time; t=time.perf_counter();"
             "from models import build_lattice, HeisenbergTerm, compile_model;"
-            "from qmc.simulation import Simulation; from qmc.rng import stream_seed;"
+            "from qmc.chain.simulation import Simulation; from qmc.engine.rng import stream_seed;"
             "m=compile_model(build_lattice('square',(4,4)),[HeisenbergTerm(bonds='nn',coupling=1.0)]);"
             "s=Simulation(m,1.0,warmup_steps=1,measure_steps=1,bins=1,seed_words=stream_seed(1,'s'));"
             "s.advance(2); print(time.perf_counter()-t)")

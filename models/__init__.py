@@ -2,17 +2,17 @@
 
 Pure Python + numpy.  Typical use::
 
-    from models import compile_model, jq2
+    from qmc.models import compile_model, jq2
     model = compile_model(*jq2(16, J=1.0, Q=0.5))
 """
 
-from models.compile import compile_model, group_names
-from models.compiled import CompiledModel
-from models.errors import ModelError
-from models.lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice
-from models.named import NAMED_MODELS, bilayer, columnar_dimer, heisenberg, jq2, jq3
-from models.shapes import SHAPE_LATTICES, SHAPES, parse_shape, place_shape, rotations, translate_shape
-from models.terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .compile import compile_model, group_names
+from .compiled import CompiledModel
+from .errors import ModelError
+from .lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice
+from .named import NAMED_MODELS, bilayer, columnar_dimer, heisenberg, jq2, jq3
+from .shapes import SHAPE_LATTICES, SHAPES, parse_shape, place_shape, rotations, translate_shape
+from .terms import HeisenbergTerm, ProjectorProductTerm, Term
 
 __all__ = [
     "BOUNDARIES", "CompiledModel", "HeisenbergTerm", "LATTICE_KINDS", "Lattice", "ModelError",

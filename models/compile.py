@@ -23,11 +23,11 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from models.compiled import CompiledModel
-from models.errors import ModelError
-from models.lattice import Lattice
-from models.shapes import parse_shape, place_shape
-from models.terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .compiled import CompiledModel
+from .errors import ModelError
+from .lattice import Lattice
+from .shapes import parse_shape, place_shape
+from .terms import HeisenbergTerm, ProjectorProductTerm, Term
 
 __all__ = ["compile_model", "group_names"]
 

@@ -37,8 +37,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models import _builders
-from models.errors import ModelError, unknown_name
+from . import _builders
+from .errors import ModelError, unknown_name
 
 __all__ = ["Lattice", "build_lattice", "LATTICE_KINDS", "BOUNDARIES"]
 

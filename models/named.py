@@ -20,8 +20,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from models.lattice import Lattice, build_lattice
-from models.terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .lattice import Lattice, build_lattice
+from .terms import HeisenbergTerm, ProjectorProductTerm, Term
 
 __all__ = ["heisenberg", "bilayer", "columnar_dimer", "jq2", "jq3", "NAMED_MODELS"]
 

@@ -28,8 +28,8 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from models.errors import ModelError, unknown_name
-from models.lattice import Lattice
+from .errors import ModelError, unknown_name
+from .lattice import Lattice
 
 __all__ = ["Shape", "SHAPES", "SHAPE_LATTICES", "parse_shape", "rotations", "translate_shape", "place_shape"]
 

@@ -1,6 +1,6 @@
-"""``python -m qmc``: the command line (see :mod:`qmc.cli`)."""
+"""``python -m qmc``: the command line (see :mod:`qmc.cli.main`)."""
 
-from qmc.cli import main
+from qmc.cli.main import main
 
 __all__: list[str] = []
 

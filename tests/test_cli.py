@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from qmc.cli import cli
-from qmc.config import load_config
-from qmc.runner import StopFlag, run_task
-from qmc.storage import load_index, read_task, task_path
-from qmc.templates import TEMPLATES
+from qmc.cli.main import cli
+from qmc.config.parser import load_config
+from qmc.config.templates import TEMPLATES
+from qmc.run.serial import StopFlag, run_task
+from qmc.storage.task_file import load_index, read_task, task_path
 
 CONFIG = """
 [run]
@@ -170,7 +170,7 @@ def test_usage_errors_are_one_line(tmp_path):
 
 
 def test_task_failure_exit_code_and_message(tmp_path, monkeypatch):
-    import qmc.runner as runner
+    import qmc.run.serial as runner
 
     def broken(task):
         raise RuntimeError("boom")
@@ -298,7 +298,8 @@ def test_validate_hook(monkeypatch):
         echo("checked")
         return 3
 
-    monkeypatch.setitem(sys.modules, "qmc.validate", types.SimpleNamespace(run_validation=run_validation))
+    fake = types.SimpleNamespace(run_validation=run_validation)
+    monkeypatch.setitem(sys.modules, "qmc.validation.suite", fake)
     result = invoke("validate", "--thorough")
     assert result.exit_code == 3 and seen["mode"] == "thorough" and "checked" in result.stdout
     assert invoke("validate").exit_code == 3 and seen["mode"] == "quick"

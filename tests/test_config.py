@@ -1,4 +1,4 @@
-"""Configuration loading (qmc.config): malformed files give one located UserError; tasks are as specified.
+"""Configuration loading: malformed files give one located UserError; tasks are as specified.
 
 Every malformed case is a small TOML text written to tmp_path; the error text must name the file, the key
 and the problem.  Positive checks compare with hand-counted task lists.
@@ -11,10 +11,10 @@ from pathlib import Path
 
 import pytest
 
-from qmc.config import build_model, config_fingerprint, load_config, validate
+from qmc.config.parser import build_model, config_fingerprint, load_config, validate
+from qmc.config.templates import TEMPLATES, template
 from qmc.errors import UserError
-from qmc.task_identity import task_fingerprint
-from qmc.templates import TEMPLATES, template
+from qmc.run.task_identity import task_fingerprint
 
 REPO = Path(__file__).resolve().parents[1]
 

@@ -11,11 +11,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import scipy.linalg
+from qmc.models import HeisenbergTerm, Lattice, ProjectorProductTerm, build_lattice, compile_model
 from scipy import stats
 
-from models import HeisenbergTerm, Lattice, ProjectorProductTerm, build_lattice, compile_model
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
+from qmc.chain.simulation import Simulation
+from qmc.engine.rng import stream_seed
 from qmc.validation.exact import build_hamiltonian, chain_bonds, q2_plaquette_pairs, square_bonds
 
 

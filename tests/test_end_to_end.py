@@ -12,7 +12,7 @@ import json
 
 from click.testing import CliRunner
 
-from qmc.cli import cli
+from qmc.cli.main import cli
 
 G_C = 2.5220  # Wang, Beach and Sandvik, PRB 73, 014431 (2006)
 SYSTEMATIC = 0.04

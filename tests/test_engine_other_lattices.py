@@ -11,10 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from qmc.models import HeisenbergTerm, build_lattice, compile_model
 
-from models import HeisenbergTerm, build_lattice, compile_model
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
+from qmc.chain.simulation import Simulation
+from qmc.engine.rng import stream_seed
 from qmc.validation.exact import ExactSpectrum, build_hamiltonian, stiffness_by_twist
 
 

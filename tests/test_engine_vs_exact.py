@@ -10,11 +10,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 
-from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 from qmc.analysis.jackknife import jackknife
-from qmc.rng import stream_seed
-from qmc.simulation import Simulation
+from qmc.chain.simulation import Simulation
+from qmc.engine.rng import stream_seed
 from qmc.validation.exact import (
     ExactSpectrum,
     SymmetryGroup,

@@ -1,4 +1,4 @@
-"""Replica exchange along a coupling (qmc.exchange): exact results, bookkeeping, files, resuming.
+"""Replica exchange along a coupling (qmc.exchange.tasks): exact results, bookkeeping, files, resuming.
 
 Physics: on the 4x4 J-Q2 model (J = 1, beta = 2) at four values of Q, the energy per site and m_stag2 with
 exchange agree with exact diagonalization (qmc/validation/exact, independent of the engine) within 4 error
@@ -20,9 +20,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from qmc.config import build_model, load_config
+from qmc.chain.simulation import Simulation
+from qmc.config.parser import build_model, load_config
+from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.exchange import (
+from qmc.exchange.tasks import (
     GROUP_STATE_KEYS,
     Ladder,
     check_ladders,
@@ -30,10 +32,8 @@ from qmc.exchange import (
     run_group,
     work_units,
 )
-from qmc.rng import stream_seed
-from qmc.runner import StopFlag, run_task
-from qmc.simulation import Simulation
-from qmc.storage import read_task, task_path
+from qmc.run.serial import StopFlag, run_task
+from qmc.storage.task_file import read_task, task_path
 
 JQ2 = """
 [run]
@@ -384,7 +384,7 @@ def test_json_helpers_are_plain(tmp_path):
 def test_qmc_run_summary_and_inspect_show_the_exchange(tmp_path):
     from click.testing import CliRunner
 
-    from qmc.cli import cli
+    from qmc.cli.main import cli
 
     config_path = write_config(tmp_path, measure=1000, bins=10)
     config, unit = ladder_of(config_path)
@@ -413,7 +413,7 @@ def test_qmc_run_summary_and_inspect_show_the_exchange(tmp_path):
 def test_a_zero_coupling_is_refused_by_qmc_run(tmp_path):
     from click.testing import CliRunner
 
-    from qmc.cli import cli
+    from qmc.cli.main import cli
 
     result = CliRunner().invoke(cli, ["run", str(write_config(tmp_path, q=[0.0, 0.5])), "--quiet"])
     assert result.exit_code == 2

@@ -1,4 +1,4 @@
-"""The safe value parser of the configuration (qmc.expressions): accepted forms, values, rejections.
+"""The safe value parser of the configuration (qmc.config.expressions): accepted forms, values, rejections.
 
 Expected values are plain arithmetic (Python number semantics, checked by hand).
 """
@@ -7,8 +7,8 @@ import builtins
 
 import pytest
 
+from qmc.config.expressions import format_number, parse_expression
 from qmc.errors import UserError
-from qmc.expressions import format_number, parse_expression
 
 
 @pytest.mark.parametrize("text, values, expected", [

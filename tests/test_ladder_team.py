@@ -1,4 +1,4 @@
-"""A replica-exchange ladder split over several processes (qmc.ladder_team) gives the bins of one process.
+"""A replica-exchange ladder split over several processes (qmc.exchange.team) gives the bins of one process.
 
 The team members here are threads of this test with an in-memory allgather/sendrecv (the same two calls an
 MPI team makes; the real ``mpiexec`` runs are in test_mpi.py).  Checks: bins, walks and ladder state are
@@ -21,11 +21,11 @@ import numpy as np
 import pytest
 from test_exchange import StopAt, ladder_of, reference, stored, write_config
 
-from qmc.exchange import run_group
-from qmc.ladder_team import SoloTeam, chain_blocks
-from qmc.runner import StopFlag
-from qmc.simulation import Simulation
-from qmc.storage import task_path
+from qmc.chain.simulation import Simulation
+from qmc.exchange.tasks import run_group
+from qmc.exchange.team import SoloTeam, chain_blocks
+from qmc.run.serial import StopFlag
+from qmc.storage.task_file import task_path
 
 Q5 = [0.6, 0.8, 1.0, 1.2, 1.4]
 
@@ -146,7 +146,7 @@ def test_a_failing_chain_fails_every_member(tmp_path, monkeypatch):
         return original(self, n)
 
     broken_model: list[Any] = [None]
-    import qmc.exchange_ladder as ladder_module
+    import qmc.exchange.ladder as ladder_module
 
     real_init = ladder_module.Ladder.__init__
 

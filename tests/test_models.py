@@ -12,9 +12,7 @@ from collections import Counter
 
 import numpy as np
 import pytest
-from scipy import sparse
-
-from models import (
+from qmc.models import (
     CompiledModel,
     HeisenbergTerm,
     Lattice,
@@ -31,6 +29,7 @@ from models import (
     place_shape,
     rotations,
 )
+from scipy import sparse
 
 # ----------------------------------------------------------------------------------------------- helpers
 

@@ -21,11 +21,11 @@ import h5py
 import numpy as np
 import pytest
 
-from qmc.config import load_config
-from qmc.exchange import Ladder, work_units
-from qmc.mpi_farm import launcher_rank_size, mpi_world
-from qmc.runner import StopFlag, run_task
-from qmc.storage import load_index, read_task, task_path
+from qmc.config.parser import load_config
+from qmc.exchange.tasks import Ladder, work_units
+from qmc.mpi.farm import launcher_rank_size, mpi_world
+from qmc.run.serial import StopFlag, run_task
+from qmc.storage.task_file import load_index, read_task, task_path
 
 pytest.importorskip("mpi4py")
 

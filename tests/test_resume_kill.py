@@ -1,7 +1,7 @@
 """Crash safety of `qmc run` for real: a subprocess killed with SIGKILL at random moments and resumed
 gives bins bit-identical to an uninterrupted run; SIGTERM and --max-time stop cleanly with exit 0.
 
-The reference is the same task run in this process by :func:`qmc.runner.run_task` without interruption
+The reference is the same task run in this process by :func:`qmc.run.serial.run_task` without interruption
 (same master seed, so the same random stream).  Delays are drawn from a seeded generator; what they hit
 (start-up, a chunk, a file write) varies with the machine, which is the point.
 """
@@ -19,11 +19,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from qmc.config import load_config
-from qmc.runner import run_task
-from qmc.storage import load_index, read_task, task_path
+from qmc.config.parser import load_config
+from qmc.run.serial import run_task
+from qmc.storage.task_file import load_index, read_task, task_path
 
-# ~6 s of Monte Carlo work on the development machine (L=4: ~6 us/step, L=8: ~12 us/step), so that the
+# ~10 s of Monte Carlo work (L=8 at beta = 2: ~15 us/step on a 2026 machine), so that the
 # L=8 task always writes intermediate checkpoints (at most one write per second)
 SHORT = """
 [run]
@@ -38,16 +38,16 @@ bonds = "nn"
 coupling = 1.0
 [scan]
 L = [4, 8]
-beta = 1.0
+beta = 2.0
 [sampling]
 warmup_steps = 1000
-measure_steps = 300000
+measure_steps = 400000
 bins = 50
 checkpoint_seconds = 0.5
 """
 
 # far more work than any test waits for: only ever stopped by a signal or --max-time
-LONG = SHORT.replace("L = [4, 8]", "L = [6]").replace("measure_steps = 300000", "measure_steps = 50000000") \
+LONG = SHORT.replace("L = [4, 8]", "L = [6]").replace("measure_steps = 400000", "measure_steps = 50000000") \
     .replace("bins = 50", "bins = 10000")
 
 

@@ -3,7 +3,7 @@
 import numpy as np
 from scipy import stats
 
-from qmc.rng import draw_doubles, stream_seed
+from qmc.engine.rng import draw_doubles, stream_seed
 
 MASK = (1 << 64) - 1
 

@@ -10,15 +10,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import qmc.pacing as pacing
-import qmc.runner as runner
-from qmc.config import load_config
+import qmc.run.pacing as pacing
+import qmc.run.serial as runner
+from qmc.chain.simulation import Simulation
+from qmc.config.parser import load_config
+from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.progress import Progress, format_duration
-from qmc.rng import stream_seed
-from qmc.runner import StopFlag, prepare_run, run_serial, run_task, task_fingerprint
-from qmc.simulation import Simulation
-from qmc.storage import load_index, read_task, task_path, write_task
+from qmc.run.progress import Progress, format_duration
+from qmc.run.serial import StopFlag, prepare_run, run_serial, run_task, task_fingerprint
+from qmc.storage.task_file import load_index, read_task, task_path, write_task
 
 CONFIG = """
 [run]
@@ -50,7 +50,7 @@ def config_file(tmp: Path, *, sizes="[4]", J="1.0", measure=2000, kind="square",
 
 def direct_bins(task) -> np.ndarray:
     """The task's bins from one uninterrupted Simulation.advance call (no chunks, no files)."""
-    from qmc.config import build_model
+    from qmc.config.parser import build_model
 
     s = task.sampling
     sim = Simulation(build_model(task), task.beta, warmup_steps=s.warmup_steps, measure_steps=s.measure_steps,

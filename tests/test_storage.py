@@ -14,9 +14,9 @@ import h5py
 import numpy as np
 import pytest
 
-import qmc.storage as storage
+import qmc.storage.task_file as storage
 from qmc.errors import UserError
-from qmc.storage import (
+from qmc.storage.task_file import (
     TASK_FORMAT,
     TaskRecord,
     load_index,
@@ -115,7 +115,7 @@ _WRITER = textwrap.dedent("""
     import sys, numpy as np
     sys.path.insert(0, {tests!r})
     from test_storage import make_record
-    from qmc.storage import write_task
+    from qmc.storage.task_file import write_task
     k = 1
     while True:
         write_task({path!r}, make_record(n_bins=k % 50 + 1))

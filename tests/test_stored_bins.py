@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from qmc.cli import cli
+from qmc.cli.main import cli
 
 DATA = Path(__file__).parent / "data" / "stored_bins"
 RUNS = ("heisenberg", "jq2", "jq3", "bilayer", "ladder")

@@ -6,8 +6,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 
-from models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 from qmc.engine.vertices import TT_BOND, TT_META, term_table
 
 

@@ -1,4 +1,4 @@
-"""Tests of the reference-check suite ``qmc validate`` (qmc.validate, qmc.validation).
+"""Tests of the reference-check suite ``qmc validate`` (qmc.validation.suite, qmc.validation).
 
 References used here: closed-form ground states of the 2- and 4-site rings (-3J/2 and -2J), the
 exact diagonalization of qmc.validation.exact (itself tested in test_exact_diag.py), the conformal-field-
@@ -19,7 +19,6 @@ import numpy as np
 import pytest
 
 from qmc.errors import UserError
-from qmc.validate import run_validation
 from qmc.validation import references as refs
 from qmc.validation.cases import Case, build_cases, chain_energy_case, cluster_case
 from qmc.validation.checks import SIGMAS, Check, failed_check
@@ -36,6 +35,7 @@ from qmc.validation.fits import fit_powers
 from qmc.validation.jobs import ExactJob
 from qmc.validation.progress import SuiteProgress
 from qmc.validation.runner import collect_jobs, run_cases
+from qmc.validation.suite import run_validation
 from qmc.validation.table import HEADER, format_reference, format_table, format_value
 
 EXACT = refs.computed(1.0)

@@ -1,6 +1,6 @@
 """Task records as seen by the analysis layer, and canonical parameter values.
 
-The analysis reads any object with the attributes of ``qmc.storage.TaskData``:
+The analysis reads any object with the attributes of ``qmc.storage.task_file.TaskData``:
 ``task_id, params, bins, steps_per_bin, n_sites, linear_size, beta, vbs_histogram,
 vbs_hist_range, status, exchange``.  :class:`AnalysisTask` is a plain implementation used for merged
 replicas and for synthetic input.  Parameter values read from files may be numpy scalars, arrays or

@@ -33,7 +33,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.rng import next_double
+from qmc.engine.rng import next_double
 
 __all__ = ["diagonal_sweep", "SWEEP_OUT_SIZE"]
 

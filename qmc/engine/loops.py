@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.rng import next_double
+from qmc.engine.rng import next_double
 
 __all__ = ["loop_update"]
 

@@ -5,7 +5,7 @@ compared quantity and the pass rule), ``fits`` (finite-size extrapolations), ``j
 exact-diagonalization work items, run in worker processes), ``cases`` (the checks of each mode: which
 runs, how they are analysed), ``progress`` (ETA on standard error), ``runner`` (plan, run, evaluate),
 ``table`` (the printed table), ``exact`` (the independent exact reference, numpy/scipy only).
-Entry point: :func:`qmc.validate.run_validation`.
+Entry point: :func:`qmc.validation.suite.run_validation`.
 
 This ``__init__`` deliberately imports nothing, so that ``qmc.validation.exact`` can be imported without
 the engine.

@@ -27,9 +27,9 @@ from typing import Any
 
 import numpy as np
 
-from models import HeisenbergTerm, ProjectorProductTerm
 from qmc.analysis import derived_estimates, error_estimate, find_crossing
 from qmc.errors import UserError
+from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
 from .checks import Check
 from .exact.bethe import chain_ground_state_energy

@@ -50,7 +50,7 @@ class ModelSpec:
     terms: tuple[Any, ...]
 
     def build(self):  # -> models.CompiledModel (imported lazily: workers import the engine themselves)
-        from models import build_lattice, compile_model
+        from qmc.models import build_lattice, compile_model
 
         return compile_model(build_lattice(self.lattice, self.size), list(self.terms))
 
@@ -108,8 +108,8 @@ class SimResult:
 
 
 def _run_sim(job: SimJob, report: Callable[[str, float], None]) -> SimResult:
-    from qmc.rng import stream_seed
-    from qmc.simulation import Simulation
+    from qmc.chain.simulation import Simulation
+    from qmc.engine.rng import stream_seed
 
     t0 = time.perf_counter()
     model = job.model.build()

@@ -17,7 +17,7 @@ import time
 from collections.abc import Callable, Iterable
 from typing import TextIO
 
-from qmc.progress import LineDisplay, format_duration
+from qmc.run.progress import LineDisplay, format_duration
 
 __all__ = ["MIN_SHARE", "SuiteProgress"]
 

@@ -15,7 +15,7 @@ Task file layout (``format = "dsqmc-task"``, ``format_version = 1``)::
                       warmup_steps, measure_steps
     /vbs_histogram    int64[nh, nh] counts of (D_x, D_y), attr range r (edges linspace(-r, r, nh+1))
     /checkpoint/<key> Simulation.state() arrays; attrs steps_done, bins_done, steps_total, time, time_iso
-    /exchange         optional, written by replica exchange (:mod:`qmc.exchange`): attrs for scalars and
+    /exchange         optional, written by replica exchange (:mod:`qmc.exchange.tasks`): attrs for scalars and
                       short lists, datasets for numpy arrays, subgroups for nested mappings
 
 Crash safety: :func:`write_task` writes a complete new file ``<name>.h5.tmp``, flushes and fsyncs it,

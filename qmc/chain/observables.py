@@ -29,8 +29,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.compiled import CompiledModel
 from qmc.engine import steps as S
+from qmc.models.compiled import CompiledModel
 
 __all__ = ["bin_names", "bin_row"]
 

@@ -1,6 +1,6 @@
 """Commented example configurations printed by ``qmc new KIND``.
 
-Every template is a complete configuration (see :mod:`qmc.config` for the schema) whose comments explain
+Every template is a complete configuration (schema: :mod:`qmc.config.parser`) whose comments explain
 each key; all of them load and validate as they are.  The scenarios and run names are invented demos.
 Where a comment says where a transition is expected, the value is quoted from memory and only sets the
 scan window of the demo.

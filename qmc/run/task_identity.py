@@ -1,7 +1,7 @@
 """Identity and cost of a task: the fingerprint of its Markov chain, its relative weight, its step count.
 
-Shared by the runner (:mod:`qmc.runner`), the run planning (:mod:`qmc.run_plan`), replica exchange
-(:mod:`qmc.exchange`) and the MPI farm, so that none of them has to import another for these.
+Shared by the runner (:mod:`qmc.run.serial`), the run planning (:mod:`qmc.run.plan`), replica exchange
+(:mod:`qmc.exchange.tasks`) and the MPI farm, so that none of them has to import another for these.
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ import hashlib
 import json
 import math
 
-from qmc.config import Task
+from qmc.config.parser import Task
 
 __all__ = ["task_fingerprint", "task_weight", "steps_total"]
 

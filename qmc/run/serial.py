@@ -3,7 +3,7 @@
 :func:`run_task` is the unit of work.  It builds the task's model, resumes from the task file's checkpoint
 if there is one (keeping its first ``bins_done`` bins), advances the Simulation in chunks of about
 ``CHUNK_SECONDS`` wall-clock seconds (the step time is measured as it goes; chunking never changes results),
-and rewrites the task file atomically (:func:`qmc.storage.write_task`):
+and rewrites the task file atomically (:func:`qmc.storage.task_file.write_task`):
 
 * when a bin has completed or ``checkpoint_seconds`` have passed, but at most once per
   ``MIN_WRITE_INTERVAL`` seconds;
@@ -14,10 +14,10 @@ and let one rank update the index from the returned :class:`TaskOutcome`.  Any e
 caught and returned as status ``failed`` with its message (the traceback goes to the logger); the last
 checkpoint stays valid.
 
-:func:`prepare_run` (in :mod:`qmc.run_plan`, re-exported here) checks a configuration against a run
+:func:`prepare_run` (in :mod:`qmc.run.plan`, re-exported here) checks a configuration against a run
 directory and lists the unfinished tasks, largest lattices first.  :func:`run_serial` runs them one after
-the other (a replica-exchange ladder as one unit, see :mod:`qmc.exchange`) and keeps
-``index.json`` up to date; :mod:`qmc.mpi_farm` does the same over MPI ranks.
+the other (a replica-exchange ladder as one unit, see :mod:`qmc.exchange.tasks`) and keeps
+``index.json`` up to date; :mod:`qmc.mpi.farm` does the same over MPI ranks.
 """
 
 from __future__ import annotations
@@ -32,16 +32,16 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from qmc.config import Task, build_model, config_fingerprint
+from qmc.chain.simulation import Simulation
+from qmc.config.parser import Task, build_model, config_fingerprint
+from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.pacing import CHUNK_SECONDS, MIN_WRITE_INTERVAL, next_chunk, write_due
-from qmc.progress import NullProgress, ProgressSink
-from qmc.provenance import session_entry, task_provenance
-from qmc.rng import stream_seed
-from qmc.run_plan import RunPlan, prepare_run
-from qmc.simulation import Simulation
-from qmc.storage import TaskRecord, now_iso, read_task, task_path, write_index, write_task
-from qmc.task_identity import steps_total, task_fingerprint, task_weight
+from qmc.run.pacing import CHUNK_SECONDS, MIN_WRITE_INTERVAL, next_chunk, write_due
+from qmc.run.plan import RunPlan, prepare_run
+from qmc.run.progress import NullProgress, ProgressSink
+from qmc.run.task_identity import steps_total, task_fingerprint, task_weight
+from qmc.storage.provenance import session_entry, task_provenance
+from qmc.storage.task_file import TaskRecord, now_iso, read_task, task_path, write_index, write_task
 
 __all__ = [
     "CHUNK_SECONDS", "MIN_WRITE_INTERVAL", "StopFlag", "TaskOutcome", "RunPlan", "RunReport",
@@ -328,9 +328,9 @@ def run_serial(plan: RunPlan, *, stop_flag: _Flag | None = None, progress: Progr
     """Run the plan's work in this process, one unit after the other, updating ``index.json`` after each.
 
     A unit is a single task (:func:`run_task`) or a whole replica-exchange ladder
-    (:func:`qmc.exchange.run_group`), as split by :func:`qmc.exchange.work_units`.
+    (:func:`qmc.exchange.tasks.run_group`), as split by :func:`qmc.exchange.tasks.work_units`.
     """
-    from qmc.exchange import run_unit, work_units
+    from qmc.exchange.tasks import run_unit, work_units
 
     log = logger if logger is not None else logging.getLogger("qmc.run")
     outcomes: list[TaskOutcome] = []

@@ -21,7 +21,7 @@ Schema (sections and keys; ``*`` marks required ones)::
                 exchange_ranks = at most this many MPI ranks per ladder (default: as many as help)
 
 Numbers in ``size`` and ``coupling`` may be scan names or products such as ``"2*L"`` (see
-:mod:`qmc.expressions`).  Every combination of the scanned values (cartesian product in file order,
+:mod:`qmc.config.expressions`).  Every combination of the scanned values (cartesian product in file order,
 first entry slowest) times ``replicas`` is one :class:`Task`.  Every problem raises
 :class:`~qmc.errors.UserError` with ``where = "<file>: <key>"``, e.g. ``"configs/x.toml: terms[1].coupling"``
 (``[[terms]]`` blocks are numbered from 0 in order of appearance).
@@ -40,10 +40,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import models
-from models import BOUNDARIES, LATTICE_KINDS, CompiledModel, ModelError
+import qmc.models as models
+from qmc.config.expressions import Expression, Number, format_number, parse_expression
 from qmc.errors import UserError, describe_value, did_you_mean
-from qmc.expressions import Expression, Number, format_number, parse_expression
+from qmc.models import BOUNDARIES, LATTICE_KINDS, CompiledModel, ModelError
 
 __all__ = [
     "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES",
@@ -177,7 +177,7 @@ class Task:
     ``terms`` are dicts whose keys other than ``type`` are the keyword arguments of the models term
     classes (``bonds``/``shape``, numeric ``coupling``, optional ``symmetrize``, ``name``).  ``explicit`` is
     ``{"sites", "bonds", "classes"}`` for an explicit lattice, else None.  The random stream of the task is
-    ``qmc.rng.stream_seed(seed, seed_key)``: it depends on the master seed and the parameter values only.
+    ``stream_seed(seed, seed_key)``: it depends on the master seed and the parameter values only.
     ``exchange_group`` names the replica-exchange ladder the task belongs to (tasks that differ only in
     the exchanged parameter share it), or is None without exchange.
     """

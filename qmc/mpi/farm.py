@@ -7,9 +7,9 @@ before.  Without mpi4py but with a launcher that started K > 1 processes, rank 0
 environment) runs everything serially and the others exit at once, so no task runs twice.
 
 Scheme (rank 0 coordinates AND computes, by interleaving): the units of work are single tasks and whole
-replica-exchange ladders (:func:`qmc.exchange.work_units`), queued largest first (estimated cost: lattice
+replica-exchange ladders (``work_units``), queued largest first (estimated cost: lattice
 cells x beta x steps left x tasks in the unit).  Rank 0 takes units from the queue itself and runs them in
-chunks of about 0.3 s (:func:`qmc.runner.run_task` chunks); between two chunks, and whenever it has no
+chunks of about 0.3 s (:func:`qmc.run.serial.run_task` chunks); between two chunks, and whenever it has no
 unit of its own, it answers the other ranks' messages (``Iprobe``): a request gets the next unit (or
 "finish" when the queue is empty or the run is stopping), a report of finished tasks goes into the run
 index.  To hide the up-to-one-chunk answer delay, a worker asks for its next unit as soon as it starts
@@ -21,7 +21,7 @@ one ``bcast`` (``send/isend/recv/Iprobe/bcast``, pickled objects); ladder teams 
 ``allgather`` and ``sendrecv`` on their own communicators.
 
 Exchange ladders: a ladder of M chains runs side by side on ``p = team_size(M, min(K, exchange_ranks))``
-ranks (:mod:`qmc.ladder_team`).  Rank 0 keeps the queue order: waiting workers are answered by
+ranks (:mod:`qmc.exchange.team`).  Rank 0 keeps the queue order: waiting workers are answered by
 :meth:`_Coordinator._dispatch`; when the front unit is a ladder it waits until p ranks wait for work (rank 0
 counts when it has no unit of its own), then sends each of them ("team", unit, ranks); the team makes its
 own communicator (``Create_group``, collective over its members only) and each member reports the
@@ -48,10 +48,10 @@ from collections import deque
 from dataclasses import dataclass, field
 from typing import Any
 
-from qmc.exchange import is_ladder, run_unit, work_units
-from qmc.ladder_team import form_team, team_size
-from qmc.runner import RunPlan, RunReport, TaskOutcome, task_weight, update_index
-from qmc.storage import now_iso, write_index
+from qmc.exchange.tasks import is_ladder, run_unit, work_units
+from qmc.exchange.team import form_team, team_size
+from qmc.run.serial import RunPlan, RunReport, TaskOutcome, task_weight, update_index
+from qmc.storage.task_file import now_iso, write_index
 
 __all__ = [
     "INDEX_INTERVAL", "MpiWorld", "FarmStats", "launcher_rank_size", "mpi_world", "unit_cost",
@@ -279,7 +279,7 @@ class _Coordinator:
             self.sends = [r for r in self.sends if not r.test()[0]]
 
     def _members(self, idx: int) -> int:
-        """Ranks a unit runs on: 1 for a single task, :func:`qmc.ladder_team.team_size` for a ladder."""
+        """Ranks a unit runs on: 1 for a single task, :func:`qmc.exchange.team.team_size` for a ladder."""
         unit = self.units[idx]
         if not is_ladder(unit):
             return 1
@@ -461,11 +461,11 @@ def run_farm(world: MpiWorld, plan: RunPlan, *, stop_flag: Any = None, progress:
              logger: logging.Logger | None = None, deadline: float | None = None) -> RunReport:
     """Rank 0: hand the plan's units out to all ranks (and run some itself); keeps ``index.json``.
 
-    Same result as :func:`qmc.runner.run_serial`; the statistics are logged and kept in ``run_farm.stats``.
+    Same result as ``run_serial``; the statistics are logged and kept in ``run_farm.stats``.
     Any unexpected error aborts the whole MPI job (``MPI_Abort``) rather than leaving ranks waiting.
     """
-    from qmc.progress import NullProgress
-    from qmc.runner import StopFlag
+    from qmc.run.progress import NullProgress
+    from qmc.run.serial import StopFlag
 
     stop_flag = stop_flag if stop_flag is not None else StopFlag()
     log = logger if logger is not None else logging.getLogger("qmc.run")

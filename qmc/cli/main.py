@@ -50,7 +50,7 @@ class _Cli(click.Group):
 
 
 @click.group(name="qmc", cls=_Cli, context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(package_name="dsqmc", prog_name="qmc")
+@click.version_option(package_name="seriesloop", prog_name="qmc")
 def cli() -> None:
     """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 spin models."""
 
@@ -119,10 +119,10 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
 
     SIGTERM (e.g. a cluster time limit) or --max-time: the running task writes a checkpoint and the
     command exits 0; the next `qmc run` continues where it stopped.  Started by an MPI launcher
-    (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks (see qmc.mpi_farm).
+    (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks (see qmc.mpi.farm).
     """
-    from qmc.mpi_farm import mpi_world
-    from qmc.runner import StopFlag
+    from qmc.mpi.farm import mpi_world
+    from qmc.run.serial import StopFlag
 
     t_start = time.time()
     world = mpi_world()  # before the signal handlers, so that MPI start-up cannot replace them
@@ -132,7 +132,7 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
         if world is not None and world.idle:  # an extra process of a launcher without mpi4py
             code = 0
         elif world is not None and world.rank != 0:
-            from qmc.mpi_farm import run_worker
+            from qmc.mpi.farm import run_worker
 
             code = run_worker(world, stop_flag=flag)
         else:
@@ -146,9 +146,9 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
 def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool, quiet: bool,
               max_time: float | None, t_start: float, flag: Any, world: Any) -> int:
     """Serial run, or rank 0 of an MPI run; returns the exit status."""
-    from qmc.config import load_config
-    from qmc.progress import NullProgress, Progress
-    from qmc.runner import prepare_run, run_serial, task_weight
+    from qmc.config.parser import load_config
+    from qmc.run.progress import NullProgress, Progress
+    from qmc.run.serial import prepare_run, run_serial, task_weight
 
     try:
         cfg = load_config(config)
@@ -169,7 +169,7 @@ def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool
                         plan.index["tasks"][t.task_id]["steps_done"]) for t in plan.tasks])
         deadline = t_start + max_time if max_time is not None else None
         if world is not None:
-            from qmc.mpi_farm import run_farm
+            from qmc.mpi.farm import run_farm
 
             report = run_farm(world, plan, stop_flag=flag, progress=progress, logger=logger,
                               deadline=deadline)
@@ -263,8 +263,8 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
     """
     from qmc.analysis import group_replicas, summarize_task
     from qmc.analysis.tables import to_jsonable
-    from qmc.exchange import exchange_summary
-    from qmc.storage import read_run
+    from qmc.exchange.tasks import exchange_summary
+    from qmc.storage.task_file import read_run
 
     tasks = read_run(run_dir)
     records = group_replicas(tasks) if merge_replicas else tasks
@@ -314,7 +314,7 @@ def _inspect_text(d: Any) -> str:
                                       f"[-{d.vbs_hist_range:g}, {d.vbs_hist_range:g}]^2, "
                                       f"{int(d.vbs_histogram.sum())} samples"))
     if d.exchange:
-        from qmc.exchange import exchange_summary
+        from qmc.exchange.tasks import exchange_summary
 
         x = exchange_summary(d.exchange)
         plain = {k: (v.tolist() if hasattr(v, "tolist") else v) for k, v in d.exchange.items()}
@@ -342,7 +342,7 @@ def _inspect_text(d: Any) -> str:
 def inspect_cmd(file: Path) -> None:
     """What a task file holds: task, status, parameters, bins and steps done, checkpoint, provenance,
     configuration."""
-    from qmc.storage import read_task
+    from qmc.storage.task_file import read_task
 
     click.echo(_inspect_text(read_task(file)))
 
@@ -358,7 +358,7 @@ def inspect_cmd(file: Path) -> None:
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def new_cmd(kind: str, out: Path | None, force: bool) -> None:
     """Write the commented example configuration KIND (heisenberg, bilayer, columnar-dimer, jq2, jq3)."""
-    from qmc.templates import template
+    from qmc.config.templates import template
 
     text = template(kind)
     if out is not None and str(out) == "-":
@@ -395,7 +395,7 @@ def analyze_cmd(run_dir: Path, quantity: str, coupling: str | None, plot: bool, 
                 as_json: bool) -> None:
     """Finite-size analysis of a run: observable tables, crossings of QUANTITY, extrapolation, plots."""
     from qmc.analysis import analyze_run, format_result
-    from qmc.storage import read_run
+    from qmc.storage.task_file import read_run
 
     tasks = read_run(run_dir)
     target = out if out is not None else (run_dir if run_dir.is_dir() else run_dir.parent) / "analysis"
@@ -406,20 +406,20 @@ def analyze_cmd(run_dir: Path, quantity: str, coupling: str | None, plot: bool, 
 
 
 # ----------------------------------------------------------------------------------------------------------
-# qmc validate (hook: the implementation lives in qmc.validate)
+# qmc validate (hook: the implementation lives in qmc.validation.suite)
 
 
 @cli.command("validate")
 @click.option("--quick", "mode", flag_value="quick", default=True, help="Short checks (default).")
 @click.option("--thorough", "mode", flag_value="thorough", help="Longer checks with tighter error bars.")
 def validate_cmd(mode: str) -> None:
-    """Check the simulation against exact results (see qmc.validate)."""
+    """Check the simulation against exact results (see qmc.validation.suite)."""
     try:
-        from qmc.validate import run_validation
+        from qmc.validation.suite import run_validation
     except ImportError as exc:
-        if exc.name not in ("qmc.validate",):
+        if exc.name not in ("qmc.validation.suite",):
             raise
-        raise UserError("the validation suite (qmc.validate) is not installed", "qmc validate") from None
+        raise UserError("the validation suite is not installed", "qmc validate") from None
     code = run_validation(mode, click.echo)
     if code:
         sys.exit(int(code))

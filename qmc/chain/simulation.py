@@ -13,13 +13,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from models.compiled import CompiledModel
-from qmc.alias import alias_table
+from qmc.chain.alias import alias_table
+from qmc.chain.observables import bin_names, bin_row
 from qmc.engine.diagonal import SWEEP_OUT_SIZE
+from qmc.engine.rng import draw_doubles
 from qmc.engine.steps import acc_size, run_steps
 from qmc.engine.vertices import apply_pending_flips, count_ops, term_table
-from qmc.estimators import bin_names, bin_row
-from qmc.rng import draw_doubles
+from qmc.models.compiled import CompiledModel
 
 __all__ = ["Simulation", "HIST_BINS", "HIST_RANGE"]
 
@@ -222,7 +222,7 @@ class Simulation:
 
         The RNG, step counters, accumulators and histogram stay with the chain.  The cutoff travels with the
         configuration: the SSE weight summed over placements does not depend on it, so the swap acceptance
-        involves only the couplings (see :func:`qmc.exchange_rule.swap_log_ratio`)."""
+        involves only the couplings (see :func:`qmc.exchange.rule.swap_log_ratio`)."""
         apply_pending_flips(self.ops, self.vflip, self.term_start)
         return {"spins": self.spins.copy(), "ops": self.ops.copy(), "counters": self.counters.copy()}
 

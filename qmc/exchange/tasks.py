@@ -3,17 +3,17 @@
 An exchange group (``Task.exchange_group``) is the set of tasks that differ only in the coupling named by
 ``[sampling] exchange``; sorted by that coupling they form a *ladder* of M chains that advance in lockstep
 and swap configurations at exchange points.  The ladder in memory (swap rule, random stream, cutoff
-padding, walker bookkeeping) is :class:`Ladder` in :mod:`qmc.exchange_ladder`, re-exported here with its
+padding, walker bookkeeping) is :class:`Ladder` in :mod:`qmc.exchange.ladder`, re-exported here with its
 helpers; this module runs ladders with their task files.
 
-A ladder is one unit of work for a *team* of processes (:mod:`qmc.ladder_team`): one process in a serial
-run, up to M MPI ranks under the farm (:mod:`qmc.mpi_farm`), each running a contiguous block of the chains
+A ladder is one unit of work for a *team* of processes (:mod:`qmc.exchange.team`): one process in a serial
+run, up to M MPI ranks under the farm (:mod:`qmc.mpi.farm`), each running a contiguous block of the chains
 and writing their task files.  The members meet only at synchronisation points, where they agree on
 stopping and on checkpoint writes (:meth:`_GroupRun.execute`), so all files of a ladder always hold the
 same step; any error on one member is raised on all of them.  Bins are bit-identical for every team
 size (tests/test_ladder_team.py, tests/test_mpi.py).
 
-Files: each task of the ladder has its own task file (see :mod:`qmc.storage`) with an ``/exchange`` group:
+Files: each task of the ladder has its own task file with an ``/exchange`` group:
 attrs ``parameter, group, position, value, values, task_ids, exchange_every, acceptance_up,
 acceptance_down, round_trips_total`` and datasets ``attempted, accepted, warmup_attempted,
 warmup_accepted`` (per pair, M-1), ``round_trips`` (per configuration), ``n_up, n_down`` (per position)
@@ -37,9 +37,10 @@ from typing import Any
 
 import numpy as np
 
-from qmc.config import Task, build_model
+from qmc.config.parser import Task, build_model
+from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.exchange_ladder import (
+from qmc.exchange.ladder import (
     GROUP_STATE_KEYS,
     Ladder,
     LadderError,
@@ -48,13 +49,12 @@ from qmc.exchange_ladder import (
     exchange_seed_key,
     ladder_tasks,
 )
-from qmc.ladder_team import LadderTeam, SoloTeam, chain_blocks
-from qmc.pacing import next_chunk, write_due
-from qmc.progress import NullProgress, ProgressSink
-from qmc.provenance import session_entry, task_provenance
-from qmc.rng import stream_seed
-from qmc.storage import TaskRecord, now_iso, read_task, task_path, write_task
-from qmc.task_identity import task_fingerprint
+from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
+from qmc.run.pacing import next_chunk, write_due
+from qmc.run.progress import NullProgress, ProgressSink
+from qmc.run.task_identity import task_fingerprint
+from qmc.storage.provenance import session_entry, task_provenance
+from qmc.storage.task_file import TaskRecord, now_iso, read_task, task_path, write_task
 
 __all__ = [
     "Ladder", "ladder_tasks", "check_ladder_models", "check_ladders", "exchange_seed_key", "work_units",
@@ -87,7 +87,7 @@ def _rate(acc: int, att: int) -> float:
 
 
 def exchange_summary(info: dict[str, Any] | None) -> dict[str, Any] | None:
-    """Acceptance rates of one task's ``/exchange`` data (as :func:`qmc.storage.read_task` returns it).
+    """Acceptance rates of one task's ``/exchange`` data (as ``read_task`` returns it).
 
     Returns ``{"parameter", "position", "values", "value", "attempted", "accepted", "acceptance",
     "acceptance_up", "acceptance_down", "round_trips"}`` (per-pair lists over the whole ladder; the
@@ -153,11 +153,11 @@ def is_ladder(unit: Sequence[Task]) -> bool:
 
 def run_unit(unit: Sequence[Task], run_dir: str | os.PathLike, *, team: LadderTeam | None = None,
              **kwargs: Any) -> list[Any]:
-    """Run one unit of :func:`work_units`: :func:`qmc.runner.run_task` for a single task without exchange,
+    """Run one unit of :func:`work_units`: :func:`qmc.run.serial.run_task` for a single task without exchange,
     :func:`run_group` for a ladder (on ``team``, default this process alone).  Returns the TaskOutcome of
     every task of the unit run here."""
     if not is_ladder(unit):
-        from qmc.runner import run_task
+        from qmc.run.serial import run_task
 
         return [run_task(unit[0], run_dir, **kwargs)]
     return run_group(unit, run_dir, team=team, **kwargs)
@@ -582,13 +582,13 @@ def run_group(
 ) -> list[Any]:
     """Run (or resume) the ladder of one exchange group until done, stopped or out of time.
 
-    Same contract as :func:`qmc.runner.run_task`, for all tasks of the group at once: returns one
-    :class:`qmc.runner.TaskOutcome` per task in ladder order (all with the same status); a problem of the
+    Same contract as :func:`qmc.run.serial.run_task`, for all tasks of the group at once: returns one
+    :class:`qmc.run.serial.TaskOutcome` per task in ladder order (all with the same status); a problem of the
     group is recorded as status ``failed`` with its message in every task of it, never raised.  With a
-    ``team`` of several processes (:mod:`qmc.ladder_team`; every member calls this with the same tasks)
+    ``team`` of several processes (:mod:`qmc.exchange.team`; every member calls this with the same tasks)
     each member runs and writes the tasks of its block of the ladder and returns their outcomes.
     """
-    from qmc.runner import TaskOutcome
+    from qmc.run.serial import TaskOutcome
 
     t_call = time.time()
     log = logger if logger is not None else logging.getLogger("qmc.run")

@@ -5,7 +5,7 @@ An exchange group (``Task.exchange_group``) is the set of tasks that differ only
 lockstep; every ``exchange_every`` Monte Carlo steps (warm-up and measurement alike) neighbouring pairs
 (i, i+1) -- even i at odd exchange rounds, odd i at even rounds, round r = step / exchange_every -- try to
 swap their configurations, accepted with probability min(1, R) where ln R is
-:func:`qmc.exchange_rule.swap_log_ratio` of the two chains' group couplings and group operator counts.
+:func:`qmc.exchange.rule.swap_log_ratio` of the two chains' group couplings and group operator counts.
 One uniform number per attempted pair is drawn from the group's own xoshiro stream
 ``stream_seed(master_seed, "exchange:" + group key)``; each chain keeps its own RNG, step counter, bin
 accumulators and VBS histogram (they belong to the coupling); only the configuration (spins, operator
@@ -31,13 +31,13 @@ from typing import Any
 
 import numpy as np
 
-from models.compiled import CompiledModel
-from qmc.config import Task, build_model
+from qmc.chain.simulation import Simulation
+from qmc.config.parser import Task, build_model
+from qmc.engine.rng import draw_doubles, stream_seed
 from qmc.errors import UserError
-from qmc.exchange_rule import group_couplings, swap_log_ratio
-from qmc.ladder_team import LadderTeam, SoloTeam, chain_blocks
-from qmc.rng import draw_doubles, stream_seed
-from qmc.simulation import Simulation
+from qmc.exchange.rule import group_couplings, swap_log_ratio
+from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
+from qmc.models.compiled import CompiledModel
 
 __all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "chain_costs", "exchange_seed_key",
            "GROUP_STATE_KEYS"]
@@ -121,7 +121,7 @@ class Ladder:
     """M chains of one exchange group in lockstep, with configuration swaps at exchange points.
 
     ``tasks`` must be in ladder order (:func:`ladder_tasks`).  With a ``team`` of several processes
-    (:mod:`qmc.ladder_team`) this process holds only the chains of its block, :attr:`local` (a range of
+    (:mod:`qmc.exchange.team`) this process holds only the chains of its block, :attr:`local` (a range of
     positions); all members must make the same calls.  Without ``chain_states`` the chains start from
     their tasks' own streams; otherwise the local chains are restored from their :meth:`Simulation.state`
     (one per local position, all at the same step) and the ladder from ``group_state``

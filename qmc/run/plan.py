@@ -3,7 +3,7 @@
 :func:`prepare_run` checks a configuration against a run directory (refusing a directory that holds a
 different configuration unless forced, in which case the old index and the task files of changed tasks are
 renamed aside, never deleted), writes ``config.toml`` and ``index.json``, and lists the unfinished tasks,
-largest lattices first.  Running them is :func:`qmc.runner.run_serial` or :mod:`qmc.mpi_farm`.
+largest lattices first.  Running them is :func:`qmc.run.serial.run_serial` or :mod:`qmc.mpi.farm`.
 """
 
 from __future__ import annotations
@@ -15,10 +15,17 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from qmc.config import RunConfig, Task, config_fingerprint, validate
+from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
-from qmc.storage import atomic_write_text, load_index, new_index, task_header, task_path, write_index
-from qmc.task_identity import steps_total, task_fingerprint
+from qmc.run.task_identity import steps_total, task_fingerprint
+from qmc.storage.task_file import (
+    atomic_write_text,
+    load_index,
+    new_index,
+    task_header,
+    task_path,
+    write_index,
+)
 
 __all__ = ["RunPlan", "prepare_run"]
 
@@ -140,7 +147,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
     selected = _select(config, only)
     validate(config)
     if any(t.exchange_group is not None for t in config.tasks()):
-        from qmc.exchange import check_ladders
+        from qmc.exchange.tasks import check_ladders
 
         check_ladders(config.tasks())
     fp = config_fingerprint(config)

@@ -1,0 +1,3 @@
+"""The ``qmc`` command line."""
+
+__all__: list[str] = []

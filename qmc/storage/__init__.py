@@ -1,0 +1,3 @@
+"""Storage: HDF5 task files, the run index, atomic writes and provenance records."""
+
+__all__: list[str] = []
