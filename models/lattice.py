@@ -1,32 +1,23 @@
 """Lattices: sites, sublattices, named bond classes with winding displacements, and the dimer pattern.
 
-Built-in kinds (``build_lattice(kind, size, boundary)``; ``size`` counts unit cells per direction):
+``build_lattice(kind, size, boundary)`` tiles the unit cell declared for ``kind`` in
+:data:`models.catalog.LATTICES` (chain, square, bilayer, honeycomb, cubic; the table of kinds and
+classes is there) over ``size`` cells with :func:`models.tiling.tile`; the declaration format is described
+in :mod:`models.unit_cell`; ``tile_lattice(cell, size, boundary)`` tiles any declared cell.
+``Lattice.from_bonds`` builds a lattice from an explicit bond list (no winding
+directions, D = 0).
 
-===========  ==========  ======================  ================================================  =====
-kind         size        sites N                 bond classes                                      vbs
-===========  ==========  ======================  ================================================  =====
-chain        (L,)        L                       nn, even, odd                                     1 dir
-square       (Lx, Ly)    Lx*Ly                   x, y, nn, {columnar,staggered,plaquette}-{strong,  2 dirs
-                                                 weak}
-bilayer      (Lx, Ly)    2*Lx*Ly                 x, y, intra, inter, nn (= intra + inter)           2 dirs
-honeycomb    (L1, L2)    2*L1*L2                 nn, nn0, nn1, nn2                                 none
-cubic        (Lx,Ly,Lz)  Lx*Ly*Lz                x, y, z, nn                                       none
-===========  ==========  ======================  ================================================  =====
+``coords`` holds the unit-cell coordinates of each site along the D winding directions in lattice-vector
+units, ``bond_disps[c][b]`` the displacement site1 - site0 of bond b of class c in the same units.  Bonds
+of every class join opposite sublattices.
 
-Site numbering: ``site = sub*sub_stride + cell*cell_stride`` with ``cell = x + Lx*(y + Ly*z)``; for the
-bilayer ``sub`` is the layer (``site = layer*Lx*Ly + y*Lx + x``), for the honeycomb it is A=0/B=1
-(``site = 2*cell + sub``).  ``coords`` holds the unit-cell coordinates of each site in lattice-vector
-units, ``bond_disps[c][b]`` the displacement site1 - site0 of bond b of class c in the same units
-(minimum image).  Bonds of every class join opposite sublattices.
-
-Periodic boundaries require an even length along every direction of the chain, square, bilayer and cubic
-lattices (otherwise they are not bipartite); the honeycomb lattice is bipartite for any size.  A periodic
-length of 2 keeps both bonds ``(0, 1)`` and ``(1, 0)``, each with displacement +1: that is the periodic
-lattice (the infinite lattice folded onto two cells), so every site keeps its full coordination and the
-Heisenberg coupling across such a direction is effectively doubled.  Open boundaries drop every bond that
-would cross the boundary (in all directions).
-
-``Lattice.from_bonds`` builds a lattice from an explicit bond list (no winding directions, D = 0).
+Periodic boundaries need an even length along every axis where one cell step swaps the sublattice (chain,
+square, bilayer, cubic); otherwise the lattice is not bipartite.  The honeycomb
+lattice is bipartite for any size.  A periodic length of 2 keeps both bonds ``(0, 1)`` and ``(1, 0)``,
+each with displacement +1: that is the periodic lattice (the infinite lattice folded onto two cells), so
+every site keeps its full coordination and the Heisenberg coupling across such a direction is effectively
+doubled (common practice, no source).  Open boundaries drop every bond that would cross the boundary (in
+all directions).
 """
 
 from __future__ import annotations
@@ -37,15 +28,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import _builders
+from .catalog import LATTICES
 from .errors import ModelError, unknown_name
+from .tiling import cell_coords, tile
+from .unit_cell import UnitCell
 
-__all__ = ["Lattice", "build_lattice", "LATTICE_KINDS", "BOUNDARIES"]
+__all__ = ["Lattice", "build_lattice", "tile_lattice", "LATTICE_KINDS", "BOUNDARIES"]
 
 #: number of size entries of each built-in lattice kind
-LATTICE_KINDS: dict[str, int] = {"chain": 1, "square": 2, "bilayer": 2, "honeycomb": 2, "cubic": 3}
+LATTICE_KINDS: dict[str, int] = {kind: cell.dim for kind, cell in LATTICES.items()}
 BOUNDARIES = ("periodic", "open")
-_NEED_EVEN = ("chain", "square", "bilayer", "cubic")
 _MAX_SITES = 2**31 - 1
 
 
@@ -56,6 +48,8 @@ class Lattice:
     Arrays: ``sublattice`` int8[N] (0/1), ``coords`` float64[N, D], ``dir_lengths`` float64[D],
     ``bond_classes[name]`` int32[nb, 2], ``bond_disps[name]`` float64[nb, D], ``vbs_bonds`` int32[nv, 2],
     ``vbs_dir`` int8[nv] (0 = x-bond, 1 = y-bond), ``vbs_phase`` int8[nv] ((-1)^x resp. (-1)^y of site 0).
+    ``periodic`` tells per size entry whether that axis wraps around; ``cell`` is the declaration the
+    lattice was tiled from (None for an explicit bond list).
     """
 
     kind: str
@@ -75,6 +69,8 @@ class Lattice:
     sites_per_cell: int = 1
     cell_stride: int = 1
     sub_stride: int = 0
+    periodic: tuple[bool, ...] = ()
+    cell: UnitCell | None = None
 
     @property
     def n_dirs(self) -> int:
@@ -99,10 +95,22 @@ class Lattice:
         """int64[N], the number of bonds of class ``name`` touching each site."""
         return np.bincount(self.bonds(name)[0].ravel(), minlength=self.n_sites)
 
+    def positions(self) -> np.ndarray:
+        """float64[N, c], Cartesian position of every site: ``(r + position_s) @ vectors`` over all axes
+        (open ones included), with the cell's primitive vectors; ModelError for an explicit lattice."""
+        if self.cell is None:
+            raise ModelError("an explicit lattice has no positions", "lattice")
+        cells = cell_coords(self.size)
+        site = np.arange(self.n_sites)
+        sub = site // self.sub_stride % self.sites_per_cell if self.sub_stride else np.zeros_like(site)
+        basis = np.array([s.position for s in self.cell.sites], dtype=np.float64)
+        frac = cells[site // self.cell_stride % cells.shape[0]] + basis[sub]
+        return frac @ np.array(self.cell.vectors, dtype=np.float64)
+
     def site_index(self, *cell, sub=0):
         """Site index of the unit cell ``cell`` (one integer or array per size entry), sub-site ``sub``.
 
-        Periodic directions wrap around; with open boundaries a cell outside the lattice gives -1.
+        Periodic axes wrap around; on an open axis a cell outside the lattice gives -1.
         Arrays broadcast; scalars in give a Python int out.
         """
         if len(cell) != len(self.size):
@@ -115,8 +123,9 @@ class Lattice:
             raise ModelError(f"sub must be in 0..{self.sites_per_cell - 1}", "site_index")
         flat, stride = np.zeros(np.broadcast_shapes(*(c.shape for c in cells), sub.shape), np.int64), 1
         outside = np.zeros(flat.shape, bool)
-        for c, length in zip(cells, self.size, strict=True):
-            if self.open_boundaries:
+        wraps = self.periodic or (not self.open_boundaries,) * len(self.size)
+        for c, length, wrap in zip(cells, self.size, wraps, strict=True):
+            if not wrap:
                 outside |= (c < 0) | (c >= length)
             flat = flat + (c % length) * stride
             stride *= length
@@ -162,20 +171,30 @@ class Lattice:
                    bond_classes={k: np.ascontiguousarray(v, np.int32) for k, v in named.items()},
                    bond_disps={k: np.zeros((v.shape[0], 0)) for k, v in named.items()},
                    vbs_bonds=np.zeros((0, 2), np.int32), vbs_dir=np.zeros(0, np.int8),
-                   vbs_phase=np.zeros(0, np.int8), n_vbs_dirs=0)
+                   vbs_phase=np.zeros(0, np.int8), n_vbs_dirs=0, periodic=(False,))
 
 
 def build_lattice(kind: str, size: int | Sequence[int], boundary: str = "periodic") -> Lattice:
-    """Build a built-in lattice; ``size`` counts unit cells per direction (an int means all directions).
+    """Tile the unit cell declared for ``kind``; ``size`` counts unit cells per axis (an int: all axes).
 
-    Raises ModelError for an unknown kind or boundary, a wrong number of size entries, a length below 2,
-    or an odd periodic length on a lattice that then would not be bipartite.
+    Raises ModelError for an unknown kind or boundary, and as :func:`tile_lattice` for a bad size.
     """
     if kind not in LATTICE_KINDS:
         raise unknown_name("lattice kind", kind, LATTICE_KINDS, "kind")
+    return tile_lattice(LATTICES[kind], size, boundary, kind)
+
+
+def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str = "periodic",
+                 kind: str = "custom") -> Lattice:
+    """Tile any declared unit cell over ``size`` cells (an int means the same length along every axis).
+
+    Raises ModelError for an unknown boundary, a wrong number of size entries, a length below 2, or an
+    odd periodic length along an axis where one cell step swaps the sublattice (the lattice would then
+    not be bipartite).
+    """
     if boundary not in BOUNDARIES:
         raise unknown_name("boundary", boundary, BOUNDARIES, "boundary")
-    dim = LATTICE_KINDS[kind]
+    dim = cell.dim
     if isinstance(size, numbers.Integral) and not isinstance(size, bool):
         size = (size,) * dim
     if isinstance(size, str | bytes) or not isinstance(size, Sequence | np.ndarray):
@@ -185,21 +204,17 @@ def build_lattice(kind: str, size: int | Sequence[int], boundary: str = "periodi
                          f"got {len(size)}: {list(size)}", "size")
     size = tuple(_positive_int(s, f"size[{a}]", minimum=2) for a, s in enumerate(size))
     periodic = boundary == "periodic"
-    if periodic and kind in _NEED_EVEN:
-        for a, length in enumerate(size):
-            if length % 2:
-                raise ModelError(f"a periodic {kind} lattice needs even lengths (an odd length closes odd "
-                                 f"loops, so the lattice is not bipartite); got {length}", f"size[{a}]")
-    per_cell = {"bilayer": 2, "honeycomb": 2}.get(kind, 1)
-    n_sites = per_cell * int(np.prod(size, dtype=object))
+    for a, length in enumerate(size):
+        if length % 2 and cell.flips[a] and periodic and cell.axes[a] not in cell.open_axes:
+            raise ModelError(f"a periodic {kind} lattice needs an even length along {cell.axes[a]} (an odd "
+                             f"length closes odd loops, so the lattice is not bipartite); got {length}",
+                             f"size[{a}]")
+    n_sites = len(cell.sites) * int(np.prod(size, dtype=object))
     if n_sites > _MAX_SITES:
         raise ModelError(f"{n_sites} sites is more than the {_MAX_SITES} that int32 indices allow", "size")
-    if kind == "honeycomb":
-        fields = _builders.honeycomb(size, periodic)
-    else:
-        fields = _builders.hypercubic(size, periodic, layers=per_cell)
+    fields = tile(cell, size, periodic)
     classes = fields.pop("bond_classes")
-    return Lattice(kind=kind, size=size, boundary=boundary, n_sites=n_sites,
+    return Lattice(kind=kind, size=size, boundary=boundary, n_sites=n_sites, cell=cell,
                    bond_classes={k: v[0] for k, v in classes.items()},
                    bond_disps={k: v[1] for k, v in classes.items()}, **fields)
 

@@ -2,7 +2,7 @@
 
 ``tests/data/lattices_before_declaration.npz`` holds every array of every built-in lattice kind at a few
 sizes and both boundary kinds, as built by commit c48469a (the per-kind builders, before the unit-cell
-declarations of ``models/cells.py``), together with the placements of the two named projector shapes on
+declarations of ``models/unit_cell.py``), together with the placements of the two named projector shapes on
 the square-type lattices.  Site numbering, bond order inside each class, the order of the classes,
 displacements, coordinates, sublattices and the dimer pattern must all be reproduced exactly: the
 Monte Carlo chain depends on every one of them (tests/test_stored_bins.py checks the chain itself).
