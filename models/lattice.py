@@ -1,7 +1,7 @@
 """Lattices: sites, sublattices, named bond classes with winding displacements, and the dimer pattern.
 
 ``build_lattice(kind, size, boundary)`` tiles the unit cell declared for ``kind`` in
-:data:`models.catalog.LATTICES` (chain, square, bilayer, honeycomb, cubic; the table of kinds and
+:data:`models.catalog.LATTICES` (chain, square, bilayer, honeycomb, cubic, ladder; the table of kinds and
 classes is there) over ``size`` cells with :func:`models.tiling.tile`; the declaration format is described
 in :mod:`models.unit_cell`; ``tile_lattice(cell, size, boundary)`` tiles any declared cell.
 ``Lattice.from_bonds`` builds a lattice from an explicit bond list (no winding
@@ -12,12 +12,12 @@ units, ``bond_disps[c][b]`` the displacement site1 - site0 of bond b of class c 
 of every class join opposite sublattices.
 
 Periodic boundaries need an even length along every axis where one cell step swaps the sublattice (chain,
-square, bilayer, cubic); otherwise the lattice is not bipartite.  The honeycomb
+square, bilayer, cubic, the legs of a ladder); otherwise the lattice is not bipartite.  The honeycomb
 lattice is bipartite for any size.  A periodic length of 2 keeps both bonds ``(0, 1)`` and ``(1, 0)``,
 each with displacement +1: that is the periodic lattice (the infinite lattice folded onto two cells), so
 every site keeps its full coordination and the Heisenberg coupling across such a direction is effectively
 doubled (common practice, no source).  Open boundaries drop every bond that would cross the boundary (in
-all directions).
+all directions); the ladder is open across its legs for either boundary.
 """
 
 from __future__ import annotations

@@ -10,6 +10,7 @@
                        plaquette in both orientations (2N projector-pair terms)
 ``jq3``                ``H = J sum_<ij> S_i.S_j - Q sum P P P`` over three parallel bonds stacked in a
                        column, both orientations (2N terms)
+``ladder``             ``H = sum_legs S_i.S_j + g sum_rungs S_i.S_j`` on the L x W ladder (W legs)
 =====================  =========================================================================
 
 Each function returns ``(lattice, terms)`` for :func:`models.compile.compile_model`; couplings are in
@@ -23,7 +24,7 @@ from collections.abc import Sequence
 from .lattice import Lattice, build_lattice
 from .terms import HeisenbergTerm, ProjectorProductTerm, Term
 
-__all__ = ["heisenberg", "bilayer", "columnar_dimer", "jq2", "jq3", "NAMED_MODELS"]
+__all__ = ["heisenberg", "bilayer", "columnar_dimer", "jq2", "jq3", "ladder", "NAMED_MODELS"]
 
 
 def heisenberg(kind: str, size: int | Sequence[int], J: float = 1.0, boundary: str = "periodic"
@@ -56,5 +57,10 @@ def jq3(L: int, J: float, Q: float, boundary: str = "periodic") -> tuple[Lattice
                                                        ProjectorProductTerm("column-of-three", Q)]
 
 
+def ladder(L: int, W: int, g: float, boundary: str = "periodic") -> tuple[Lattice, list[Term]]:
+    """W-leg ladder, J_leg = 1 (group ``"leg"``), J_rung = g (group ``"rung"``); open across the legs."""
+    return build_lattice("ladder", (L, W), boundary), [HeisenbergTerm("leg", 1.0), HeisenbergTerm("rung", g)]
+
+
 NAMED_MODELS = {"heisenberg": heisenberg, "bilayer": bilayer, "columnar_dimer": columnar_dimer,
-                "jq2": jq2, "jq3": jq3}
+                "jq2": jq2, "jq3": jq3, "ladder": ladder}

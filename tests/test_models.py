@@ -25,6 +25,7 @@ from qmc.models import (
     heisenberg,
     jq2,
     jq3,
+    ladder,
     parse_shape,
     place_shape,
     rotations,
@@ -152,7 +153,8 @@ def test_site_index_round_trip():
 def test_every_bond_joins_opposite_sublattices():
     lattices = [build_lattice("chain", 10), build_lattice("square", (4, 6)), build_lattice("bilayer", 4),
                 build_lattice("honeycomb", (3, 5)), build_lattice("cubic", 4),
-                build_lattice("square", 5, "open"), build_lattice("cubic", 3, "open")]
+                build_lattice("square", 5, "open"), build_lattice("cubic", 3, "open"),
+                build_lattice("ladder", (4, 3)), build_lattice("ladder", (3, 2), "open")]
     for lat in lattices:
         for name, bonds in lat.bond_classes.items():
             assert len(bonds) > 0, (lat.kind, name)
@@ -267,6 +269,41 @@ def test_honeycomb_open():
     lat = build_lattice("honeycomb", (3, 4), "open")
     # nn0 in every cell, nn1 needs c1 >= 1, nn2 needs c2 >= 1 (hand count)
     assert len(lat.bond_classes["nn"]) == 12 + 2 * 4 + 3 * 3
+
+
+@pytest.mark.parametrize("L, W, boundary",
+                         [(4, 2, "periodic"), (6, 3, "periodic"), (5, 3, "open"), (2, 2, "periodic")])
+def test_ladder(L, W, boundary):
+    """W-leg ladder, legs along x, open across them: bonds listed by explicit loops (site = x + L*y)."""
+    lat = build_lattice("ladder", (L, W), boundary)
+    periodic = boundary == "periodic"
+    assert lat.n_sites == L * W and lat.dir_names == ("x",) and lat.coords.shape == (L * W, 1)
+    legs = Counter(tuple(sorted((x + L * y, (x + 1) % L + L * y))) for y in range(W) for x in range(L)
+                   if periodic or x < L - 1)
+    rungs = Counter(tuple(sorted((x + L * y, x + L * (y + 1)))) for y in range(W - 1) for x in range(L))
+    assert edge_multiset(lat.bond_classes["leg"]) == legs
+    assert edge_multiset(lat.bond_classes["rung"]) == rungs
+    assert edge_multiset(lat.bond_classes["nn"]) == legs + rungs
+    assert np.all(lat.bond_disps["leg"] == 1.0) and np.all(lat.bond_disps["rung"] == 0.0)
+    x, y = np.arange(L * W) % L, np.arange(L * W) // L
+    assert np.array_equal(lat.coords[:, 0], x) and np.array_equal(lat.sublattice, (x + y) % 2)
+    assert lat.site_index(1, W) == -1 and lat.site_index(1, W - 1) == 1 + L * (W - 1)
+    assert lat.site_index(L, 0) == (0 if periodic else -1)
+    assert lat.n_vbs_dirs == 1 and np.array_equal(lat.vbs_bonds, lat.bond_classes["leg"])
+    assert np.array_equal(lat.vbs_phase, (-1) ** x[lat.vbs_bonds[:, 0]])
+    model = compile_model(*ladder(L, W, g=0.5, boundary=boundary))
+    assert model.group_names == ("leg", "rung") and model.open_boundaries == (not periodic)
+    assert model.n_dirs == 1 and model.linear_size == L
+
+
+def test_ladder_errors():
+    with pytest.raises(ModelError, match="even length along x") as err:
+        build_lattice("ladder", (5, 2))
+    assert err.value.where == "size[0]"
+    with pytest.raises(ModelError, match="at least 2") as err:
+        build_lattice("ladder", (4, 1))
+    assert err.value.where == "size[1]"
+    assert build_lattice("ladder", (4, 3)).n_sites == 12  # an odd number of legs is bipartite
 
 
 # ------------------------------------------------------------------------------------- explicit bonds
