@@ -30,7 +30,7 @@ import numpy as np
 
 from .catalog import LATTICES
 from .errors import ModelError, unknown_name
-from .tiling import cell_coords, tile
+from .tiling import axis_periodic, cell_coords, tile
 from .unit_cell import UnitCell
 
 __all__ = ["Lattice", "build_lattice", "tile_lattice", "LATTICE_KINDS", "BOUNDARIES"]
@@ -204,8 +204,9 @@ def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str = "per
                          f"got {len(size)}: {list(size)}", "size")
     size = tuple(_positive_int(s, f"size[{a}]", minimum=2) for a, s in enumerate(size))
     periodic = boundary == "periodic"
+    wraps = axis_periodic(cell, periodic)
     for a, length in enumerate(size):
-        if length % 2 and cell.flips[a] and periodic and cell.axes[a] not in cell.open_axes:
+        if length % 2 and cell.flips[a] and wraps[a]:
             raise ModelError(f"a periodic {kind} lattice needs an even length along {cell.axes[a]} (an odd "
                              f"length closes odd loops, so the lattice is not bipartite); got {length}",
                              f"size[{a}]")

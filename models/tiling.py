@@ -23,10 +23,10 @@ import numpy as np
 from .errors import ModelError
 from .unit_cell import Bond, Rule, UnitCell
 
-__all__ = ["tile", "cell_coords"]
+__all__ = ["tile", "cell_coords", "axis_periodic"]
 
-#: placed bonds: sites int32[nb, 2], displacements float64[nb, D], first site's cell int64[nb, d]
-_Placed = tuple[np.ndarray, np.ndarray, np.ndarray]
+#: placed bonds: sites int32[nb, 2] and displacements float64[nb, D]
+_Placed = tuple[np.ndarray, np.ndarray]
 
 
 def cell_coords(size: tuple[int, ...]) -> np.ndarray:
@@ -46,84 +46,109 @@ def tile(cell: UnitCell, size: tuple[int, ...], periodic: bool) -> dict:
     Raises ModelError if a declared bond spans more than half of a periodic length (its two images
     would be different bonds, or it would join a site to itself).
     """
-    wraps = axis_periodic(cell, periodic)
-    for s0, s1, offset in cell.bonds():
-        for a, (o, length) in enumerate(zip(offset, size, strict=True)):
-            if wraps[a] and 2 * abs(o) > length:
-                raise ModelError(f"a bond ({s0}, {s1}) of this lattice spans {abs(o)} cells along "
-                                 f"{cell.axes[a]}, more than half the periodic length {length}", f"size[{a}]")
-    cells = cell_coords(size)
-    n_cells, n_sub = cells.shape[0], len(cell.sites)
-    win = list(cell.winding_axes)
-    if n_sub == 1:
-        cell_stride, sub_stride = 1, 0
-    elif cell.layered:
-        cell_stride, sub_stride = 1, n_cells
-    else:
-        cell_stride, sub_stride = n_sub, 1
-    if cell.layered:
-        cell_of, sub_of = np.tile(np.arange(n_cells), n_sub), np.repeat(np.arange(n_sub), n_cells)
-    else:
-        cell_of, sub_of = np.repeat(np.arange(n_cells), n_sub), np.tile(np.arange(n_sub), n_cells)
-    parity = np.array([s.sublattice for s in cell.sites], dtype=np.int64)
-    sublattice = ((parity[sub_of] + cells[cell_of] @ np.asarray(cell.flips, np.int64)) % 2).astype(np.int8)
-    coords = np.ascontiguousarray(cells[cell_of][:, win].astype(np.float64))
+    return _Tiling(cell, size, axis_periodic(cell, periodic)).fields()
 
-    strides = np.concatenate(([1], np.cumprod(size[:-1]))).astype(np.int64)
-    positions = np.array([s.position for s in cell.sites], dtype=np.float64)
 
-    def place(bond: Bond) -> _Placed:
+class _Tiling:
+    """One tiling in progress: the cell grid, the site numbering, and the classes placed so far."""
+
+    def __init__(self, cell: UnitCell, size: tuple[int, ...], wraps: tuple[bool, ...]) -> None:
+        for s0, s1, offset in cell.bonds():
+            for a, (o, length) in enumerate(zip(offset, size, strict=True)):
+                if wraps[a] and 2 * abs(o) > length:
+                    raise ModelError(f"a bond ({s0}, {s1}) of this lattice spans {abs(o)} cells along "
+                                     f"{cell.axes[a]}, more than half the periodic length {length}",
+                                     f"size[{a}]")
+        self.cell, self.size, self.wraps = cell, size, wraps
+        self.cells = cell_coords(size)
+        self.n_cells, self.n_sub = self.cells.shape[0], len(cell.sites)
+        self.win = list(cell.winding_axes)
+        if self.n_sub == 1:
+            self.cell_stride, self.sub_stride = 1, 0
+        elif cell.layered:
+            self.cell_stride, self.sub_stride = 1, self.n_cells
+        else:
+            self.cell_stride, self.sub_stride = self.n_sub, 1
+        self.strides = np.concatenate(([1], np.cumprod(size[:-1]))).astype(np.int64)
+        self.positions = np.array([s.position for s in cell.sites], dtype=np.float64)
+        self.placed: dict[str, _Placed] = {}
+        self.sums: dict[tuple[int, ...], np.ndarray] = {}
+
+    def fields(self) -> dict:
+        """Every Lattice field except kind, size, boundary and n_sites."""
+        cell, n_sub = self.cell, self.n_sub
+        parity = np.array([s.sublattice for s in cell.sites], dtype=np.int64)
+        cell_parity = self.cells[:, [a for a, f in enumerate(cell.flips) if f]].sum(axis=1)
+        per_cell = self.cells[:, self.win].astype(np.float64)
+        if cell.layered:  # site = s*n_cells + cell
+            sub_parity = np.repeat(parity, self.n_cells)
+            cell_parity, per_cell = np.tile(cell_parity, n_sub), np.tile(per_cell, (n_sub, 1))
+        else:  # site = cell*n_sub + s
+            sub_parity = np.tile(parity, self.n_cells)
+            cell_parity, per_cell = np.repeat(cell_parity, n_sub), np.repeat(per_cell, n_sub, axis=0)
+        sublattice = ((sub_parity + cell_parity) % 2).astype(np.int8)
+        coords = np.ascontiguousarray(per_cell)
+        classes = {name: self.resolve(name) for name in cell.parts}
+        out = dict(sublattice=sublattice, coords=coords, dir_names=tuple(cell.axes[a] for a in self.win),
+                   dir_lengths=np.asarray([self.size[a] for a in self.win], dtype=np.float64),
+                   bond_classes=classes, sites_per_cell=n_sub, cell_stride=self.cell_stride,
+                   sub_stride=self.sub_stride, periodic=self.wraps)
+        out.update(self.dimer_pattern())
+        return out
+
+    def first_cell_sum(self, sites: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:
+        """int64[nb], sum of the first site's cell coordinates r_a over ``axes``, for every bond."""
+        if axes not in self.sums:
+            self.sums[axes] = self.cells[:, list(axes)].sum(axis=1)
+        return self.sums[axes][sites[:, 0] // self.cell_stride % self.n_cells]
+
+    def place(self, bond: Bond) -> _Placed:
+        """Bond (s0, s1, offset) at every cell whose partner cell exists, cells in order."""
         s0, s1, offset = bond
         shift = np.asarray(offset, np.int64)
-        target = cells + shift
-        keep = np.ones(n_cells, dtype=bool)
-        for a in range(cell.dim):
-            if not wraps[a]:  # open axis: the partner cell must exist
-                keep &= (target[:, a] >= 0) & (target[:, a] < size[a])
-        start = cells[keep]
-        end = (start + shift) % np.asarray(size, np.int64)
-        i = (start @ strides) * cell_stride + s0 * sub_stride
-        j = (end @ strides) * cell_stride + s1 * sub_stride
+        keep = np.ones(self.n_cells, dtype=bool)
+        for a in range(self.cell.dim):
+            if not self.wraps[a]:  # open axis: the partner cell must exist
+                r = self.cells[:, a] + shift[a]
+                keep &= (r >= 0) & (r < self.size[a])
+        start = np.flatnonzero(keep)  # cells are numbered in order, so a row is its cell index
+        end = start + int(shift @ self.strides)
+        for a in np.flatnonzero(shift):
+            r = self.cells[keep, a] + shift[a]
+            end += (r % self.size[a] - r) * self.strides[a]  # wrap around a periodic axis
+        i = start * self.cell_stride + s0 * self.sub_stride
+        j = end * self.cell_stride + s1 * self.sub_stride
         sites = np.ascontiguousarray(np.stack([i, j], axis=1), dtype=np.int32)
-        vector = shift[win].astype(np.float64) + positions[s1, win] - positions[s0, win]
-        return sites, np.tile(vector, (sites.shape[0], 1)), start
+        pos, win = self.positions, self.win
+        vector = shift[win].astype(np.float64) + pos[s1, win] - pos[s0, win]
+        return sites, np.tile(vector, (sites.shape[0], 1))
 
-    placed: dict[str, _Placed] = {}
+    def resolve(self, name: str) -> _Placed:
+        """The bonds of class ``name``: its parts (rules applied) concatenated in order."""
+        if name not in self.placed:
+            parts = [self.select(self.resolve(src) if isinstance(src, str) else self.place(src), rule)
+                     for src, rule in self.cell.parts[name]]
+            self.placed[name] = parts[0] if len(parts) == 1 else tuple(
+                np.ascontiguousarray(np.concatenate([p[k] for p in parts])) for k in range(2))
+        return self.placed[name]
 
-    def resolve(name: str) -> _Placed:
-        if name not in placed:
-            placed[name] = _concat([_select(place(src) if not isinstance(src, str) else resolve(src), rule)
-                                    for src, rule in cell.parts[name]])
-        return placed[name]
+    def select(self, part: _Placed, rule: Rule | None) -> _Placed:
+        """The bonds of ``part`` whose first site's cell satisfies ``rule`` (all bonds if rule is None)."""
+        if rule is None:
+            return part
+        axes, odd = rule
+        mask = self.first_cell_sum(part[0], axes) % 2 == odd
+        return part[0][mask], part[1][mask]
 
-    classes = {name: resolve(name)[:2] for name in cell.parts}
-    out = dict(sublattice=sublattice, coords=coords, dir_names=tuple(cell.axes[a] for a in win),
-               dir_lengths=np.asarray([size[a] for a in win], dtype=np.float64), bond_classes=classes,
-               sites_per_cell=n_sub, cell_stride=cell_stride, sub_stride=sub_stride, periodic=wraps)
-    out.update(_dimer_pattern([resolve(name) for name in cell.vbs]))
-    return out
-
-
-def _select(part: _Placed, rule: Rule | None) -> _Placed:
-    """The bonds of ``part`` whose first site's cell satisfies ``rule`` (all bonds if rule is None)."""
-    if rule is None:
-        return part
-    axes, odd = rule
-    mask = part[2][:, list(axes)].sum(axis=1) % 2 == odd
-    return part[0][mask], part[1][mask], part[2][mask]
-
-
-def _concat(parts: list[_Placed]) -> _Placed:
-    return tuple(np.ascontiguousarray(np.concatenate([p[k] for p in parts])) for k in range(3))
-
-
-def _dimer_pattern(along: list[_Placed]) -> dict:
-    """vbs_bonds/vbs_dir/vbs_phase: bonds of direction a with phase (-1)^(r_a) of the first site's cell."""
-    if not along:
-        return dict(vbs_bonds=np.zeros((0, 2), np.int32), vbs_dir=np.zeros(0, np.int8),
-                    vbs_phase=np.zeros(0, np.int8), n_vbs_dirs=0)
-    bonds = [sites for sites, _, _ in along]
-    dirs = [np.full(sites.shape[0], a, np.int8) for a, (sites, _, _) in enumerate(along)]
-    phases = [(1 - 2 * (cell0[:, a] % 2)).astype(np.int8) for a, (_, _, cell0) in enumerate(along)]
-    return dict(vbs_bonds=np.ascontiguousarray(np.concatenate(bonds), dtype=np.int32),
-                vbs_dir=np.concatenate(dirs), vbs_phase=np.concatenate(phases), n_vbs_dirs=len(along))
+    def dimer_pattern(self) -> dict:
+        """vbs_bonds/vbs_dir/vbs_phase: bonds of class vbs[a] with direction a and phase (-1)^(r_a) of the
+        first site's cell."""
+        along = [self.resolve(name)[0] for name in self.cell.vbs]
+        if not along:
+            return dict(vbs_bonds=np.zeros((0, 2), np.int32), vbs_dir=np.zeros(0, np.int8),
+                        vbs_phase=np.zeros(0, np.int8), n_vbs_dirs=0)
+        dirs = [np.full(sites.shape[0], a, np.int8) for a, sites in enumerate(along)]
+        phases = [(1 - 2 * (self.first_cell_sum(sites, (a,)) % 2)).astype(np.int8)
+                  for a, sites in enumerate(along)]
+        return dict(vbs_bonds=np.ascontiguousarray(np.concatenate(along), dtype=np.int32),
+                    vbs_dir=np.concatenate(dirs), vbs_phase=np.concatenate(phases), n_vbs_dirs=len(along))

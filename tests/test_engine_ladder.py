@@ -11,11 +11,16 @@ twist phi on every leg bond (its winding estimator <w_x^2>/(beta N): Pollock and
 
 from __future__ import annotations
 
+from pathlib import Path
+
+import h5py
 import numpy as np
 import pytest
+from click.testing import CliRunner
 from qmc.models import HeisenbergTerm, build_lattice, compile_model
 
 from qmc.chain.simulation import Simulation
+from qmc.cli.main import cli
 from qmc.engine.rng import stream_seed
 from qmc.validation.exact import ExactSpectrum, build_hamiltonian, stiffness_by_twist
 
@@ -74,3 +79,49 @@ def test_ladder_matches_exact(name: str) -> None:
     e = bins["energy"]
     assert e.std(ddof=1) / np.sqrt(len(e)) / abs(e.mean()) < 3e-3  # the check has teeth
     assert not bad, f"{name}: (QMC mean, error, exact) {bad}"
+
+
+_CONFIG = """\
+[run]
+name = "ladder"
+output = "run-ladder"
+seed = 5
+[lattice]
+kind = "ladder"
+size = ["L", 2]
+[[terms]]
+type = "heisenberg"
+bonds = "leg"
+coupling = 1.0
+[[terms]]
+type = "heisenberg"
+bonds = "rung"
+coupling = 0.5
+[scan]
+beta = 2.0
+L = {L}
+[sampling]
+warmup_steps = 100
+measure_steps = 400
+bins = 4
+"""
+
+
+def test_ladder_config_runs_and_odd_periodic_legs_are_refused(tmp_path: Path) -> None:
+    """A config with kind = "ladder" runs; an odd periodic leg length is a user error (exit 2) that names
+    the size entry, and no run directory is written."""
+    good = tmp_path / "good.toml"
+    good.write_text(_CONFIG.format(L=4))
+    result = CliRunner().invoke(cli, ["run", str(good), "--quiet"])
+    assert result.exit_code == 0, result.output
+    (task,) = (tmp_path / "run-ladder" / "tasks").glob("*.h5")
+    with h5py.File(task) as f:
+        assert f["bins"]["energy"].shape == (4,)
+        assert f["model"]["lattice_kind"][()] == b"ladder"
+        assert [d.decode() for d in f["model"]["dir_names"][()]] == ["x"]  # the legs only
+    bad = tmp_path / "bad.toml"
+    bad.write_text(_CONFIG.format(L=5).replace("run-ladder", "run-odd"))
+    result = CliRunner().invoke(cli, ["run", str(bad), "--quiet"])
+    assert result.exit_code == 2
+    assert "lattice.size[0]" in result.output and "even length along x" in result.output
+    assert not (tmp_path / "run-odd").exists()
