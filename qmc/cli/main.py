@@ -254,20 +254,21 @@ def _exchange_text(x: dict[str, Any]) -> str:
 @cli.command("summary")
 @click.argument("run_dir", type=click.Path(path_type=Path))
 @click.option("--json", "as_json", is_flag=True, help="Print a JSON list instead of tables.")
-@click.option("--merge-replicas", is_flag=True, help="Combine tasks that differ only in the replica number.")
-def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
+@click.option("--merge-copies", is_flag=True,
+              help="Combine the independent copies of each parameter point into one estimate.")
+def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
     """Mean, error bar (binning analysis) and tau_int of every observable of every task in RUN_DIR.
 
     Derived quantities (binder_stag, specific_heat, corr_length, ...) come from the jackknife.  RUN_DIR may
     also be a single task file.
     """
-    from qmc.analysis import group_replicas, summarize_task
+    from qmc.analysis import group_copies, summarize_task
     from qmc.analysis.tables import to_jsonable
     from qmc.exchange.tasks import exchange_summary
     from qmc.storage.task_file import read_run
 
     tasks = read_run(run_dir)
-    records = group_replicas(tasks) if merge_replicas else tasks
+    records = group_copies(tasks) if merge_copies else tasks
     summaries = [summarize_task(t) for t in records]
     for rec, s in zip(records, summaries, strict=True):
         x = exchange_summary(getattr(rec, "exchange", None))  # replica exchange: acceptance rates

@@ -33,7 +33,7 @@ def _sampling(warmup: int, measure: int, bins: int, exchange: str | None = None)
     if exchange:
         ex = (f'# exchange: optional replica exchange along the scanned coupling "{exchange}" (tasks that\n'
               f"# differ only in {exchange} swap configurations now and then).  Uncomment to use it.\n"
-              f'# exchange = "{exchange}"\n')
+              f'# [exchange]\n# along = "{exchange}"\n')
     else:
         ex = ("# exchange: optional; the scan name of a coupling to run replica exchange along (it needs at\n"
               '# least two values), e.g. exchange = "g".  Left out here.\n')
@@ -46,8 +46,8 @@ warmup_steps = {warmup}
 measure_steps = {measure}
 # bins: number of bins (>= 2, must divide measure_steps); error bars come from the bin averages.
 bins = {bins}
-# replicas: independent copies of every parameter point (different random streams).
-replicas = 1
+# copies: independent copies of every parameter point (different random streams).
+copies = 1
 # checkpoint_seconds: how often a running task saves its full state, so an interrupted run resumes.
 checkpoint_seconds = 300
 {ex}'''
@@ -56,7 +56,7 @@ checkpoint_seconds = 300
 _SCAN_HELP = '''\
 # Every entry is a number (fixed), a list of values, a range {start, stop, num} (num evenly spaced
 # values, both ends included), or a text expression of other entries such as "2*L", "L/2" or "0.5*g".
-# Every combination of the listed values is one task (times sampling.replicas).  beta (the inverse
+# Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
 # temperature, in inverse energy units) is required.  Every entry must be used somewhere.
 '''
 
