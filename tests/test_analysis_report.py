@@ -48,7 +48,7 @@ def make_task(L, g, beta, copy=0, seed=0, full=True, energy_shift=0.0, nbins=200
                 "n_ops": n,
                 "n_ops_sq": n**2 + 0.6 * beta * N + 20.0 * rng.standard_normal(nbins),
                 "s_q": N * m2,
-                "s_q_next": N * m2 / 5.0 * (1 + 0.02 * rng.standard_normal(nbins)),
+                "s_q_shifted": N * m2 / 5.0 * (1 + 0.02 * rng.standard_normal(nbins)),
                 "stiffness": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
                 "stiffness/x": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
                 "vbs_x2": 0.01 + 0.001 * rng.standard_normal(nbins),

@@ -22,7 +22,7 @@ from qmc.cli.main import cli
 
 DATA = Path(__file__).parent / "data" / "stored_bins"
 RUNS = ("heisenberg", "jq2", "jq3", "bilayer", "ladder")
-RENAMED: dict[str, str] = {}
+RENAMED = {"s_q_next": "s_q_shifted", "bond_energy": "term_energy"}
 
 
 def _stored() -> dict[str, np.ndarray]:
