@@ -205,7 +205,7 @@ def test_summary_table_and_json(done_run):
     assert result.exit_code == 0, result.output
     out = result.stdout
     assert "task L4_J1_beta1_c0" in out and "task L6_J1_beta1_c0" in out
-    assert "observable" in out and "tau_int" in out and "binder_stag" in out
+    assert "observable" in out and "tau_int[bins]" in out and "binder_stag" in out
     result = invoke("summary", done_run, "--json")
     data = json.loads(result.stdout)
     assert [d["task"] for d in data] == ["L4_J1_beta1_c0", "L6_J1_beta1_c0"]
@@ -259,7 +259,8 @@ def test_inspect(done_run):
     out = result.stdout
     for fragment in ("task           L6_J1_beta1_c0", "status         done", "bins           20 of 20 done",
                      "steps          1050 of 1050", "checkpoint", "numba_version", "git_revision",
-                     "master_seed      5", "sessions (1)", "[sampling]", "L = 6"):
+                     "master_seed      5", "sessions (1)", "[sampling]", "L = 6",
+                     f"format         {TASK_FORMAT}, version"):
         assert fragment in out, fragment
 
 
