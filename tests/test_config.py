@@ -465,6 +465,21 @@ def test_quickstart_is_small():
         assert n_sites * t.beta * (t.sampling.warmup_steps + t.sampling.measure_steps) <= 3e7
 
 
+def test_quickstart_comment_names_its_sizes():
+    config = load_config(REPO / "configs" / "quickstart.toml")
+    first = config.text.splitlines()[0]
+    sizes = sorted({t.size for t in config.tasks()})
+    assert " and ".join(f"{a}x{b}" for a, b in sizes) in first, first
+
+
+def test_user_texts_explain_physics_without_authoring_notes():
+    texts = {f"template {k}": v for k, v in TEMPLATES.items()}
+    texts.update({p.name: p.read_text() for p in [*SHIPPED, REPO / "configs" / "cluster-batch.sh"]})
+    for name, body in texts.items():
+        for phrase in ("demo scenario", "invented", "from memory", "qmc.", "replicas", "dsqmc"):
+            assert phrase not in body.lower(), (name, phrase)
+
+
 @pytest.mark.parametrize("kind", sorted(TEMPLATES))
 def test_templates_load_and_validate(tmp_path, kind):
     config = load_and_validate(write(tmp_path, template(kind), name=f"{kind}.toml"))
