@@ -476,7 +476,7 @@ def test_user_texts_explain_physics_without_authoring_notes():
     texts = {f"template {k}": v for k, v in TEMPLATES.items()}
     texts.update({p.name: p.read_text() for p in [*SHIPPED, REPO / "configs" / "cluster-batch.sh"]})
     for name, body in texts.items():
-        for phrase in ("demo scenario", "invented", "from memory", "qmc.", "replicas", "dsqmc"):
+        for phrase in ("demo scenario", "invented", "from memory", "qmc.", "replicas"):
             assert phrase not in body.lower(), (name, phrase)
 
 
