@@ -206,6 +206,7 @@ def test_summary_table_and_json(done_run):
     out = result.stdout
     assert "task L4_J1_beta1_c0" in out and "task L6_J1_beta1_c0" in out
     assert "observable" in out and "tau_int[bins]" in out and "binder_stag" in out
+    assert "(done, 20 bins of 50 Monte Carlo steps, 16 sites)" in out
     result = invoke("summary", done_run, "--json")
     data = json.loads(result.stdout)
     assert [d["task"] for d in data] == ["L4_J1_beta1_c0", "L6_J1_beta1_c0"]

@@ -31,7 +31,7 @@ def summary_table(s: dict[str, Any]) -> str:
     head = f"task {s['task']}"
     if info:
         head += (f"  ({info.get('status', '?')}, {info.get('n_bins', 0)} bins of "
-                 f"{info.get('steps_per_bin', 0)} steps, {info.get('n_sites', '?')} sites)")
+                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites)")
     lines = [head, "  " + params_text(s["params"])]
     obs = s["observables"]
     if obs:
