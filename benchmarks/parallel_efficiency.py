@@ -34,8 +34,8 @@ Prints one JSON object:
   figures then measure the machine's load rather than the program;
 * the machine's core count and load average.
 
-All tasks are replicas of one parameter point (equal cost).  The numba compilation cache is warmed by a
-tiny run first, so compilation is not timed.
+All tasks are independent copies of one parameter point (equal cost).  The numba compilation cache is
+warmed by a tiny run first, so compilation is not timed.
 """
 
 from __future__ import annotations
@@ -74,7 +74,7 @@ beta = {beta}
 warmup_steps = {warmup}
 measure_steps = {steps}
 bins = 20
-replicas = {tasks}
+copies = {tasks}
 checkpoint_seconds = 60
 """
 
@@ -90,9 +90,10 @@ Q = {q}
 warmup_steps = {warmup}
 measure_steps = {steps}
 bins = 20
-exchange = "Q"
-exchange_every = 10
 checkpoint_seconds = 60
+[exchange]
+along = "Q"
+every = 10
 """
 
 
@@ -153,7 +154,7 @@ def _ceiling(tmp_path: Path, qmc: list[str], args: argparse.Namespace) -> float:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    ap.add_argument("--tasks", type=int, default=8, help="number of equal tasks (replicas)")
+    ap.add_argument("--tasks", type=int, default=8, help="number of equal tasks (independent copies)")
     ap.add_argument("--size", type=int, default=8, help="L of the L x L Heisenberg lattice")
     ap.add_argument("--beta", type=float, default=4.0)
     ap.add_argument("--steps", type=int, default=400000, help="measured Monte Carlo steps per task")

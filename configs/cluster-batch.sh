@@ -8,9 +8,10 @@
 #   signal:   ask the scheduler to send SIGTERM a few minutes before the hard limit, if it can
 #
 # How the run is spread: rank 0 hands out tasks (largest lattices first) and also computes; every other
-# rank asks for the next task when it starts one.  A replica-exchange ladder (sampling.exchange) of M chains
-# runs side by side on up to M ranks (blocks of chains that meet at every exchange point).  More ranks than
-# units of work gives idle ranks: use `replicas` or more scan points to have at least as many units as ranks.
+# rank asks for the next task when it starts one.  A replica-exchange ladder ([exchange] along = ...) of M
+# chains runs side by side on up to M ranks (blocks of chains that meet at every exchange point; at most
+# [exchange] max_ranks).  More ranks than units of work gives idle ranks: use [sampling] copies or more scan
+# points to have at least as many units as ranks.
 #
 # Time limit: on SIGTERM every rank writes a checkpoint of its running task and the job exits with status 0.
 # Submitting the same script again resumes exactly where it stopped (unfinished tasks only; finished ones

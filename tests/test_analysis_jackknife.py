@@ -95,7 +95,7 @@ def test_derived_observables_formulas():
         "m_stag2": rng.normal(0.1, 0.005, n),
         "m_stag4": rng.normal(0.015, 0.001, n),
         "s_q": rng.normal(5.0, 0.1, n),
-        "s_q_next": rng.normal(1.0, 0.02, n),
+        "s_q_shifted": rng.normal(1.0, 0.02, n),
         "stiffness": rng.normal(0.05, 0.002, n),
     }
     N, L = 64, 8
@@ -104,7 +104,7 @@ def test_derived_observables_formulas():
     m = {k: v.mean() for k, v in bins.items()}
     assert d["specific_heat"][0] == pytest.approx((m["n_ops_sq"] - m["n_ops"] ** 2 - m["n_ops"]) / N)
     assert d["binder_stag"][0] == pytest.approx(m["m_stag4"] / m["m_stag2"] ** 2)
-    xi = L / (2 * np.pi) * np.sqrt(m["s_q"] / m["s_q_next"] - 1)
+    xi = L / (2 * np.pi) * np.sqrt(m["s_q"] / m["s_q_shifted"] - 1)
     assert d["corr_length"][0] == pytest.approx(xi)
     assert d["xi_over_L"][0] == pytest.approx(xi / L)
     # linear in the bins: pseudo-values are exactly L * stiffness bins

@@ -1,4 +1,4 @@
-"""Task summaries, replica merging, coupling detection, ground-state check and analyze_run end to end.
+"""Task summaries, merging of copies, coupling detection, ground-state check and analyze_run end to end.
 
 The tasks are synthetic TaskData-like objects (invented data for the test): a Binder ratio
 R_L(g) = 1.5 - 0.4 tanh(0.4 (g - 1) L) (g_c = 1, nu = 1) built from per-bin m_stag2, m_stag4 series.
@@ -11,7 +11,7 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
-from qmc.analysis import AnalysisError, analyze_run, format_result, group_replicas, summarize_task
+from qmc.analysis import AnalysisError, analyze_run, format_result, group_copies, summarize_task
 from qmc.analysis.groundstate import beta_doubling_check
 from qmc.analysis.scan import detect_coupling, scan_points
 from qmc.errors import UserError
@@ -23,7 +23,7 @@ def binder(g, L):
     return 1.5 - 0.4 * np.tanh(0.4 * (g - 1.0) * L)
 
 
-def make_task(L, g, beta, replica=0, seed=0, full=True, energy_shift=0.0, nbins=200, vbs=None):
+def make_task(L, g, beta, copy=0, seed=0, full=True, energy_shift=0.0, nbins=200, vbs=None):
     rng = np.random.default_rng(seed)
     N = L * L
     mu2 = 0.3 / np.sqrt(L)
@@ -48,7 +48,7 @@ def make_task(L, g, beta, replica=0, seed=0, full=True, energy_shift=0.0, nbins=
                 "n_ops": n,
                 "n_ops_sq": n**2 + 0.6 * beta * N + 20.0 * rng.standard_normal(nbins),
                 "s_q": N * m2,
-                "s_q_next": N * m2 / 5.0 * (1 + 0.02 * rng.standard_normal(nbins)),
+                "s_q_shifted": N * m2 / 5.0 * (1 + 0.02 * rng.standard_normal(nbins)),
                 "stiffness": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
                 "stiffness/x": 0.1 * (1.5 - g) + 0.005 * rng.standard_normal(nbins),
                 "vbs_x2": 0.01 + 0.001 * rng.standard_normal(nbins),
@@ -58,12 +58,12 @@ def make_task(L, g, beta, replica=0, seed=0, full=True, energy_shift=0.0, nbins=
             }
         )
     return SimpleNamespace(
-        task_id=f"L{L}_g{g:.4f}_b{beta:g}_r{replica}",
+        task_id=f"L{L}_g{g:.4f}_b{beta:g}_c{copy}",
         params={
             "L": np.int64(L),
             "g": float(g),
             "beta": float(beta),
-            "replica": replica,
+            "copy": copy,
             "lattice": "square",
             "size": np.array([L, L]),
             "boundary": "periodic",
@@ -86,8 +86,8 @@ def run_tasks(full=True):
         for k, g in enumerate(GS):
             seed = 1000 * L + k
             tasks.append(make_task(L, g, L, seed=seed, full=full))
-            if L == 16:  # second replica
-                tasks.append(make_task(L, g, L, replica=1, seed=seed + 500, full=full))
+            if L == 16:  # second copy
+                tasks.append(make_task(L, g, L, copy=1, seed=seed + 500, full=full))
             if L == 8:  # beta doubling with identical data, except an energy shift at one point
                 tasks.append(
                     make_task(L, g, 2 * L, seed=seed, full=full, energy_shift=0.05 if k == 4 else 0.0)
@@ -97,7 +97,7 @@ def run_tasks(full=True):
 
 def test_summary_structure():
     s = summarize_task(make_task(8, 1.0, 8, seed=1))
-    assert s["task"] == "L8_g1.0000_b8_r0"
+    assert s["task"] == "L8_g1.0000_b8_c0"
     assert s["params"]["size"] == (8, 8) and s["params"]["L"] == 8
     for name in (
         "energy",
@@ -118,23 +118,32 @@ def test_summary_structure():
     assert isinstance(s["warnings"], list)
 
 
-def test_group_replicas_concatenates():
+def test_group_copies_concatenates():
     a, b = make_task(16, 1.0, 16, 0, seed=1), make_task(16, 1.0, 16, 1, seed=2)
     c = make_task(16, 1.05, 16, 0, seed=3)
-    merged = group_replicas([a, b, c])
+    merged = group_copies([a, b, c])
     assert len(merged) == 2
     m = merged[0]
-    assert m.replicas == (a.task_id, b.task_id) and "replica" not in m.params
+    assert m.copies == (a.task_id, b.task_id) and "copy" not in m.params
     np.testing.assert_array_equal(m.bins["energy"], np.r_[a.bins["energy"], b.bins["energy"]])
     assert m.vbs_histogram.sum() == a.vbs_histogram.sum() + b.vbs_histogram.sum()
     s = summarize_task(m)
-    assert s["info"]["n_bins"] == 400 and s["info"]["replicas"] == [a.task_id, b.task_id]
+    assert s["info"]["n_bins"] == 400 and s["info"]["copies"] == [a.task_id, b.task_id]
 
 
-def test_group_replicas_incompatible_bins_weighted():
+def test_copies_of_files_from_earlier_releases_merge_too():
+    # task files of earlier releases number their copies by "replica"
+    a, b = make_task(8, 1.0, 8, 0, seed=1), make_task(8, 1.0, 8, 1, seed=2)
+    for t in (a, b):
+        t.params["replica"] = t.params.pop("copy")
+    (m,) = group_copies([a, b])
+    assert m.copies == (a.task_id, b.task_id) and "replica" not in m.params
+
+
+def test_group_copies_incompatible_bins_weighted():
     a, b = make_task(8, 1.0, 8, 0, seed=1), make_task(8, 1.0, 8, 1, seed=2)
     b.steps_per_bin = 150
-    (m,) = group_replicas([a, b])
+    (m,) = group_copies([a, b])
     assert len(m.parts) == 2
     s = summarize_task(m)
     e1 = summarize_task(a)["observables"]["energy"]
@@ -148,7 +157,7 @@ def test_group_replicas_incompatible_bins_weighted():
 def test_detect_coupling():
     tasks = [make_task(L, g, L, full=False) for L in (8, 16) for g in (0.9, 1.0) for _ in range(2)]
     sums = [summarize_task(t) for t in tasks]
-    assert detect_coupling(sums) == "g"  # L, beta (= L), replica, size, lattice are never the coupling
+    assert detect_coupling(sums) == "g"  # L, beta (= L), copy, size, lattice are never the coupling
     for s in sums:  # a second parameter that is a one-to-one function of g is fine
         s["params"]["J"] = 1.0 - s["params"]["g"]
     assert detect_coupling(sums) == "J"
@@ -197,7 +206,7 @@ def test_analyze_run_results(tmp_path):
         "g",
         "binder_stag",
         "binder_stag_err",
-        "binder_stag_tau",
+        "binder_stag_tau_int[bins]",
         "xi_over_L",
         "stiffness_L",
         "specific_heat",
@@ -206,7 +215,7 @@ def test_analyze_run_results(tmp_path):
         "cos4_hist",
     ):
         assert col in rows[0]
-    assert {r["replicas"] for r in rows if r["L"] == "16"} == {"2"}
+    assert {r["copies"] for r in rows if r["L"] == "16"} == {"2"}
     saved = json.loads((tmp_path / "out" / "analysis.json").read_text())
     assert saved == res
     table = json.loads((tmp_path / "out" / "observables.json").read_text())

@@ -17,7 +17,7 @@ from qmc.cli.main import cli
 from qmc.config.parser import load_config
 from qmc.config.templates import TEMPLATES
 from qmc.run.serial import StopFlag, run_task
-from qmc.storage.task_file import load_index, read_task, task_path
+from qmc.storage.task_file import TASK_FORMAT, load_index, read_task, task_path
 
 CONFIG = """
 [run]
@@ -82,7 +82,7 @@ def test_run_then_rerun_does_not_duplicate(done_run):
     for p in (done_run / "tasks").iterdir():
         assert all(len(v) == 20 for v in read_task(p).bins.values())
     log = (done_run / "run.log").read_text()
-    assert "task L6_J1_beta1_r0: done" in log and "0 task(s) to run, 2 done already" in log
+    assert "task L6_J1_beta1_c0: done" in log and "0 task(s) to run, 2 done already" in log
 
 
 def test_resumed_run_completes_without_duplicating_bins(tmp_path):
@@ -103,18 +103,32 @@ def test_resumed_run_completes_without_duplicating_bins(tmp_path):
 
 def test_only_runs_the_named_tasks(tmp_path):
     config = write_config(tmp_path)
-    result = invoke("run", config, "--quiet", "--only", "L4_J1_beta1_r0")
+    result = invoke("run", config, "--quiet", "--only", "L4_J1_beta1_c0")
     assert result.exit_code == 0, result.output
     index = load_index(tmp_path / "run")
-    assert index["tasks"]["L4_J1_beta1_r0"]["status"] == "done"
-    assert index["tasks"]["L6_J1_beta1_r0"]["status"] == "pending"
-    assert not task_path(tmp_path / "run", "L6_J1_beta1_r0").exists()
+    assert index["tasks"]["L4_J1_beta1_c0"]["status"] == "done"
+    assert index["tasks"]["L6_J1_beta1_c0"]["status"] == "pending"
+    assert not task_path(tmp_path / "run", "L6_J1_beta1_c0").exists()
 
 
 def test_unknown_only_id(tmp_path):
     config = write_config(tmp_path)
-    result = invoke("run", config, "--only", "L5_J1_beta1_r0")
-    assert_user_error(result, "error: --only: no task 'L5_J1_beta1_r0'", "did you mean")
+    result = invoke("run", config, "--only", "L5_J1_beta1_c0")
+    assert_user_error(result, "error: --only: no task 'L5_J1_beta1_c0'", "did you mean")
+    assert not (tmp_path / "run").exists()
+
+
+@pytest.mark.parametrize("line, new", [("replicas = 2", "[sampling] copies"),
+                                       ('exchange = "J"', "[exchange] along"),
+                                       ("exchange_every = 5", "[exchange] every"),
+                                       ("exchange_ranks = 2", "[exchange] max_ranks")])
+def test_keys_of_earlier_releases_are_refused_naming_the_new_key(tmp_path, line, new):
+    config = tmp_path / "old.toml"
+    config.write_text(CONFIG.format(J="[0.5, 1.0]", measure=1000) + line + "\n")
+    result = invoke("run", config)
+    old = line.split()[0]
+    assert_user_error(result, f"error: {config}: sampling.{old}: '{old}' in [sampling] was renamed: "
+                              f"use {new} instead")
     assert not (tmp_path / "run").exists()
 
 
@@ -133,10 +147,10 @@ def test_different_config_refused_then_forced(tmp_path, done_run):
     names = [p.name for p in run.rglob("*")]
     assert any(n.startswith("index.json.") and n.endswith(".old") for n in names)
     # J = 1 tasks are unchanged by the new scan: kept and not rerun; J = 0.5 ones are new
-    assert set(load_index(run)["tasks"]) == {"L4_J0.5_beta1_r0", "L4_J1_beta1_r0", "L6_J0.5_beta1_r0",
-                                             "L6_J1_beta1_r0"}
-    assert read_task(task_path(run, "L4_J1_beta1_r0")).provenance["sessions"][-1]["ended"] == "done"
-    assert len(read_task(task_path(run, "L4_J1_beta1_r0")).provenance["sessions"]) == 1
+    assert set(load_index(run)["tasks"]) == {"L4_J0.5_beta1_c0", "L4_J1_beta1_c0", "L6_J0.5_beta1_c0",
+                                             "L6_J1_beta1_c0"}
+    assert read_task(task_path(run, "L4_J1_beta1_c0")).provenance["sessions"][-1]["ended"] == "done"
+    assert len(read_task(task_path(run, "L4_J1_beta1_c0")).provenance["sessions"]) == 1
 
 
 @pytest.mark.parametrize("text,fragments", [
@@ -178,8 +192,8 @@ def test_task_failure_exit_code_and_message(tmp_path, monkeypatch):
     monkeypatch.setattr(runner, "build_model", broken)
     result = invoke("run", write_config(tmp_path), "--quiet")
     assert result.exit_code == 1
-    assert "error: task L6_J1_beta1_r0 failed: RuntimeError: boom" in result.stderr
-    assert "error: task L4_J1_beta1_r0 failed" in result.stderr  # the second task was still tried
+    assert "error: task L6_J1_beta1_c0 failed: RuntimeError: boom" in result.stderr
+    assert "error: task L4_J1_beta1_c0 failed" in result.stderr  # the second task was still tried
     assert "Traceback" in (tmp_path / "run" / "run.log").read_text()
 
 
@@ -190,16 +204,17 @@ def test_summary_table_and_json(done_run):
     result = invoke("summary", done_run)
     assert result.exit_code == 0, result.output
     out = result.stdout
-    assert "task L4_J1_beta1_r0" in out and "task L6_J1_beta1_r0" in out
-    assert "observable" in out and "tau_int" in out and "binder_stag" in out
+    assert "task L4_J1_beta1_c0" in out and "task L6_J1_beta1_c0" in out
+    assert "observable" in out and "tau_int[bins]" in out and "binder_stag" in out
+    assert "(done, 20 bins of 50 Monte Carlo steps, 16 sites)" in out
     result = invoke("summary", done_run, "--json")
     data = json.loads(result.stdout)
-    assert [d["task"] for d in data] == ["L4_J1_beta1_r0", "L6_J1_beta1_r0"]
+    assert [d["task"] for d in data] == ["L4_J1_beta1_c0", "L6_J1_beta1_c0"]
     assert data[0]["params"]["L"] == 4 and data[0]["params"]["J"] == 1.0
     obs = data[0]["observables"]
     for name in ("energy", "m_stag2", "stiffness/x", "binder_stag", "specific_heat", "corr_length"):
         assert set(obs[name]) >= {"mean", "error", "tau_int"}
-    energies = read_task(task_path(done_run, "L4_J1_beta1_r0")).bins["energy"]
+    energies = read_task(task_path(done_run, "L4_J1_beta1_c0")).bins["energy"]
     assert obs["energy"]["mean"] == pytest.approx(float(np.mean(energies)), rel=1e-12)
 
 
@@ -208,7 +223,7 @@ def bad_files(tmp_path, done_run) -> dict[str, Path]:
     foreign = tmp_path / "foreign.h5"
     with h5py.File(foreign, "w") as f:
         f["x"] = np.arange(4)
-    good = task_path(done_run, "L4_J1_beta1_r0").read_bytes()
+    good = task_path(done_run, "L4_J1_beta1_c0").read_bytes()
     truncated = tmp_path / "truncated.h5"
     truncated.write_bytes(good[: len(good) // 2])
     text = tmp_path / "notes.h5"
@@ -240,12 +255,13 @@ def test_summary_of_a_missing_directory(tmp_path):
 
 
 def test_inspect(done_run):
-    result = invoke("inspect", task_path(done_run, "L6_J1_beta1_r0"))
+    result = invoke("inspect", task_path(done_run, "L6_J1_beta1_c0"))
     assert result.exit_code == 0, result.output
     out = result.stdout
-    for fragment in ("task           L6_J1_beta1_r0", "status         done", "bins           20 of 20 done",
+    for fragment in ("task           L6_J1_beta1_c0", "status         done", "bins           20 of 20 done",
                      "steps          1050 of 1050", "checkpoint", "numba_version", "git_revision",
-                     "master_seed      5", "sessions (1)", "[sampling]", "L = 6"):
+                     "master_seed      5", "sessions (1)", "[sampling]", "L = 6",
+                     f"format         {TASK_FORMAT}, version"):
         assert fragment in out, fragment
 
 
@@ -312,18 +328,18 @@ def test_entry_point_in_a_subprocess(tmp_path):
                           timeout=120)
     assert proc.returncode == 2 and proc.stdout == ""
     assert proc.stderr.strip() == f"error: {path}: not an HDF5 file; a task file is written by 'qmc run' " \
-                                  "(format dsqmc-task)"
+                                  f"(format {TASK_FORMAT})"
 
 
 def test_serial_run_of_an_exchange_ladder(tmp_path):
     path = tmp_path / "ex.toml"
     path.write_text(CONFIG.format(J="[0.8, 1.0]", measure=400).replace("L = [4, 6]", "L = [4]")
-                    + 'exchange = "J"\n')
+                    + '[exchange]\nalong = "J"\n')
     result = invoke("run", path, "--quiet")
     assert result.exit_code == 0, result.output
-    for tid in ("L4_J0.8_beta1_r0", "L4_J1_beta1_r0"):
+    for tid in ("L4_J0.8_beta1_c0", "L4_J1_beta1_c0"):
         d = read_task(task_path(tmp_path / "run", tid))
         assert d.status == "done" and d.exchange is not None and d.exchange["parameter"] == "J"
-    result = invoke("inspect", task_path(tmp_path / "run", "L4_J1_beta1_r0"))
+    result = invoke("inspect", task_path(tmp_path / "run", "L4_J1_beta1_c0"))
     assert result.exit_code == 0 and "exchange" in result.stdout
     assert invoke("summary", tmp_path / "run").exit_code == 0

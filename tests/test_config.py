@@ -106,7 +106,7 @@ BAD = [
      "sampling.warmup_steps", ["at least 0"]),
     ("measure-negative", text(sampling=SAMPLING.replace("measure_steps = 1000", "measure_steps = -1000")),
      "sampling.measure_steps", ["at least 1"]),
-    ("replicas-zero", text(sampling=SAMPLING + "replicas = 0\n"), "sampling.replicas", ["at least 1"]),
+    ("copies-zero", text(sampling=SAMPLING + "copies = 0\n"), "sampling.copies", ["at least 1"]),
     ("checkpoint-zero", text(sampling=SAMPLING + "checkpoint_seconds = 0\n"), "sampling.checkpoint_seconds",
      ["must be positive"]),
     ("unbound-size", text(lattice='[lattice]\nkind = "bilayer"\nsize = ["M", "M"]\n'), "lattice.size[0]",
@@ -122,7 +122,8 @@ BAD = [
      "scan.g.stop", ["missing required key"]),
     ("empty-list", text(scan='[scan]\nL = []\ng = [2.4]\nbeta = 2\n'), "scan.L", ["empty"]),
     ("duplicate-values", text(scan='[scan]\nL = [4, 4]\ng = [2.4]\nbeta = 2\n'), "scan.L", ["appears twice"]),
-    ("reserved-name", text(scan=SCAN + "replica = [1]\n"), "scan.replica", ["reserved"]),
+    ("reserved-name", text(scan=SCAN + "copy = [1]\n"), "scan.copy", ["reserved", "sampling.copies"]),
+    ("reserved-old-name", text(scan=SCAN + "replica = [1]\n"), "scan.replica", ["reserved"]),
     ("bad-expression", text(terms=TERMS.replace('coupling = "g"', 'coupling = "2**g"')), "terms[1].coupling",
      ["cannot read '2**g'"]),
     ("injection", text(scan='[scan]\nL = [4]\ng = [2.4]\nbeta = "__import__(\'os\')"\n'), "scan.beta",
@@ -134,22 +135,33 @@ BAD = [
     ("negative-Q", text(lattice='[lattice]\nkind = "square"\nsize = ["L", "L"]\n', terms=JQ_TERMS,
                         scan='[scan]\nL = [4]\ng = [-0.5]\nbeta = 2\n'), "terms[1].coupling",
      ["negative", "sign problem"]),
-    ("exchange-not-coupling", text(sampling=SAMPLING + 'exchange = "L"\n'), "sampling.exchange",
+    ("exchange-not-coupling", text(extra='[exchange]\nalong = "L"\n'), "exchange.along",
      ["not a scanned coupling"]),
     ("exchange-one-value", text(scan='[scan]\nL = [4]\ng = [2.4]\nbeta = 2\n',
-                                sampling=SAMPLING + 'exchange = "g"\n'), "sampling.exchange", ["at least 2"]),
-    ("exchange-unknown", text(sampling=SAMPLING + 'exchange = "gg"\n'), "sampling.exchange",
+                                extra='[exchange]\nalong = "g"\n'), "exchange.along", ["at least 2"]),
+    ("exchange-unknown", text(extra='[exchange]\nalong = "gg"\n'), "exchange.along",
      ["not a scan name", "did you mean 'g'"]),
-    ("exchange-every-zero", text(sampling=SAMPLING + 'exchange = "g"\nexchange_every = 0\n'),
-     "sampling.exchange_every", ["at least 1"]),
-    ("exchange-every-text", text(sampling=SAMPLING + 'exchange = "g"\nexchange_every = "often"\n'),
-     "sampling.exchange_every", ["must be an integer"]),
-    ("exchange-every-alone", text(sampling=SAMPLING + "exchange_every = 5\n"), "sampling.exchange_every",
-     ["exchange is not", "exchange = \"g\""]),
-    ("exchange-ranks-zero", text(sampling=SAMPLING + 'exchange = "g"\nexchange_ranks = 0\n'),
-     "sampling.exchange_ranks", ["at least 1"]),
-    ("exchange-ranks-alone", text(sampling=SAMPLING + "exchange_ranks = 2\n"), "sampling.exchange_ranks",
-     ["exchange is not"]),
+    ("exchange-derived", text(scan=SCAN + 'h = "2*g"\n', extra='[exchange]\nalong = "h"\n',
+                              terms=TERMS.replace('coupling = "g"', 'coupling = "h"')),
+     "exchange.along", ["is an expression"]),
+    ("exchange-changes-size", text(terms=TERMS.replace('coupling = "g"', 'coupling = "L"'),
+                                   scan='[scan]\nL = [4, 6]\nbeta = 2\n', extra='[exchange]\nalong = "L"\n'),
+     "exchange.along", ["changes lattice.size[0]", "same lattice"]),
+    ("exchange-changes-beta", text(scan='[scan]\nL = [4]\ng = [2.4, 2.5]\nbeta = "g"\n',
+                                   extra='[exchange]\nalong = "g"\n'), "exchange.along", ["changes beta"]),
+    ("exchange-along-missing", text(extra="[exchange]\nevery = 5\n"), "exchange.along",
+     ["missing required key 'along' in [exchange]"]),
+    ("exchange-every-zero", text(extra='[exchange]\nalong = "g"\nevery = 0\n'),
+     "exchange.every", ["at least 1"]),
+    ("exchange-every-text", text(extra='[exchange]\nalong = "g"\nevery = "often"\n'),
+     "exchange.every", ["must be an integer"]),
+    ("exchange-ranks-zero", text(extra='[exchange]\nalong = "g"\nmax_ranks = 0\n'),
+     "exchange.max_ranks", ["at least 1"]),
+    ("exchange-unknown-key", text(extra='[exchange]\nalong = "g"\nevry = 5\n'), "exchange.evry",
+     ["unknown key", "did you mean 'every'"]),
+    ("exchange-key-in-sampling", text(sampling=SAMPLING + "along = 'g'\n"), "sampling.along",
+     ["belongs in [exchange]"]),
+    ("exchange-not-a-table", 'exchange = "g"\n' + text(), "exchange", ["must be a section"]),
     ("seed-text", text(run='[run]\nseed = "abc"\n'), "run.seed", ["must be an integer"]),
     ("seed-negative", text(run='[run]\nseed = -1\n'), "run.seed", ["at least 0"]),
     ("seed-float", text(run='[run]\nseed = 1.5\n'), "run.seed", ["must be an integer"]),
@@ -182,6 +194,24 @@ def test_malformed_config(tmp_path, content, key, problems):
     for problem in problems:
         assert problem in message, message
     assert "\n" not in message
+
+
+# keys of earlier releases: (line in [sampling], key named in the message, its replacement)
+OLD_KEYS = [
+    ("replicas = 2", "sampling.replicas", "[sampling] copies"),
+    ('exchange = "g"', "sampling.exchange", "[exchange] along"),
+    ("exchange_every = 5", "sampling.exchange_every", "[exchange] every"),
+    ("exchange_ranks = 2", "sampling.exchange_ranks", "[exchange] max_ranks"),
+]
+
+
+@pytest.mark.parametrize("line, key, new", OLD_KEYS, ids=[k for _, k, _ in OLD_KEYS])
+def test_old_keys_name_their_replacement(tmp_path, line, key, new):
+    path = write(tmp_path, text(sampling=SAMPLING + line + "\n"))
+    with pytest.raises(UserError) as info:
+        load_config(path)
+    assert info.value.where == f"{path}: {key}"
+    assert info.value.message == f"'{key.split('.')[1]}' in [sampling] was renamed: use {new} instead"
 
 
 def test_there_are_at_least_thirty_malformed_cases():
@@ -228,16 +258,16 @@ def test_defaults(tmp_path):
     assert config.name == "my-run"
     assert config.output_dir == (tmp_path / "runs" / "my-run").resolve()
     s = config.sampling
-    assert (s.replicas, s.checkpoint_seconds, s.exchange, s.steps_per_bin) == (1, 300.0, None, 100)
+    assert (s.copies, s.checkpoint_seconds, s.exchange, s.steps_per_bin) == (1, 300.0, None, 100)
     assert config.lattice.boundary == "periodic"
 
 
-def test_task_count_is_product_of_scan_lengths_times_replicas(tmp_path):
+def test_task_count_is_product_of_scan_lengths_times_copies(tmp_path):
     scan = '[scan]\nL = [4, 6, 8]\ng = {start = 2.0, stop = 3.0, num = 5}\nbeta = [1.0, 2.0]\n'
-    config = load_config(write(tmp_path, text(scan=scan, sampling=SAMPLING + "replicas = 3\n")))
+    config = load_config(write(tmp_path, text(scan=scan, sampling=SAMPLING + "copies = 3\n")))
     tasks = config.tasks()
     assert len(tasks) == 3 * 5 * 2 * 3
-    assert {t.replica for t in tasks} == {0, 1, 2}
+    assert {t.copy for t in tasks} == {0, 1, 2} == {t.params["copy"] for t in tasks}
     assert {t.params["g"] for t in tasks} == {2.0, 2.25, 2.5, 2.75, 3.0}
 
 
@@ -250,22 +280,24 @@ def test_beta_expression_resolves(tmp_path):
 
 def test_task_contents(tmp_path):
     tasks = load_config(write(tmp_path, text())).tasks()
-    t = tasks[4]  # L = 6 (slowest), g = 2.5, replica 0
-    assert t.task_id == "L6_g2.5_r0"
-    assert t.params == {"L": 6, "g": 2.5, "beta": 6, "replica": 0}
-    assert (t.lattice_kind, t.size, t.boundary, t.beta, t.replica, t.exchange) == ("bilayer", (6, 6),
-                                                                                     "periodic", 6.0, 0, None)
+    t = tasks[4]  # L = 6 (slowest), g = 2.5, copy 0
+    assert t.task_id == "L6_g2.5_c0"
+    assert t.params == {"L": 6, "g": 2.5, "beta": 6, "copy": 0}
+    assert (t.lattice_kind, t.size, t.boundary, t.beta, t.copy, t.exchange) == ("bilayer", (6, 6),
+                                                                                  "periodic", 6.0, 0, None)
     assert t.terms == [{"type": "heisenberg", "bonds": "intra", "coupling": 1.0},
                        {"type": "heisenberg", "bonds": "inter", "coupling": 2.5}]
     assert t.sampling.bins == 10 and t.seed == 7
+    # the seed key keeps the text of earlier releases ("replica" = copy index): streams stay the same
     assert t.seed_key == "L=6.0;beta=6.0;g=2.5;replica=0"
+    assert t.exchange_group is None and t.exchange_seed_key is None
 
 
 def test_ids_unique_readable_and_stable(tmp_path):
-    config = load_config(write(tmp_path, text(sampling=SAMPLING + "replicas = 2\n")))
+    config = load_config(write(tmp_path, text(sampling=SAMPLING + "copies = 2\n")))
     ids = [t.task_id for t in config.tasks()]
-    assert ids == [f"L{L}_g{g}_r{r}" for L in (4, 6) for g in ("2.4", "2.5", "2.6") for r in (0, 1)]
-    assert ids == [t.task_id for t in load_config(write(tmp_path, text(sampling=SAMPLING + "replicas = 2\n"),
+    assert ids == [f"L{L}_g{g}_c{c}" for L in (4, 6) for g in ("2.4", "2.5", "2.6") for c in (0, 1)]
+    assert ids == [t.task_id for t in load_config(write(tmp_path, text(sampling=SAMPLING + "copies = 2\n"),
                                                         name="again.toml")).tasks()]
     assert all(all(c.isalnum() or c in "._-+" for c in i) for i in ids)
 
@@ -278,7 +310,7 @@ def test_range_values_are_clean_and_ids_unique(tmp_path):
     gs = sorted({t.params["g"] for t in tasks})
     assert gs == [2.4, 2.42, 2.44, 2.46, 2.48, 2.5, 2.52, 2.54, 2.56, 2.58, 2.6]
     ids = [t.task_id for t in tasks]
-    assert len(set(ids)) == len(ids) == 33 and "L6_g2.42_beta2_r0" in ids
+    assert len(set(ids)) == len(ids) == 33 and "L6_g2.42_beta2_c0" in ids
 
 
 def test_close_values_get_distinct_ids(tmp_path):
@@ -291,8 +323,8 @@ def test_seed_key_independent_of_order_and_count(tmp_path):
     a = load_config(write(tmp_path, text(), name="a.toml")).tasks()
     scan_b = '[scan]\nbeta = "L"\ng = [2.6, 2.5, 2.4, 2.7]\nL = [6, 4]\n'
     b = load_config(write(tmp_path, text(scan=scan_b), name="b.toml")).tasks()
-    key_a = {(t.params["L"], t.params["g"], t.replica): t.seed_key for t in a}
-    key_b = {(t.params["L"], t.params["g"], t.replica): t.seed_key for t in b}
+    key_a = {(t.params["L"], t.params["g"], t.copy): t.seed_key for t in a}
+    key_b = {(t.params["L"], t.params["g"], t.copy): t.seed_key for t in b}
     assert all(key_b[k] == v for k, v in key_a.items())
     assert len(set(key_b.values())) == len(key_b)
 
@@ -316,29 +348,32 @@ def test_fingerprint(tmp_path):
 
 
 def test_exchange_groups(tmp_path):
-    config = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\nreplicas = 2\n')))
+    config = load_config(write(tmp_path, text(sampling=SAMPLING + "copies = 2\n",
+                                              extra='[exchange]\nalong = "g"\n')))
     groups: dict[str, list[float]] = {}
+    keys: dict[str, set[str]] = {}
     for t in config.tasks():
         assert t.exchange == "g"
         groups.setdefault(t.exchange_group, []).append(t.params["g"])
-    assert groups == {f"L{L}_r{r}": [2.4, 2.5, 2.6] for L in (4, 6) for r in (0, 1)}
+        keys.setdefault(t.exchange_group, set()).add(t.exchange_seed_key)
+    assert groups == {f"L{L}_c{c}": [2.4, 2.5, 2.6] for L in (4, 6) for c in (0, 1)}
+    # one swap stream per ladder, keyed by the text of earlier releases so that swaps stay the same
+    assert keys == {f"L{L}_c{c}": {f"exchange:L{L}_r{c}"} for L in (4, 6) for c in (0, 1)}
 
 
 def test_exchange_every_default_value_and_fingerprint(tmp_path):
-    base = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\n'), name="a.toml"))
+    base = load_config(write(tmp_path, text(extra='[exchange]\nalong = "g"\n'), name="a.toml"))
     assert base.sampling.exchange_every == 10
     assert all(t.sampling.exchange_every == 10 for t in base.tasks())
-    same = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\nexchange_every = 10\n'),
-                             name="b.toml"))
-    other = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\nexchange_every = 3\n'),
-                              name="c.toml"))
+    same = load_config(write(tmp_path, text(extra='[exchange]\nalong = "g"\nevery = 10\n'), name="b.toml"))
+    other = load_config(write(tmp_path, text(extra='[exchange]\nalong = "g"\nevery = 3\n'), name="c.toml"))
     assert other.sampling.exchange_every == 3
     assert config_fingerprint(same) == config_fingerprint(base) != config_fingerprint(other)
     # without exchange the fingerprint does not depend on the (unused) default
     plain = load_config(write(tmp_path, text(), name="d.toml"))
     assert plain.sampling.exchange_every == 10 and plain.sampling.exchange is None
-    # exchange_ranks says where chains run, not what they compute: no new fingerprint
-    capped = load_config(write(tmp_path, text(sampling=SAMPLING + 'exchange = "g"\nexchange_ranks = 1\n'),
+    # max_ranks says where chains run, not what they compute: no new fingerprint
+    capped = load_config(write(tmp_path, text(extra='[exchange]\nalong = "g"\nmax_ranks = 1\n'),
                                name="e.toml"))
     assert capped.sampling.exchange_ranks == 1 and base.sampling.exchange_ranks is None
     assert config_fingerprint(capped) == config_fingerprint(base)
@@ -352,8 +387,8 @@ def test_scalar_size_and_derived_entries(tmp_path):
     tasks = load_config(write(tmp_path, text(lattice=lattice, terms=terms, scan=scan))).tasks()
     assert [t.size for t in tasks] == [(3, 3, 3)] * 2  # odd size allowed with open boundaries
     assert [t.terms[0]["coupling"] for t in tasks] == [0.5, 1.0]
-    assert [t.task_id for t in tasks] == ["L3_g1_r0", "L3_g2_r0"]
-    assert tasks[0].params == {"L": 3, "g": 1.0, "J": 0.5, "beta": 6, "replica": 0}
+    assert [t.task_id for t in tasks] == ["L3_g1_c0", "L3_g2_c0"]
+    assert tasks[0].params == {"L": 3, "g": 1.0, "J": 0.5, "beta": 6, "copy": 0}
 
 
 def test_scalar_size_error_names_lattice_size(tmp_path):
@@ -397,7 +432,7 @@ def test_build_model_matches_config(tmp_path):
 
 
 def test_validate_counts_distinct_models(tmp_path):
-    config = load_config(write(tmp_path, text(sampling=SAMPLING + "replicas = 3\n")))
+    config = load_config(write(tmp_path, text(sampling=SAMPLING + "copies = 3\n")))
     assert len(config.tasks()) == 18
     assert validate(config) == 6
 
@@ -428,6 +463,21 @@ def test_quickstart_is_small():
             n_sites *= length
         # about 2e-8 s per site*beta*step: this bound keeps the demo well under a minute
         assert n_sites * t.beta * (t.sampling.warmup_steps + t.sampling.measure_steps) <= 3e7
+
+
+def test_quickstart_comment_names_its_sizes():
+    config = load_config(REPO / "configs" / "quickstart.toml")
+    first = config.text.splitlines()[0]
+    sizes = sorted({t.size for t in config.tasks()})
+    assert " and ".join(f"{a}x{b}" for a, b in sizes) in first, first
+
+
+def test_user_texts_explain_physics_without_authoring_notes():
+    texts = {f"template {k}": v for k, v in TEMPLATES.items()}
+    texts.update({p.name: p.read_text() for p in [*SHIPPED, REPO / "configs" / "cluster-batch.sh"]})
+    for name, body in texts.items():
+        for phrase in ("demo scenario", "invented", "from memory", "qmc.", "replicas"):
+            assert phrase not in body.lower(), (name, phrase)
 
 
 @pytest.mark.parametrize("kind", sorted(TEMPLATES))

@@ -101,7 +101,7 @@ class Exact:
             "chi_uniform": self.spec.chi_uniform(beta),
             "m_stag2": self.spec.expect_diag(beta, (self.ms / n) ** 2),
             "chi_stag": self.spec.kubo_diag(beta, self.ms),
-            "s_q_next": self.spec.expect_diag(beta, self.sqn),
+            "s_q_shifted": self.spec.expect_diag(beta, self.sqn),
         }
         for name, v in self.vbs.items():
             out[name] = self.spec.expect_diag(beta, v)
@@ -250,5 +250,5 @@ def test_bond_energies_add_up_to_energy():
     """Per-group energies sum to the total (both are <H>/N with constants)."""
     model = CASES["columnar4"][0]()
     bins = run_qmc(model, 2.0, steps=20_000, seed_key="groups", bins=10)
-    total = bins["bond_energy/columnar-strong"] + bins["bond_energy/columnar-weak"]
+    total = bins["term_energy/columnar-strong"] + bins["term_energy/columnar-weak"]
     assert np.allclose(total, bins["energy"], rtol=0, atol=1e-12)

@@ -58,10 +58,11 @@ beta = 2.0
 warmup_steps = {warmup}
 measure_steps = {measure}
 bins = {bins}
-replicas = {replicas}
-exchange = "Q"
-exchange_every = {every}
+copies = {replicas}
 checkpoint_seconds = 0.2
+[exchange]
+along = "Q"
+every = {every}
 """
 
 Q_VALUES = [0.5, 0.75, 1.0, 1.25]
@@ -124,7 +125,7 @@ def test_zero_coupling_that_drops_terms_is_refused(tmp_path):
     with pytest.raises(UserError) as info:
         check_ladders(config.tasks())
     msg = str(info.value)
-    assert "sampling.exchange" in info.value.where and "same terms" in msg and "zero coupling" in msg
+    assert "exchange.along" in info.value.where and "same terms" in msg and "zero coupling" in msg
 
 
 # ------------------------------------------------------------------------------------------- ladder logic
@@ -417,5 +418,5 @@ def test_a_zero_coupling_is_refused_by_qmc_run(tmp_path):
 
     result = CliRunner().invoke(cli, ["run", str(write_config(tmp_path, q=[0.0, 0.5])), "--quiet"])
     assert result.exit_code == 2
-    assert result.stderr.startswith("error: ") and "sampling.exchange" in result.stderr
+    assert result.stderr.startswith("error: ") and "exchange.along" in result.stderr
     assert "zero coupling" in result.stderr and not (tmp_path / "run" / "tasks").exists()

@@ -83,14 +83,15 @@ beta = 2.0
 warmup_steps = 200
 measure_steps = {measure}
 bins = {bins}
-replicas = 2
-exchange = "Q"
-exchange_every = 4
+copies = 2
 checkpoint_seconds = 0.3
+[exchange]
+along = "Q"
+every = 4
 """
 
 
-EXCHANGE_ONE_RANK = EXCHANGE.replace("exchange_every = 4\n", "exchange_every = 4\nexchange_ranks = 1\n")
+EXCHANGE_ONE_RANK = EXCHANGE.replace("every = 4\n", "every = 4\nmax_ranks = 1\n")
 
 
 def write(tmp: Path, template: str, name: str, measure: int = 2000, bins: int = 10) -> Path:
@@ -168,7 +169,7 @@ def test_bins_identical_serial_n1_n2(tmp_path, template):
         # each 3-chain ladder ran side by side on both ranks: chains 0..1 on rank 0, chain 2 on rank 1
         assert log.count("on ranks 0, 1") == 2
         assert "rank 1: (at" in log and "here chains 2..2 of 3 (team member 1 of 2)" in log
-    if template is EXCHANGE_ONE_RANK:  # exchange_ranks = 1: one ladder per rank, no teams
+    if template is EXCHANGE_ONE_RANK:  # max_ranks = 1: one ladder per rank, no teams
         assert "on ranks" not in log and "side by side" not in log
         assert '"units_by_rank": {"0": 1, "1": 1}' in log
 

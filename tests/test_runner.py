@@ -161,16 +161,16 @@ def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
     plan = prepare_run(cfg)
     report = run_serial(plan)
     assert [o.status for o in report.outcomes] == ["failed", "done"]  # largest first
-    assert report.unfinished == ["L6_J1_beta1.5_r0"]
+    assert report.unfinished == ["L6_J1_beta1.5_c0"]
     index = load_index(plan.run_dir)
-    entry = index["tasks"]["L6_J1_beta1.5_r0"]
+    entry = index["tasks"]["L6_J1_beta1.5_c0"]
     assert entry["status"] == "failed" and "RuntimeError: simulated crash" in entry["message"]
-    assert index["tasks"]["L4_J1_beta1.5_r0"]["status"] == "done"
+    assert index["tasks"]["L4_J1_beta1.5_c0"]["status"] == "done"
     monkeypatch.setattr(runner, "build_model", real)
     plan = prepare_run(cfg)  # rerun: only the failed task
-    assert [t.task_id for t in plan.tasks] == ["L6_J1_beta1.5_r0"] and plan.done == ["L4_J1_beta1.5_r0"]
+    assert [t.task_id for t in plan.tasks] == ["L6_J1_beta1.5_c0"] and plan.done == ["L4_J1_beta1.5_c0"]
     report = run_serial(plan)
-    assert report.unfinished == [] and load_index(plan.run_dir)["tasks"]["L6_J1_beta1.5_r0"]["message"] == ""
+    assert report.unfinished == [] and load_index(plan.run_dir)["tasks"]["L6_J1_beta1.5_c0"]["message"] == ""
 
 
 def test_failure_after_a_checkpoint_marks_the_file(tmp_path, monkeypatch):
@@ -202,10 +202,10 @@ def test_prepare_orders_largest_first_and_selects(tmp_path):
     assert [t.params["L"] for t in plan.tasks] == [8, 6, 4]
     assert (plan.run_dir / "config.toml").read_text() == cfg.text
     assert set(load_index(plan.run_dir)["tasks"]) == {t.task_id for t in cfg.tasks()}
-    plan = prepare_run(cfg, only=("L4_J1_beta1.5_r0,L6_J1_beta1.5_r0",))
+    plan = prepare_run(cfg, only=("L4_J1_beta1.5_c0,L6_J1_beta1.5_c0",))
     assert [t.params["L"] for t in plan.tasks] == [6, 4]
     with pytest.raises(UserError) as info:
-        prepare_run(cfg, only=("L5_J1_beta1.5_r0",))
+        prepare_run(cfg, only=("L5_J1_beta1.5_c0",))
     assert info.value.where == "--only" and "did you mean" in info.value.message
 
 
@@ -228,7 +228,7 @@ def test_different_config_is_refused_unless_forced(tmp_path):
     first = load_config(config_file(tmp_path, sizes="[4, 6]"))
     plan = prepare_run(first)
     run_serial(plan)
-    kept = task_path(plan.run_dir, "L4_J1_beta1.5_r0").read_bytes()
+    kept = task_path(plan.run_dir, "L4_J1_beta1.5_c0").read_bytes()
     second = load_config(config_file(tmp_path, sizes="[4, 6]", measure=4000, name="other.toml"))
     with pytest.raises(UserError, match="different configuration") as info:
         prepare_run(second, plan.run_dir)
@@ -238,17 +238,17 @@ def test_different_config_is_refused_unless_forced(tmp_path):
     plan2 = prepare_run(second, plan.run_dir, force=True)
     names = sorted(p.name for p in plan.run_dir.rglob("*"))
     assert any(n.startswith("index.json.") and n.endswith(".old") for n in names)
-    assert sum(n.startswith("L4_J1_beta1.5_r0.h5.") for n in names) == 1
-    assert [t.task_id for t in plan2.tasks] == ["L6_J1_beta1.5_r0", "L4_J1_beta1.5_r0"]
-    old = next(p for p in (plan.run_dir / "tasks").iterdir() if p.name.startswith("L4_J1_beta1.5_r0.h5."))
+    assert sum(n.startswith("L4_J1_beta1.5_c0.h5.") for n in names) == 1
+    assert [t.task_id for t in plan2.tasks] == ["L6_J1_beta1.5_c0", "L4_J1_beta1.5_c0"]
+    old = next(p for p in (plan.run_dir / "tasks").iterdir() if p.name.startswith("L4_J1_beta1.5_c0.h5."))
     assert old.read_bytes() == kept
     # a task whose chain is unchanged keeps its file
     third = load_config(config_file(tmp_path, sizes="[4, 6, 8]", measure=4000, name="third.toml"))
     run_serial(prepare_run(second, plan.run_dir))
-    kept6 = task_path(plan.run_dir, "L6_J1_beta1.5_r0").read_bytes()
+    kept6 = task_path(plan.run_dir, "L6_J1_beta1.5_c0").read_bytes()
     plan3 = prepare_run(third, plan.run_dir, force=True)
-    assert [t.task_id for t in plan3.tasks] == ["L8_J1_beta1.5_r0"]
-    assert task_path(plan.run_dir, "L6_J1_beta1.5_r0").read_bytes() == kept6
+    assert [t.task_id for t in plan3.tasks] == ["L8_J1_beta1.5_c0"]
+    assert task_path(plan.run_dir, "L6_J1_beta1.5_c0").read_bytes() == kept6
 
 
 def test_task_fingerprint(tmp_path):

@@ -3,8 +3,9 @@
 ``tests/data/stored_bins/bins_before_house.npz`` holds every bin (and the VBS histogram) of five short
 runs made with commit ff097ea, before the house reshaping: square-lattice Heisenberg, J-Q2, J-Q3, a
 bilayer and a three-chain exchange ladder along Q.  Keys are ``run|task|observable`` with the names of
-that commit; ``RENAMED`` maps them to today's names.  A change that alters the Markov chain (random
-numbers, operator order, estimator arithmetic) fails here; one that only moves code does not.
+that commit; ``RENAMED`` maps observables to today's names and :func:`_current_task` the task ids (copy
+suffix ``_r0`` then, ``_c0`` now).  A change that alters the Markov chain (random numbers, operator order,
+estimator arithmetic) fails here; one that only moves code or renames things does not.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ from qmc.cli.main import cli
 
 DATA = Path(__file__).parent / "data" / "stored_bins"
 RUNS = ("heisenberg", "jq2", "jq3", "bilayer", "ladder")
-RENAMED: dict[str, str] = {}
+RENAMED = {"s_q_next": "s_q_shifted", "bond_energy": "term_energy"}
 
 
 def _stored() -> dict[str, np.ndarray]:
@@ -36,6 +37,11 @@ def _current_name(old: str) -> str:
     return old
 
 
+def _current_task(old: str) -> str:
+    stem, _, copy = old.rpartition("_r")
+    return f"{stem}_c{copy}"
+
+
 @pytest.mark.parametrize("run", RUNS)
 def test_bins_match_stored(run: str, tmp_path: Path) -> None:
     shutil.copy(DATA / f"{run}.toml", tmp_path / f"{run}.toml")
@@ -47,7 +53,7 @@ def test_bins_match_stored(run: str, tmp_path: Path) -> None:
     files = sorted(p.stem for p in (tmp_path / f"run-{run}" / "tasks").glob("*.h5"))
     assert len(files) == len(tasks)
     for task in tasks:
-        with h5py.File(tmp_path / f"run-{run}" / "tasks" / f"{task}.h5") as f:
+        with h5py.File(tmp_path / f"run-{run}" / "tasks" / f"{_current_task(task)}.h5") as f:
             for key, want in stored.items():
                 r, t, name = key.split("|")
                 if t != task:

@@ -1,8 +1,8 @@
 """Analysis layer: error analysis of Monte Carlo bins and finite-size scaling of a run.
 
 Modules (one concept each): ``binning`` (binning analysis, tau_int), ``jackknife`` (leave-one-out
-estimates), ``chains`` (combining replicas), ``derived`` (derived observables by jackknife),
-``tasks`` (task records), ``summary`` (per-task summaries, replica merging), ``scan`` (coupling
+estimates), ``chains`` (combining independent copies), ``derived`` (derived observables by jackknife),
+``tasks`` (task records), ``summary`` (per-task summaries, merging copies), ``scan`` (coupling
 detection, curves per size), ``groundstate`` (beta-doubling check), ``crossings`` (crossing points,
 1/nu from slopes), ``extrapolate`` (L -> infinity fits), ``collapse`` (data collapse), ``vbs`` (VBS
 histogram anisotropy), ``tables`` (CSV/JSON), ``plots`` (matplotlib, Agg), ``report``
@@ -30,7 +30,7 @@ from .groundstate import beta_doubling_check
 from .jackknife import JackknifeResult, jackknife, jackknife_pseudovalues
 from .report import CROSSING_QUANTITIES, analyze_run, format_result
 from .scan import detect_coupling
-from .summary import group_replicas, summarize_task
+from .summary import group_copies, summarize_task
 from .tasks import AnalysisTask
 from .vbs import cos4_from_histogram, plot_vbs_histogram, vbs_anisotropy
 
@@ -62,7 +62,7 @@ __all__ = [
     "find_crossing",
     "find_crossings",
     "format_result",
-    "group_replicas",
+    "group_copies",
     "halves_consistent",
     "inverse_nu",
     "jackknife",

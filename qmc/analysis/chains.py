@@ -1,4 +1,4 @@
-"""Combining independent Markov chains (replicas, or parts run separately) of the same parameters.
+"""Combining independent Markov chains (copies, or parts run separately) of the same parameters.
 
 Bins of equal length (equal ``steps_per_bin``) are exchangeable: the chains are combined by
 concatenating their bins, so every Monte Carlo step carries the same weight in the mean

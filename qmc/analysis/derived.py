@@ -6,7 +6,7 @@ Hamiltonian, temperature T = 1/beta):
 
     specific_heat = (<n^2> - <n>^2 - <n>) / N        from n_ops, n_ops_sq (SSE expansion order n)
     binder_stag   = <m_s^4> / <m_s^2>^2               from m_stag4, m_stag2
-    corr_length   = (L / 2 pi) sqrt(S(Q) / S(Q + 2 pi/L) - 1)   from s_q, s_q_next (second moment)
+    corr_length   = (L / 2 pi) sqrt(S(Q) / S(Q + 2 pi/L) - 1)   from s_q, s_q_shifted (second moment)
     xi_over_L     = corr_length / L
     binder_vbs    = <|D|^4> / (<D_x^2> + <D_y^2>)^2   from vbs4, vbs_x2, vbs_y2
     stiffness_L   = rho_s L                           from stiffness
@@ -58,17 +58,17 @@ def binder_stag(m_stag4: Num, m_stag2: Num) -> Num:
     return m_stag4 / m_stag2**2
 
 
-def corr_length(s_q: Num, s_q_next: Num, L: float) -> Num:
+def corr_length(s_q: Num, s_q_shifted: Num, L: float) -> Num:
     """Second-moment correlation length (L / 2 pi) sqrt(S(Q)/S(Q + 2 pi/L) - 1); NaN if the root < 0."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        arg = np.asarray(s_q, dtype=float) / np.asarray(s_q_next, dtype=float) - 1.0
+        arg = np.asarray(s_q, dtype=float) / np.asarray(s_q_shifted, dtype=float) - 1.0
         out = L / (2.0 * np.pi) * np.sqrt(np.where(arg >= 0.0, arg, np.nan))
     return float(out) if np.ndim(out) == 0 else out
 
 
-def xi_over_L(s_q: Num, s_q_next: Num, L: float) -> Num:
+def xi_over_L(s_q: Num, s_q_shifted: Num, L: float) -> Num:
     """corr_length / L."""
-    return corr_length(s_q, s_q_next, L) / L
+    return corr_length(s_q, s_q_shifted, L) / L
 
 
 def binder_vbs(vbs4: Num, vbs_x2: Num, vbs_y2: Num) -> Num:
@@ -84,8 +84,8 @@ def stiffness_L(stiffness: Num, L: float) -> Num:
 DERIVED_INPUTS: dict[str, tuple[str, ...]] = {
     "specific_heat": ("n_ops", "n_ops_sq"),
     "binder_stag": ("m_stag4", "m_stag2"),
-    "corr_length": ("s_q", "s_q_next"),
-    "xi_over_L": ("s_q", "s_q_next"),
+    "corr_length": ("s_q", "s_q_shifted"),
+    "xi_over_L": ("s_q", "s_q_shifted"),
     "binder_vbs": ("vbs4", "vbs_x2", "vbs_y2"),
     "stiffness_L": ("stiffness",),
 }

@@ -10,7 +10,7 @@
     plots/collapse_<quantity>.{png,pdf}  data collapse
     plots/vbs_L<L>.{png,pdf}             VBS histograms (largest beta per coupling)
 
-Steps: replicas are merged (:func:`qmc.analysis.summary.group_replicas`), every point is
+Steps: independent copies are merged (:func:`qmc.analysis.summary.group_copies`), every point is
 summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
 (:mod:`qmc.analysis.groundstate`), and for the chosen dimensionless ``quantity`` the crossings of
 size pairs are located (:mod:`qmc.analysis.crossings`), extrapolated as
@@ -39,7 +39,7 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
 from .scan import curves_for, detect_coupling, other_varying, scan_points
-from .summary import group_replicas, summarize_task
+from .summary import group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
 
 __all__ = ["CROSSING_QUANTITIES", "analyze_run", "format_result"]
@@ -194,7 +194,7 @@ def analyze_run(
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise AnalysisError(f"cannot create the output directory ({exc.strerror})", str(out)) from None
-    merged = group_replicas(task_list)
+    merged = group_copies(task_list)
     summaries = [summarize_task(m) for m in merged]
     coupling = detect_coupling(summaries, coupling)
     extra = other_varying(summaries, coupling)

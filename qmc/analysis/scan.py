@@ -1,7 +1,7 @@
 """Organisation of task summaries as a scan: linear size L, inverse temperature beta, coupling g.
 
 The coupling is the scan parameter that varies between tasks other than the size, beta and the
-replica index.  Candidates are numeric scalar parameters, present in every task, taking at least
+copy index.  Candidates are numeric scalar parameters, present in every task, taking at least
 two values, and varying at fixed L (a parameter that only follows L is not a coupling).  With
 several candidates that are one-to-one functions of each other (e.g. J = 1 - Q) the
 alphabetically first is taken; otherwise the caller must name one.
@@ -18,10 +18,11 @@ from typing import Any
 import numpy as np
 
 from .errors import AnalysisError
+from .tasks import COPY_PARAMS
 
 __all__ = ["NOT_COUPLINGS", "curves_for", "detect_coupling", "other_varying", "scan_points"]
 
-NOT_COUPLINGS = ("beta", "replica", "lattice", "size", "boundary", "L", "linear_size", "n_sites", "seed")
+NOT_COUPLINGS = ("beta", *COPY_PARAMS, "lattice", "size", "boundary", "L", "linear_size", "n_sites", "seed")
 """Parameter names never taken as the scanned coupling."""
 
 
@@ -79,7 +80,7 @@ def detect_coupling(summaries: Sequence[dict], coupling: str | None = None) -> s
 
 
 def other_varying(summaries: Sequence[dict], coupling: str | None) -> list[str]:
-    """Parameters (other than the coupling, beta, replica, size) that take several values."""
+    """Parameters (other than the coupling, beta, copy index, size) that take several values."""
     keys = set().union(*(s["params"] for s in summaries)) if summaries else set()
     out = []
     for k in sorted(keys - set(NOT_COUPLINGS) - {coupling}):

@@ -9,12 +9,12 @@
 
 ``tau_int`` is in units of bins (1/2 for uncorrelated bins), see :mod:`qmc.analysis.binning`.
 
-Replicas: tasks that differ only in ``params["replica"]`` are independent Markov chains of the same
-parameters.  :func:`group_replicas` merges them into one :class:`~qmc.analysis.tasks.AnalysisTask`
-per parameter set by concatenating their bins (equal bin lengths; see :mod:`qmc.analysis.chains`)
-and adding their VBS histograms.  When the bin lengths are incompatible the record keeps the
-replicas in ``parts`` and :func:`summarize_task` combines per-replica estimates by inverse-variance
-weighting.
+Independent copies: tasks that differ only in their copy index (``params["copy"]``, see
+:data:`~qmc.analysis.tasks.COPY_PARAMS`) are independent Markov chains of the same parameters.
+:func:`group_copies` merges them into one :class:`~qmc.analysis.tasks.AnalysisTask` per parameter set
+by concatenating their bins (equal bin lengths; see :mod:`qmc.analysis.chains`) and adding their VBS
+histograms.  When the bin lengths are incompatible the record keeps the copies in ``parts`` and
+:func:`summarize_task` combines per-copy estimates by inverse-variance weighting.
 """
 
 from __future__ import annotations
@@ -27,10 +27,10 @@ import numpy as np
 from .binning import error_estimate
 from .chains import bins_compatible, merge_bin_dicts, weighted_mean
 from .derived import derived_estimates
-from .tasks import AnalysisTask, as_record, canonical_params, params_key
+from .tasks import COPY_PARAMS, AnalysisTask, as_record, canonical_params, params_key
 from .vbs import vbs_anisotropy
 
-__all__ = ["group_replicas", "summarize_task"]
+__all__ = ["group_copies", "summarize_task"]
 
 
 def _sum_histograms(records: list[AnalysisTask]) -> tuple[np.ndarray | None, float | None]:
@@ -47,11 +47,11 @@ def _sum_histograms(records: list[AnalysisTask]) -> tuple[np.ndarray | None, flo
     return np.sum([h for h, _ in hists], axis=0), rng
 
 
-def group_replicas(tasks: Iterable[Any]) -> list[AnalysisTask]:
-    """Merge tasks whose parameters agree except ``replica`` into one record each (input order kept).
+def group_copies(tasks: Iterable[Any]) -> list[AnalysisTask]:
+    """Merge tasks whose parameters agree except the copy index into one record each (input order kept).
 
-    Merged record: ``task_id`` joins the replica ids with ``+``; ``params`` lose the ``replica`` key;
-    ``replicas`` lists the ids; bins are concatenated (rebinned to the largest bin length when the
+    Merged record: ``task_id`` joins the copies' ids with ``+``; ``params`` lose the copy index;
+    ``copies`` lists the ids; bins are concatenated (rebinned to the largest bin length when the
     lengths divide it), or kept apart in ``parts`` when incompatible; VBS histograms are summed.
     """
     groups: dict[tuple, list[AnalysisTask]] = {}
@@ -61,7 +61,7 @@ def group_replicas(tasks: Iterable[Any]) -> list[AnalysisTask]:
     out = []
     for members in groups.values():
         first = members[0]
-        params = {k: v for k, v in first.params.items() if k != "replica"}
+        params = {k: v for k, v in first.params.items() if k not in COPY_PARAMS}
         ids = tuple(m.task_id for m in members)
         hist, hrange = _sum_histograms(members)
         lengths = [m.steps_per_bin for m in members]
@@ -75,7 +75,7 @@ def group_replicas(tasks: Iterable[Any]) -> list[AnalysisTask]:
             vbs_hist_range=hrange,
             status=",".join(sorted({m.status for m in members})),
             exchange=first.exchange,
-            replicas=ids,
+            copies=ids,
         )
         if len(members) == 1 or bins_compatible(lengths):
             bins, spb = merge_bin_dicts([m.bins for m in members], lengths)
@@ -121,7 +121,7 @@ def _weighted(parts: list[dict[str, dict[str, float]]]) -> dict[str, dict[str, f
 
 
 def summarize_task(task_data: Any) -> dict[str, Any]:
-    """Summary dict of one task or merged replica record (see module docstring)."""
+    """Summary dict of one task or of merged copies (see module docstring)."""
     rec = as_record(task_data)
     warn: dict[str, list[str]] = {"plateau": [], "halves": [], "undefined": []}
     if rec.parts:
@@ -158,7 +158,7 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
             "steps_per_bin": rec.steps_per_bin,
             "n_bins": n_bins,
             "status": rec.status,
-            "replicas": list(rec.replicas) or [tid],
+            "copies": list(rec.copies) or [tid],
         },
         "observables": obs,
         "warnings": warnings,

@@ -1,10 +1,11 @@
 """Tables of all observables versus the coupling for every size, written as CSV and JSON.
 
-One row per scan point (replicas merged), sorted by (L, coupling, beta).  Columns: ``L``, ``beta``,
-the coupling, other varying parameters, ``task``, ``replicas``, ``n_bins``, then for every
-observable ``<name>``, ``<name>_err`` (one standard error) and ``<name>_tau`` (tau_int in bins),
-and ``cos4_hist`` (histogram estimate of <cos 4 theta>) when a VBS histogram was stored.  Missing
-or undefined values are empty cells in CSV and ``null`` in JSON.
+One row per scan point (independent copies merged), sorted by (L, coupling, beta).  Columns: ``L``,
+``beta``, the coupling, other varying parameters, ``task``, ``copies`` (number of independent copies
+merged), ``n_bins``, then for every observable ``<name>``, ``<name>_err`` (one standard error) and
+``<name>_tau_int[bins]`` (integrated autocorrelation time of the bin series, in bins: 1/2 for
+uncorrelated bins), and ``cos4_hist`` (histogram estimate of <cos 4 theta>) when a VBS histogram was
+stored.  Missing or undefined values are empty cells in CSV and ``null`` in JSON.
 """
 
 from __future__ import annotations
@@ -20,7 +21,10 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["observable_names", "table_rows", "to_jsonable", "write_csv", "write_json"]
+__all__ = ["TAU_SUFFIX", "observable_names", "table_rows", "to_jsonable", "write_csv", "write_json"]
+
+TAU_SUFFIX = "_tau_int[bins]"
+"""Column suffix of an observable's integrated autocorrelation time, which is in units of bins."""
 
 
 def to_jsonable(obj: Any) -> Any:
@@ -51,9 +55,9 @@ def table_rows(
     """Column names and row dicts of the observable table (see module docstring)."""
     names = observable_names(points)
     has_vbs = any(p.get("vbs") for p in points)
-    cols = ["L", "beta"] + ([coupling] if coupling else []) + list(extra) + ["task", "replicas", "n_bins"]
+    cols = ["L", "beta"] + ([coupling] if coupling else []) + list(extra) + ["task", "copies", "n_bins"]
     for n in names:
-        cols += [n, f"{n}_err", f"{n}_tau"]
+        cols += [n, f"{n}_err", n + TAU_SUFFIX]
     if has_vbs:
         cols.append("cos4_hist")
     rows = []
@@ -63,12 +67,12 @@ def table_rows(
             row[coupling] = p["g"]
         for k in extra:
             row[k] = p["params"].get(k)
-        row["replicas"] = len(p["info"].get("replicas", [])) or 1
+        row["copies"] = len(p["info"].get("copies", [])) or 1
         row["n_bins"] = p["info"].get("n_bins")
         for n in names:
             o = p["observables"].get(n)
             if o is not None:
-                row[n], row[f"{n}_err"], row[f"{n}_tau"] = o["mean"], o["error"], o["tau_int"]
+                row[n], row[f"{n}_err"], row[n + TAU_SUFFIX] = o["mean"], o["error"], o["tau_int"]
         if has_vbs and p.get("vbs"):
             row["cos4_hist"] = p["vbs"].get("cos4_hist")
         rows.append(row)

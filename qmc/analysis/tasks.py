@@ -3,7 +3,7 @@
 The analysis reads any object with the attributes of ``qmc.storage.task_file.TaskData``:
 ``task_id, params, bins, steps_per_bin, n_sites, linear_size, beta, vbs_histogram,
 vbs_hist_range, status, exchange``.  :class:`AnalysisTask` is a plain implementation used for merged
-replicas and for synthetic input.  Parameter values read from files may be numpy scalars, arrays or
+independent copies and for synthetic input.  Parameter values read from files may be numpy scalars, arrays or
 bytes; :func:`canonical_value` turns them into plain Python values (floats rounded to 12 significant
 digits) so that equal parameters compare and hash equal.
 """
@@ -16,15 +16,20 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["AnalysisTask", "as_record", "canonical_params", "canonical_value", "params_key"]
+__all__ = ["COPY_PARAMS", "AnalysisTask", "as_record", "canonical_params", "canonical_value", "params_key"]
+
+COPY_PARAMS = ("copy", "replica")
+"""Parameter names of a task's copy index: ``copy`` (0, 1, ... for ``[sampling] copies``), and ``replica``
+in task files of earlier releases.  Tasks that differ only in it are independent chains of one point."""
 
 
 @dataclass
 class AnalysisTask:
-    """A task (or a merge of replica tasks) with per-bin observables; mirrors ``TaskData``.
+    """A task (or a merge of independent copies) with per-bin observables; mirrors ``TaskData``.
 
-    ``parts`` holds the original replicas when their bins could not be concatenated (unequal,
-    incompatible bin lengths); their estimates are then combined by weighting.
+    ``copies`` lists the task ids merged into it; ``parts`` holds the original copies when their bins
+    could not be concatenated (unequal, incompatible bin lengths); their estimates are then combined by
+    weighting.
     """
 
     task_id: str
@@ -38,7 +43,7 @@ class AnalysisTask:
     vbs_hist_range: float | None = None
     status: str = "done"
     exchange: dict | None = None
-    replicas: tuple[str, ...] = ()
+    copies: tuple[str, ...] = ()
     parts: tuple[AnalysisTask, ...] = field(default_factory=tuple)
 
 
@@ -66,7 +71,7 @@ def canonical_params(params: Mapping[str, Any]) -> dict[str, Any]:
     return {str(k): canonical_value(v) for k, v in params.items()}
 
 
-def params_key(params: Mapping[str, Any], exclude: tuple[str, ...] = ("replica",)) -> tuple:
+def params_key(params: Mapping[str, Any], exclude: tuple[str, ...] = COPY_PARAMS) -> tuple:
     """Hashable key of the parameters, ignoring the names in ``exclude``."""
     cp = canonical_params(params)
     return tuple(sorted((k, v) for k, v in cp.items() if k not in exclude))
@@ -96,7 +101,7 @@ def as_record(task: Any) -> AnalysisTask:
             vbs_hist_range=getattr(task, "vbs_hist_range", None),
             status=str(getattr(task, "status", "done")),
             exchange=getattr(task, "exchange", None),
-            replicas=(str(task.task_id),),
+            copies=(str(task.task_id),),
         )
     except AttributeError as exc:
         from .errors import AnalysisError

@@ -12,8 +12,9 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``m_stag4``        <(M_s/N)^4>; binder_stag = m_stag4 / m_stag2^2 by jackknife
 ``chi_stag``       (1/N) int_0^beta <M_s(tau) M_s(0)> dtau
 ``s_q``            S(Q) = (1/N) <M_s^2> = N m_stag2 (static structure factor at the ordering wavevector)
-``s_q_next``       S(Q + 2 pi/L_a e_a) averaged over the winding directions a; corr_length (second moment)
-                   xi = (L/(2 pi)) sqrt(S(Q)/S(Q+dq) - 1) by jackknife
+``s_q_shifted``    S(Q + 2 pi/L_a e_a): the structure factor at the ordering wavevector shifted by the
+                   smallest wavevector of the lattice, averaged over the winding directions a; gives the
+                   second-moment correlation length xi = (L/(2 pi)) sqrt(S(Q)/S(Q+dq) - 1) by jackknife
 ``stiffness/<a>``  rho_a = <w_a^2>/(beta N), w_a the net number of up-spin hops along +a minus -a
                    (winding estimator: Pollock and Ceperley, Phys. Rev. B 36, 8343 (1987)); it equals
                    (1/N) d^2F/dphi^2 for a twist phi on every bond along a
@@ -21,7 +22,8 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``vbs_x2``         <D_x^2>, D_x = (1/N) sum_r (-1)^x S^z_r S^z_{r+x}; likewise ``vbs_y2``
 ``vbs4``           <(D_x^2 + D_y^2)^2>; VBS Binder ratio vbs4 / (vbs_x2 + vbs_y2)^2
 ``vbs_cos4``       <cos 4 theta> of (D_x, D_y) = |D| (cos theta, sin theta)
-``bond_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N
+``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N; a group is the
+                   terms of one [[terms]] block or one bond class (Heisenberg and projector-product alike)
 =================  ===========================================================================================
 """
 
@@ -32,16 +34,20 @@ import numpy as np
 from qmc.engine import steps as S
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["bin_names", "bin_row"]
+__all__ = ["RENAMED_OBSERVABLES", "bin_names", "bin_row"]
+
+RENAMED_OBSERVABLES = {"s_q_next": "s_q_shifted", "bond_energy": "term_energy"}
+"""Names of earlier releases -> today's (a name ``old/<group>`` becomes ``new/<group>``), for readers of
+task files written before the rename."""
 
 
 def bin_names(model: CompiledModel) -> tuple[str, ...]:
     """Column names of a bin row for this model (order matches :func:`bin_row`)."""
     names = ["energy", "n_ops", "n_ops_sq", "chi_uniform", "m_stag2", "m_stag4", "chi_stag", "s_q"]
     if _has_winding(model):
-        names += ["s_q_next", "stiffness"] + [f"stiffness/{d}" for d in model.dir_names]
+        names += ["s_q_shifted", "stiffness"] + [f"stiffness/{d}" for d in model.dir_names]
     elif model.n_dirs > 0:
-        names += ["s_q_next"]
+        names += ["s_q_shifted"]
     if model.n_vbs_dirs >= 1:
         names += ["vbs_x2"]
     if model.n_vbs_dirs >= 2:
@@ -50,7 +56,7 @@ def bin_names(model: CompiledModel) -> tuple[str, ...]:
         names += ["vbs4"]
     if model.n_vbs_dirs >= 2:
         names += ["vbs_cos4"]
-    names += [f"bond_energy/{g}" for g in model.group_names]
+    names += [f"term_energy/{g}" for g in model.group_names]
     return tuple(names)
 
 
@@ -71,7 +77,7 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
         "m_stag4": a[S.A_MS4] / n**4,
         "chi_stag": a[S.A_CHIS] / n,
         "s_q": a[S.A_MS2] / n,
-        "s_q_next": a[S.A_SQN],
+        "s_q_shifted": a[S.A_SQN],
         "vbs_x2": a[S.A_DX2],
         "vbs_y2": a[S.A_DY2],
         "vbs4": a[S.A_D4],
@@ -83,5 +89,5 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
         for d, name in enumerate(model.dir_names):
             vals[f"stiffness/{name}"] = rho[d]
     for g, name in enumerate(model.group_names):
-        vals[f"bond_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
+        vals[f"term_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
     return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)

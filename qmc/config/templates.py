@@ -1,9 +1,12 @@
 """Commented example configurations printed by ``qmc new KIND``.
 
-Every template is a complete configuration (schema: :mod:`qmc.config.parser`) whose comments explain
-each key; all of them load and validate as they are.  The scenarios and run names are invented demos.
-Where a comment says where a transition is expected, the value is quoted from memory and only sets the
-scan window of the demo.
+Every template is a complete configuration (schema: :mod:`qmc.config.schema`) whose comments explain the
+model, each key and the choice of parameters; all of them load and validate as they are.
+
+Sources of the transition points named in the comments (they only set the scan windows):
+bilayer g_c = 2.5220(1), Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006) (also the reference of
+tests/test_end_to_end.py); columnar dimer g_c ~ 1.91, J-Q2 (J/Q)_c ~ 0.045 and J-Q3 (J/Q)_c ~ 0.67 are
+from memory (a scan window that misses a transition shows up as crossings at its edge in ``qmc analyze``).
 """
 
 from __future__ import annotations
@@ -13,7 +16,7 @@ from qmc.errors import UserError, did_you_mean
 __all__ = ["TEMPLATES", "template"]
 
 
-def _run(name: str, seed: int, scenario: str) -> str:
+def _run(name: str, seed: int, description: str) -> str:
     return f'''\
 [run]
 # name: free text shown in logs and reports.
@@ -25,29 +28,41 @@ output = "runs/{name}"
 # parameter values, so results do not depend on how many processes run the tasks or in which order.
 seed = {seed}
 # description: optional free text.
-description = "{scenario}"
+description = "{description}"
 '''
 
 
 def _sampling(warmup: int, measure: int, bins: int, exchange: str | None = None) -> str:
     if exchange:
-        ex = (f'# exchange: optional replica exchange along the scanned coupling "{exchange}" (tasks that\n'
-              f"# differ only in {exchange} swap configurations now and then).  Uncomment to use it.\n"
-              f'# exchange = "{exchange}"\n')
+        ex = f'''
+# Replica exchange (optional; uncomment the three lines to use it): the tasks that differ only in
+# {exchange} run side by side, and every `every` Monte Carlo steps neighbouring values of {exchange} try to
+# swap their configurations, accepted with the exact ratio of their weights.  Near a transition, where a
+# single chain is slow to cross between ordered and disordered configurations, this shortens the
+# autocorrelation times.  `qmc summary` shows the acceptance rate of each pair: keep the values of
+# {exchange} close enough that it stays well above zero.
+# [exchange]
+# along = "{exchange}"
+# every = 10
+'''
     else:
-        ex = ("# exchange: optional; the scan name of a coupling to run replica exchange along (it needs at\n"
-              '# least two values), e.g. exchange = "g".  Left out here.\n')
+        ex = ""
     return f'''\
 [sampling]
 # One Monte Carlo step = one diagonal update over the whole operator string + one full loop update.
-# warmup_steps: steps discarded while the simulation equilibrates.
+# warmup_steps: steps discarded while the chain equilibrates and the operator string settles to its
+# typical length.  `qmc summary` warns when the first and second half of the bins disagree, the sign
+# of too short a warm-up.
 warmup_steps = {warmup}
 # measure_steps: steps that are measured; they are averaged in bins.
 measure_steps = {measure}
-# bins: number of bins (>= 2, must divide measure_steps); error bars come from the bin averages.
+# bins: number of bins (>= 2, must divide measure_steps); error bars come from the bin averages, which
+# must be nearly independent: here {measure // bins} steps per bin.  `qmc summary` shows tau_int in units of
+# bins; values near 1/2 mean independent bins, larger values call for longer bins (fewer of them).
 bins = {bins}
-# replicas: independent copies of every parameter point (different random streams).
-replicas = 1
+# copies: independent copies of every parameter point (own random streams), e.g. to use more processes
+# or to compare error bars between copies; `qmc summary --merge-copies` combines them.
+copies = 1
 # checkpoint_seconds: how often a running task saves its full state, so an interrupted run resumes.
 checkpoint_seconds = 300
 {ex}'''
@@ -56,8 +71,8 @@ checkpoint_seconds = 300
 _SCAN_HELP = '''\
 # Every entry is a number (fixed), a list of values, a range {start, stop, num} (num evenly spaced
 # values, both ends included), or a text expression of other entries such as "2*L", "L/2" or "0.5*g".
-# Every combination of the listed values is one task (times sampling.replicas).  beta (the inverse
-# temperature, in inverse energy units) is required.  Every entry must be used somewhere.
+# Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
+# temperature, in inverse units of the couplings) is required.  Every entry must be used somewhere.
 '''
 
 _TERMS_HELP = '''\
@@ -67,7 +82,8 @@ _TERMS_HELP = '''\
 #                               cell; coupling = Q >= 0.  symmetrize = true (default) also places the
 #                               shape rotated by 90 degrees.
 # A coupling is a number or a scan name (or an expression such as "2*g").  Negative couplings have a
-# sign problem and are refused.  name = "..." optionally labels a term's energy column.
+# sign problem and are refused.  Each block's energy per site is measured as term_energy/<name>;
+# name = "..." sets that name.
 '''
 
 _LATTICE_HELP = '''\
@@ -75,6 +91,10 @@ _LATTICE_HELP = '''\
 # size: number of unit cells along each direction; numbers or scan names.
 # boundary: "periodic" (default) or "open".  Periodic chain/square/bilayer/cubic lattices need even sizes.
 '''
+
+_CRITICAL_BETA = ("# beta = L: at these transitions time scales like length (dynamic exponent z = 1), so\n"
+                  "# beta proportional to L keeps the space-time shape of every size the same and\n"
+                  "# dimensionless quantities of different sizes cross at the critical coupling.\n")
 
 
 def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling: str) -> str:
@@ -85,37 +105,42 @@ def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling
 TEMPLATES: dict[str, str] = {
     "heisenberg": _compose(
         "# Square-lattice Heisenberg antiferromagnet, H = J sum_<ij> S_i.S_j with J = 1.\n"
-        "# Demo scenario: a student checks how the staggered magnetization and the spin stiffness drift\n"
-        "# with system size at low temperature (beta grows with L so that T -> 0 as L grows).\n",
-        _run("neel-drift", 20240611, "finite-size drift of the Neel order"),
+        "# Its ground state has Neel order: the staggered magnetization m_stag2 and the spin stiffness stay\n"
+        "# finite as L grows, approaching their infinite-size values with corrections in powers of 1/L.\n"
+        "# beta grows with L so that the temperature stays below the finite-size energy scale ~ 1/L and the\n"
+        "# estimates of every size are close to its ground state.\n",
+        _run("heisenberg-square", 20240611, "Neel order of the square-lattice Heisenberg model versus size"),
         'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
         '[[terms]]\ntype = "heisenberg"\n# bonds: "nn" = all nearest-neighbour bonds (also "x", "y").\n'
         'bonds = "nn"\ncoupling = 1.0\n',
+        "# L: four sizes, enough to extrapolate m_stag2 and the stiffness in 1/L.\n"
         "L = [4, 8, 12, 16]\n# beta: inverse temperature; here twice the linear size.\nbeta = \"2*L\"\n",
         _sampling(2000, 20000, 100),
     ),
     "bilayer": _compose(
         "# Square-lattice bilayer: H = sum_intra S_i.S_j + g sum_rungs S_i.S_j.\n"
-        "# Demo scenario: a group locates the point where the rungs win and the two layers lock into\n"
-        "# singlets; the crossing of stiffness*L between sizes marks it (expected near g = 2.52, from\n"
-        "# memory).\n",
-        _run("rung-singlet-hunt", 7321, "locate the bilayer rung-singlet transition"),
+        "# For small rung coupling g both layers order antiferromagnetically together; for large g every\n"
+        "# rung forms a singlet and a spin gap opens.  The quantum phase transition between them, in the\n"
+        "# three-dimensional O(3) universality class, lies at g = 2.522.  The scan 2.40 ... 2.60\n"
+        "# brackets it: `qmc analyze --quantity stiffness_L` locates the crossings of stiffness*L between\n"
+        "# sizes.\n",
+        _run("bilayer-transition", 7321, "rung-singlet transition of the square-lattice bilayer"),
         'kind = "bilayer"\nsize = ["L", "L"]\nboundary = "periodic"\n',
         '[[terms]]\ntype = "heisenberg"\n# bonds: "intra" = in-plane bonds of both layers.\n'
         'bonds = "intra"\ncoupling = 1.0\n\n'
         '[[terms]]\ntype = "heisenberg"\n# bonds: "inter" = the rungs joining the two layers.\n'
         'bonds = "inter"\ncoupling = "g"\n',
         "L = [8, 12, 16]\n# g: rung coupling, 11 values from 2.40 to 2.60.\n"
-        "g = { start = 2.40, stop = 2.60, num = 11 }\n"
-        "# beta: inverse temperature equal to the linear size.\nbeta = \"L\"\n",
+        "g = { start = 2.40, stop = 2.60, num = 11 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="g"),
     ),
     "columnar-dimer": _compose(
         "# Columnar dimerized square lattice: H = g sum_strong S_i.S_j + sum_weak S_i.S_j, the strong\n"
         "# bonds forming columns of parallel dimers (x-bonds starting at even x).\n"
-        "# Demo scenario: a class project compares the dimerized lattice with the bilayer and looks for\n"
-        "# the dimer-singlet transition (expected near g = 1.91, from memory).\n",
-        _run("dimer-columns", 515, "columnar dimer transition scan"),
+        "# For g near 1 the lattice orders antiferromagnetically; for large g every strong dimer forms a\n"
+        "# singlet.  The transition between them (O(3) universality, as in the bilayer) lies near g = 1.91;\n"
+        "# the scan 1.85 ... 1.97 brackets it.\n",
+        _run("columnar-dimer-transition", 515, "dimer-singlet transition of the columnar dimerized lattice"),
         'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
         '[[terms]]\ntype = "heisenberg"\n'
         '# bonds: "columnar-strong" = the dimer bonds of the columnar pattern.\n'
@@ -123,15 +148,17 @@ TEMPLATES: dict[str, str] = {
         '[[terms]]\ntype = "heisenberg"\n# bonds: "columnar-weak" = every other nearest-neighbour bond.\n'
         'bonds = "columnar-weak"\ncoupling = 1.0\n',
         "L = [8, 12, 16]\n# g: strong-bond coupling, 7 values from 1.85 to 1.97.\n"
-        "g = { start = 1.85, stop = 1.97, num = 7 }\nbeta = \"L\"\n",
+        "g = { start = 1.85, stop = 1.97, num = 7 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="g"),
     ),
     "jq2": _compose(
         "# J-Q2 model: H = J sum_<ij> S_i.S_j - Q sum P_ij P_kl, P = 1/4 - S_i.S_j, the projector pairs\n"
-        "# sitting on the two parallel bonds of every 2x2 plaquette (both orientations), Q = 1.\n"
-        "# Demo scenario: a reading group watches Neel order give way to columnar valence-bond order as\n"
-        "# J/Q decreases (the change is expected near J/Q = 0.045, from memory).\n",
-        _run("plaquette-pairs", 99, "Neel to valence-bond crossover in the J-Q2 model"),
+        "# sitting on the two parallel bonds of every 2x2 plaquette (both orientations); Q = 1 sets the\n"
+        "# energy unit.  The Q term favours singlets on parallel bonds: for large J/Q the ground state has\n"
+        "# Neel order, for small J/Q columnar valence-bond order (vbs_x2, vbs_y2 finite).  The two meet\n"
+        "# near J/Q = 0.045, a transition with no symmetry relation between the two orders; the scan\n"
+        "# 0.03 ... 0.06 brackets it.\n",
+        _run("jq2-transition", 99, "Neel to valence-bond-solid transition of the J-Q2 model"),
         'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
         '[[terms]]\ntype = "heisenberg"\nbonds = "nn"\ncoupling = "J"\n\n'
         '[[terms]]\ntype = "projector-product"\n'
@@ -140,22 +167,23 @@ TEMPLATES: dict[str, str] = {
         'shape = "plaquette-pair"\n# symmetrize: also place the shape rotated by 90 degrees.\n'
         "symmetrize = true\ncoupling = 1.0\n",
         "L = [8, 12, 16]\n# J: Heisenberg coupling in units of Q, 7 values from 0.03 to 0.06.\n"
-        "J = { start = 0.03, stop = 0.06, num = 7 }\nbeta = \"L\"\n",
+        "J = { start = 0.03, stop = 0.06, num = 7 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="J"),
     ),
     "jq3": _compose(
         "# J-Q3 model: H = J sum_<ij> S_i.S_j - Q sum P P P over three parallel bonds stacked in a column\n"
-        "# (both orientations), P = 1/4 - S_i.S_j, Q = 1.\n"
-        "# Demo scenario: a student checks whether the valence-bond histogram grows four-fold peaks when\n"
-        "# J/Q is lowered (the order is expected to set in near J/Q = 0.67, from memory).\n",
-        _run("three-in-a-column", 4242, "valence-bond order in the J-Q3 model"),
+        "# (both orientations), P = 1/4 - S_i.S_j; Q = 1 sets the energy unit.  Three projectors favour\n"
+        "# valence-bond order more strongly than two: below J/Q = 0.67 the columnar order sets in, and the\n"
+        "# histogram of the order parameter (D_x, D_y), stored per task and drawn by `qmc analyze --plot`,\n"
+        "# develops four peaks (vbs_cos4 > 0).  Near the transition it is nearly circular.\n",
+        _run("jq3-vbs", 4242, "onset of columnar valence-bond order in the J-Q3 model"),
         'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
         '[[terms]]\ntype = "heisenberg"\nbonds = "nn"\ncoupling = "J"\n\n'
         '[[terms]]\ntype = "projector-product"\n'
         '# shape: "column-of-three" = three parallel bonds stacked in a column.\n'
         'shape = "column-of-three"\nsymmetrize = true\ncoupling = 1.0\n',
         "L = [8, 12, 16]\n# J: Heisenberg coupling in units of Q, 7 values from 0.50 to 0.80.\n"
-        "J = { start = 0.50, stop = 0.80, num = 7 }\nbeta = \"L\"\n",
+        "J = { start = 0.50, stop = 0.80, num = 7 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="J"),
     ),
 }

@@ -83,7 +83,7 @@ def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) 
     terms (``term_start``, ``term_bonds``, ``term_group``, sites, groups) at every point of the ladder.
     """
     name = tasks[0].exchange
-    where = f"{tasks[0].source}: sampling.exchange"
+    where = f"{tasks[0].source}: exchange.along"
     ref = models[0]
     out = []
     for task, m in zip(tasks, models, strict=True):
@@ -164,7 +164,7 @@ class Ladder:
                                           **kw)
             m = self.m
             self.state = {
-                "rng": stream_seed(t0.seed, exchange_seed_key(self.group)),
+                "rng": stream_seed(t0.seed, str(t0.exchange_seed_key)),
                 "labels": np.arange(m, dtype=np.int64),
                 "direction": np.zeros(m, dtype=np.int8),
                 "round_trips": np.zeros(m, dtype=np.int64),

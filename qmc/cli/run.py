@@ -1,0 +1,165 @@
+"""``qmc run``: run or resume the tasks of a configuration, serially or as an MPI job.
+
+Signals: SIGTERM (or ``--max-time``) asks every running task to checkpoint and stop, exit 0; a first
+Ctrl-C does the same and exits 130, a second one interrupts at once.  The log goes to ``RUN_DIR/run.log``.
+"""
+
+from __future__ import annotations
+
+import logging
+import signal
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+import click
+
+__all__ = ["run_cmd"]
+
+
+def _open_log(run_dir: Path) -> tuple[logging.Logger, logging.Handler]:
+    logger = logging.getLogger("qmc.run")
+    logger.setLevel(logging.INFO)
+    logger.propagate = False
+    handler = logging.FileHandler(run_dir / "run.log", encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
+    logger.addHandler(handler)
+    return logger, handler
+
+
+def _install_signals(flag: Any) -> dict[int, Any]:
+    def on_term(signum: int, _frame: Any) -> None:
+        flag.set("SIGTERM received", signum)
+
+    def on_int(signum: int, _frame: Any) -> None:
+        if flag.is_set():
+            raise KeyboardInterrupt
+        flag.set("interrupted (Ctrl-C)", signum)
+
+    old: dict[int, Any] = {}
+    try:
+        old[signal.SIGTERM] = signal.signal(signal.SIGTERM, on_term)
+        old[signal.SIGINT] = signal.signal(signal.SIGINT, on_int)
+    except ValueError:  # not the main thread: no signal handling
+        pass
+    return old
+
+
+def _restore_signals(old: dict[int, Any]) -> None:
+    for sig, handler in old.items():
+        signal.signal(sig, handler)
+
+
+def _listing(ids: list[str], limit: int = 10) -> str:
+    return ", ".join(ids[:limit]) + (f", ... ({len(ids) - limit} more)" if len(ids) > limit else "")
+
+
+@click.command("run")
+@click.argument("config", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--out", "out", type=click.Path(path_type=Path), default=None,
+              help="Run directory (default: [run] output of the configuration).")
+@click.option("--only", "only", multiple=True, metavar="TASK",
+              help="Run only this task id (repeat the option, or separate ids by commas).")
+@click.option("--force", is_flag=True,
+              help="Reuse a run directory made with a different configuration: its index and the task files "
+                   "of changed tasks are renamed aside (never deleted).")
+@click.option("--quiet", "-q", is_flag=True, help="No progress display (for batch jobs); the log is kept.")
+@click.option("--max-time", "max_time", type=click.FloatRange(min=0, min_open=True), default=None,
+              metavar="SECONDS", help="Wall-time budget: checkpoint and stop cleanly (exit 0) when used up.")
+def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, quiet: bool,
+            max_time: float | None) -> None:
+    """Run all unfinished tasks of CONFIG (largest lattices first); rerun the same command to resume.
+
+    A task is one point of the scan in one of its independent copies; its bins, checkpoint and
+    provenance go to one file in the run directory.  SIGTERM (e.g. a cluster time limit) or
+    --max-time: every running task writes a checkpoint and the command exits 0; the next `qmc run`
+    continues where it stopped, with bins bit-identical to an uninterrupted run.
+
+    Started by an MPI launcher (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks:
+    rank 0 hands out tasks (largest first) and computes too, and a replica-exchange ladder runs its
+    chains side by side on up to [exchange] max_ranks ranks.  Results do not depend on K.
+    """
+    from qmc.mpi.farm import mpi_world
+    from qmc.run.serial import StopFlag
+
+    t_start = time.time()
+    world = mpi_world()  # before the signal handlers, so that MPI start-up cannot replace them
+    flag = StopFlag()
+    old = _install_signals(flag)
+    try:
+        if world is not None and world.idle:  # an extra process of a launcher without mpi4py
+            code = 0
+        elif world is not None and world.rank != 0:
+            from qmc.mpi.farm import run_worker
+
+            code = run_worker(world, stop_flag=flag)
+        else:
+            code = _run_main(config, out, only, force, quiet, max_time, t_start, flag, world)
+    finally:
+        _restore_signals(old)
+    if code:
+        sys.exit(code)
+
+
+def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool, quiet: bool,
+              max_time: float | None, t_start: float, flag: Any, world: Any) -> int:
+    """Serial run, or rank 0 of an MPI run; returns the exit status."""
+    from qmc.config.parser import load_config
+    from qmc.run.progress import NullProgress, Progress
+    from qmc.run.serial import prepare_run, run_serial, task_weight
+
+    try:
+        cfg = load_config(config)
+        plan = prepare_run(cfg, out, only=only, force=force)
+    except BaseException:
+        if world is not None:  # the workers wait for the set-up: tell them the run will not start
+            world.cancel()
+        raise
+    logger, handler = _open_log(plan.run_dir)
+    progress = NullProgress() if quiet else Progress()
+    try:
+        logger.info("qmc run %s: %d task(s) to run, %d done already, run directory %s", cfg.path,
+                    len(plan.tasks), len(plan.done), plan.run_dir)
+        for m in plan.moved:
+            logger.warning("--force: renamed aside %s", m)
+            progress.message(f"note: renamed aside {m}")
+        progress.plan([(t.task_id, task_weight(t), t.sampling.warmup_steps + t.sampling.measure_steps,
+                        plan.index["tasks"][t.task_id]["steps_done"]) for t in plan.tasks])
+        deadline = t_start + max_time if max_time is not None else None
+        if world is not None:
+            from qmc.mpi.farm import run_farm
+
+            report = run_farm(world, plan, stop_flag=flag, progress=progress, logger=logger,
+                              deadline=deadline)
+        else:
+            report = run_serial(plan, stop_flag=flag, progress=progress, logger=logger, deadline=deadline)
+        progress.close()
+        return _report(plan, report, flag, quiet, logger)
+    finally:
+        logger.removeHandler(handler)
+        handler.close()
+
+
+def _report(plan: Any, report: Any, flag: Any, quiet: bool, logger: logging.Logger) -> int:
+    n_sel = len(plan.tasks) + len(plan.done)
+    for o in report.failed:
+        click.echo(f"error: task {o.task_id} failed: {o.message} (details in {plan.run_dir / 'run.log'})",
+                   err=True)
+    if report.unfinished:
+        reason = report.stop_reason or ("tasks failed" if report.failed else "stopped")
+        text = (f"stopped ({reason}): {len(report.unfinished)} of {n_sel} task(s) unfinished: "
+                f"{_listing(report.unfinished)}; run the same command again to continue")
+        logger.info(text)
+        if not report.failed or report.stop_reason:
+            click.echo(text, err=True)
+    else:
+        text = f"done: all {n_sel} task(s) finished in {plan.run_dir}"
+        logger.info(text)
+        if not quiet:
+            click.echo(text, err=True)
+    if report.failed:
+        return 1
+    if getattr(flag, "signal", None) == signal.SIGINT:
+        return 130
+    return 0

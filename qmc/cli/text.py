@@ -1,0 +1,101 @@
+"""Plain-text renderings for the terminal: a task summary table and a task file's contents.
+
+Summary columns: ``mean``, ``error`` (one standard error of the mean, from the binning analysis) and
+``tau_int[bins]`` (integrated autocorrelation time of the bin series in units of bins; 1/2 means
+uncorrelated bins, larger values mean the bins are too short).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from qmc.exchange.tasks import exchange_summary
+from qmc.storage.task_file import FORMAT_VERSION, TASK_FORMAT
+
+__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "inspect_text"]
+
+
+def fmt(x: Any, spec: str) -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "nan"
+    return format(x, spec)
+
+
+def params_text(params: dict[str, Any]) -> str:
+    return ", ".join(f"{k} = {list(v) if isinstance(v, tuple) else v}" for k, v in params.items())
+
+
+def summary_table(s: dict[str, Any]) -> str:
+    info = s.get("info", {})
+    head = f"task {s['task']}"
+    if info:
+        head += (f"  ({info.get('status', '?')}, {info.get('n_bins', 0)} bins of "
+                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites)")
+    lines = [head, "  " + params_text(s["params"])]
+    obs = s["observables"]
+    if obs:
+        width = max(10, *(len(n) for n in obs))
+        lines.append(f"  {'observable':<{width}}  {'mean':>16}  {'error':>10}  {'tau_int[bins]':>13}")
+        for name, d in obs.items():
+            lines.append(f"  {name:<{width}}  {fmt(d.get('mean'), '16.9g')}  "
+                         f"{fmt(d.get('error'), '10.3g')}  {fmt(d.get('tau_int'), '13.2f')}")
+    if s.get("exchange"):
+        lines.append("  " + exchange_text(s["exchange"]))
+    lines += [f"  warning: {w}" for w in s.get("warnings", [])]
+    return "\n".join(lines)
+
+
+def exchange_text(x: dict[str, Any]) -> str:
+    """One line on a task's replica exchange: its place in the ladder and its acceptance rates."""
+    name, pos, values, tried = x["parameter"], x["position"], x["values"], x["attempted"]
+    parts = []
+    for j, rate, other in ((pos - 1, x["acceptance_down"], pos - 1), (pos, x["acceptance_up"], pos + 1)):
+        if 0 <= j < len(tried) and 0 <= other < len(values):
+            parts.append(f"with {name} = {values[other]:g}: {fmt(rate, '.3f')} ({tried[j]} attempts)")
+    return (f"exchange along {name}: position {pos + 1} of {len(values)}, acceptance "
+            + ", ".join(parts) + f"; round trips of the ladder: {x['round_trips']}")
+
+
+def inspect_text(d: Any) -> str:
+    rows: list[tuple[str, str]] = [
+        ("file", d.path), ("format", f"{TASK_FORMAT}, version {FORMAT_VERSION}"), ("task", d.task_id),
+        ("status", d.status),
+    ]
+    if d.message:
+        rows.append(("message", d.message))
+    rows.append(("params", params_text(d.params)))
+    m = d.model_info
+    if m:
+        groups = ", ".join(m.get("group_names", []) or [])
+        rows.append(("model", f"{m.get('lattice_kind', '?')} lattice, {m.get('n_sites', '?')} sites, "
+                              f"{m.get('n_terms', '?')} terms, term groups: {groups}"))
+    rows.append(("beta", f"{d.beta:g}"))
+    rows.append(("bins", f"{d.bins_done} of {d.bins_total} done, {d.steps_per_bin} steps per bin"))
+    rows.append(("steps", f"{d.steps_done} of {d.steps_total} done"))
+    rows.append(("checkpoint", f"{d.checkpoint_time or 'none'} (at step {d.steps_done})"))
+    rows.append(("observables", ", ".join(d.bin_names)))
+    if d.vbs_histogram is not None:
+        rows.append(("vbs_histogram", f"{d.vbs_histogram.shape[0]}x{d.vbs_histogram.shape[1]} bins over "
+                                      f"[-{d.vbs_hist_range:g}, {d.vbs_hist_range:g}]^2, "
+                                      f"{int(d.vbs_histogram.sum())} samples"))
+    if d.exchange:
+        x = exchange_summary(d.exchange)
+        plain = {k: (v.tolist() if hasattr(v, "tolist") else v) for k, v in d.exchange.items()}
+        short = {k: (f"[{len(v)} values]" if isinstance(v, list) and len(v) > 8 else v)
+                 for k, v in plain.items()}
+        rows.append(("exchange", exchange_text(x) if x is not None else params_text(short)))
+    width = max(len(k) for k, _ in rows)
+    lines = [f"{k:<{width}}  {v}" for k, v in rows]
+    prov = dict(d.provenance)
+    sessions = prov.pop("sessions", [])
+    lines.append("provenance")
+    pw = max((len(k) for k in prov), default=0)
+    lines += [f"  {k:<{pw}}  {v}" for k, v in prov.items()]
+    lines.append(f"sessions ({len(sessions)})")
+    for i, s in enumerate(sessions, 1):
+        lines.append(f"  {i}. {s.get('start')} -> {s.get('stop')}  steps {s.get('steps_start')} -> "
+                     f"{s.get('steps_stop')}  {s.get('ended')}  on {s.get('host')} (pid {s.get('pid')})")
+    lines.append(f"config ({d.config_path})")
+    lines += [f"  | {line}" for line in d.config_text.rstrip("\n").split("\n")]
+    return "\n".join(lines)

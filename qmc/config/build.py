@@ -1,0 +1,75 @@
+"""The Hamiltonian of a task: build and compile its model, with model errors located in the config file."""
+
+from __future__ import annotations
+
+import json
+import re
+from typing import Any
+
+import qmc.models as models
+from qmc.config.run_config import RunConfig
+from qmc.config.tasks import Task
+from qmc.errors import UserError
+from qmc.models import CompiledModel, ModelError
+
+__all__ = ["build_model", "validate"]
+
+
+def build_model(task: Task) -> CompiledModel:
+    """Compile the Hamiltonian of one task.
+
+    A ``models.ModelError`` becomes a UserError located in the configuration file, e.g.
+    ``"configs/x.toml: terms[2].bonds"`` (``[[terms]]`` blocks counted from 0).
+    """
+    try:
+        if task.explicit is not None:
+            lat = _explicit_lattice(task.explicit)
+        else:
+            lat = models.build_lattice(task.lattice_kind, task.size, task.boundary)
+    except ModelError as exc:
+        raise _located(exc.within("lattice"), task) from None
+    terms = []
+    for i, d in enumerate(task.terms):
+        kwargs = {k: v for k, v in d.items() if k != "type"}
+        cls = models.HeisenbergTerm if d["type"] == "heisenberg" else models.ProjectorProductTerm
+        try:
+            terms.append(cls(**kwargs))
+        except ModelError as exc:
+            raise _located(exc.within(f"terms[{i}]"), task) from None
+    try:
+        return models.compile_model(lat, terms)
+    except ModelError as exc:
+        raise _located(exc, task) from None
+
+
+def _explicit_lattice(spec: dict[str, Any]) -> models.Lattice:
+    n, bonds, classes = spec["sites"], spec["bonds"], spec["classes"]
+    if classes is None:
+        return models.Lattice.from_bonds(n, [list(b) for b in bonds])
+    if bonds is None:
+        return models.Lattice.from_bonds(n, {k: [list(b) for b in v] for k, v in classes.items()})
+    owner = {frozenset(b): name for name, members in classes.items() for b in members}
+    return models.Lattice.from_bonds(n, [list(b) for b in bonds], [owner[frozenset(b)] for b in bonds])
+
+
+def _located(exc: ModelError, task: Task) -> UserError:
+    key = exc.where or ""
+    if task.explicit is not None:  # models names a class of the bond mapping as bonds['name']
+        key = re.sub(r"^lattice\.bonds\['([^']*)'\]", r"lattice.classes.\1", key)
+    where = f"{task.source}: {key}" if key else task.source
+    return UserError(f"{exc.message} (task {task.task_id})", where)
+
+
+def validate(config: RunConfig) -> int:
+    """Build every distinct model of the run once, so that model errors surface before any run starts.
+
+    Returns the number of distinct models built.
+    """
+    seen: set[str] = set()
+    for task in config.tasks():
+        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms],
+                         sort_keys=True, default=list)
+        if key not in seen:
+            seen.add(key)
+            build_model(task)
+    return len(seen)

@@ -1,0 +1,184 @@
+"""The configuration schema: sections, keys, their meaning, and the parsed form of each section.
+
+Sections and keys (``*`` marks required ones)::
+
+    [run]       name = "text" (default: file stem), output = "runs/x" (run directory, relative to the
+                config file; default "runs/<file stem>"), seed* = master seed (integer >= 0),
+                description = "text"
+    [lattice]   kind* = chain | square | bilayer | honeycomb | cubic, size* = [numbers or scan names]
+                (one entry per direction, or a single value for all), boundary = periodic | open
+                or: kind* = "explicit", sites* = N, bonds = [[i, j], ...], classes = {name = [[i, j], ...]}
+                (at least one of bonds/classes; with both, the classes split the bond list exactly)
+    [[terms]]   type* = "heisenberg": bonds* = bond class, coupling* = J   (adds +J S_i.S_j per bond)
+                type* = "projector-product": shape* = "plaquette-pair" | "column-of-three" |
+                [[[dx, dy], [dx, dy]], ...], coupling* = Q, symmetrize = bool
+                (adds -Q prod (1/4 - S_i.S_j) over the bonds of the shape); both take name = "text"
+    [scan]      NAME = number | [numbers] | {start, stop, num} (num values, both ends included) |
+                "expression of other scan names" (e.g. beta = "2*L");  beta* is required
+    [sampling]  warmup_steps*, measure_steps*, bins* (>= 2, divides measure_steps), copies = 1,
+                checkpoint_seconds = 300
+    [exchange]  along* = scan name of a coupling (replica exchange between its values), every = 10
+                (Monte Carlo steps between swap attempts), max_ranks = at most this many MPI ranks per
+                ladder (default: as many as shorten its step)
+
+Keys of earlier releases (:data:`RENAMED_KEYS`) are refused with a message naming their replacement.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import qmc.models as models
+from qmc.config.expressions import Expression, Number, format_number
+from qmc.errors import UserError
+from qmc.models import BOUNDARIES, LATTICE_KINDS
+
+__all__ = [
+    "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES", "EXPLICIT", "SECTIONS", "MAX_TASKS",
+    "COPY_PARAM", "RESERVED_NAMES", "RENAMED_KEYS", "NAME_RE", "TERM_NAME_RE",
+    "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "TERM_KEYS", "HOME",
+    "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling", "check_coupling",
+]
+
+# LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
+TERM_TYPES = ("heisenberg", "projector-product")
+SHAPES = tuple(models.SHAPES)  # named shapes of projector-product terms
+EXPLICIT = "explicit"
+SECTIONS = ("run", "lattice", "terms", "scan", "sampling", "exchange")
+MAX_TASKS = 100_000
+COPY_PARAM = "copy"
+"""Parameter name of the copy index (0 .. copies-1) in a task's ``params``."""
+RESERVED_NAMES = {
+    COPY_PARAM: "independent copies are numbered by 'copy', set by sampling.copies",
+    "replica": "task files of earlier releases number their independent copies by 'replica'",
+}
+"""Scan names a configuration may not use, with the reason."""
+
+RENAMED_KEYS = {
+    ("sampling", "replicas"): "[sampling] copies",
+    ("sampling", "exchange"): "[exchange] along",
+    ("sampling", "exchange_every"): "[exchange] every",
+    ("sampling", "exchange_ranks"): "[exchange] max_ranks",
+}
+"""(section, old key) -> its replacement: keys of earlier releases, refused with this name."""
+
+RUN_KEYS = {"name": "free text naming the run", "output": "the run directory, relative to this file",
+            "seed": "the master random seed, an integer >= 0", "description": "free text"}
+LATTICE_KEYS = {"kind": "one of " + ", ".join([*LATTICE_KINDS, EXPLICIT]),
+                "size": 'the number of unit cells per direction, e.g. size = ["L", "L"]',
+                "boundary": "periodic or open"}
+EXPLICIT_KEYS = {"kind": "explicit", "sites": "the number of sites N", "bonds": "[[i, j], ...] site pairs",
+                 "classes": "{name = [[i, j], ...], ...} named bond classes"}
+SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring, an integer >= 0",
+                 "measure_steps": "Monte Carlo steps measured, an integer >= 1",
+                 "bins": "number of bins the measurement is split into, >= 2, dividing measure_steps",
+                 "copies": "independent copies of every parameter point (own streams), an integer >= 1",
+                 "checkpoint_seconds": "seconds between checkpoints, > 0"}
+EXCHANGE_KEYS = {"along": "scan name of the coupling whose values exchange configurations",
+                 "every": "Monte Carlo steps between swap attempts, an integer >= 1",
+                 "max_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
+TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
+                            "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
+             "projector-product": {"type": "projector-product",
+                                   "shape": '"plaquette-pair", "column-of-three" or '
+                                            '[[[dx, dy], [dx, dy]], ...]',
+                                   "coupling": "Q >= 0, a number or scan name",
+                                   "symmetrize": "true (default) to add the shape rotated by 90 degrees",
+                                   "name": "label of the term"}}
+HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
+        **{k: "[sampling]" for k in SAMPLING_KEYS}, **{k: "[exchange]" for k in EXCHANGE_KEYS},
+        "beta": "[scan]", "L": "[scan]",
+        **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize")}}
+"""Key -> the section it belongs in, for messages about a key in the wrong place."""
+
+NAME_RE = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")  # scan names
+TERM_NAME_RE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.\-]*\Z")  # term labels
+
+
+@dataclass(frozen=True)
+class RunSection:
+    """``[run]``: free-text name, output directory as written, master seed, description."""
+
+    name: str
+    output: str
+    seed: int
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class LatticeSpec:
+    """``[lattice]``: a built-in kind with size expressions, or an explicit bond list (kind "explicit").
+
+    ``size`` has one expression per direction; ``size_scalar`` records that one value was given for all.
+    """
+
+    kind: str
+    size: tuple[Expression, ...] = ()
+    boundary: str = "periodic"
+    size_scalar: bool = False
+    sites: int | None = None
+    bonds: tuple[tuple[int, int], ...] | None = None
+    classes: dict[str, tuple[tuple[int, int], ...]] | None = None
+
+    def size_key(self, i: int) -> str:
+        """Configuration key of size entry ``i`` for messages."""
+        return "lattice.size" if self.size_scalar else f"lattice.size[{i}]"
+
+
+@dataclass(frozen=True)
+class TermSpec:
+    """One ``[[terms]]`` block; ``coupling`` is still an expression of the scan names."""
+
+    type: str
+    coupling: Expression
+    bonds: str | None = None
+    shape: str | tuple | None = None
+    symmetrize: bool | None = None
+    name: str | None = None
+
+
+@dataclass(frozen=True)
+class ScanEntry:
+    """One ``[scan]`` entry: its ``values`` (one or more), or a derived ``expression`` of other entries."""
+
+    name: str
+    values: tuple[Number, ...] = ()
+    expression: Expression | None = None
+
+    @property
+    def derived(self) -> bool:
+        return self.expression is not None
+
+
+@dataclass(frozen=True)
+class Sampling:
+    """``[sampling]`` and ``[exchange]``: how every chain is run.
+
+    ``copies`` independent copies of every parameter point, Monte Carlo steps and binning, checkpoint
+    interval in seconds.  From ``[exchange]``: ``exchange`` = the scan name exchanged along (``along``;
+    None without replica exchange), ``exchange_every`` = Monte Carlo steps between swap attempts
+    (``every``), ``exchange_ranks`` = the largest number of MPI ranks one ladder may use (``max_ranks``;
+    None: as many as shorten its step; it changes where chains run, never the results, so it is not part
+    of any fingerprint).
+    """
+
+    warmup_steps: int
+    measure_steps: int
+    bins: int
+    copies: int = 1
+    checkpoint_seconds: float = 300.0
+    exchange: str | None = None
+    exchange_every: int = 10
+    exchange_ranks: int | None = None
+
+    @property
+    def steps_per_bin(self) -> int:
+        return self.measure_steps // self.bins
+
+
+def check_coupling(value: Number, where: str, context: str) -> None:
+    """Refuse a negative coupling: J < 0 or Q < 0 gives negative weights (a sign problem)."""
+    if value < 0:
+        raise UserError(f"coupling = {format_number(value)}{context} is negative: only J >= 0 and Q >= 0 are "
+                        "simulated without a sign problem", where)
