@@ -59,7 +59,7 @@ def current_layout(state: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
     if layout != CHECKPOINT_LAYOUT:
         age = "old" if found < CHECKPOINT_LAYOUT else "newer"
         other = _RELEASES.get(found, f"{'a newer' if age == 'newer' else 'an older'} release of seriesloop")
-        raise UserError(f"the checkpoint has the {age} layout {found}, this program reads layout "
+        raise UserError(f"{age} layout {found}, this program reads layout "
                         f"{CHECKPOINT_LAYOUT}; rerun the task from the start (move its task file away, or "
                         f"run with --force) or continue it with {other}", "checkpoint")
     missing = [k for k in STATE_KEYS if k not in out]

@@ -34,14 +34,20 @@ from numba.extending import overload
 from qmc.engine import projector
 from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
-__all__ = ["insertion_allowed", "loop_update", "kind_record"]
+__all__ = ["insertion_allowed", "loop_update", "kind_record", "register_kind"]
 
-_SELECTION: tuple[tuple[frozenset[int], ModuleType], ...] = (
-    (frozenset({KIND_PROJECTOR}), projector),
-)
+_SELECTION: list[tuple[frozenset[int], ModuleType]] = []
 """(kind codes a module's record handles, the module), in order of preference."""
+_MODULE_OF_RECORD: dict[type, ModuleType] = {}
 
-_MODULE_OF_RECORD = {projector.ProjectorKind: projector}
+
+def register_kind(record: type, module: ModuleType, covers: frozenset[int]) -> None:
+    """Make ``module`` (which defines the hooks and ``record(model)``) the implementation of the kind whose
+    record class is ``record``; :func:`kind_record` picks it for models whose kind codes lie in ``covers``
+    (an empty set: only reachable by passing its record to the kernels directly, as tests do)."""
+    _MODULE_OF_RECORD[record] = module
+    if covers:
+        _SELECTION.append((frozenset(covers), module))
 
 
 def kind_record(model: CompiledModel) -> Any:
@@ -81,3 +87,6 @@ def _insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
 @overload(loop_update)
 def _loop_update(kind, chain, vertices, n_vertices):
     return _implementation(kind, "loop_update")
+
+
+register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))
