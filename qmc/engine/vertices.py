@@ -36,16 +36,16 @@ OP_OFF_MASK = (1 << OP_TERM_SHIFT) - 1
 """``ops[p] & OP_OFF_MASK`` is the off-diagonal mask (bit a: bond a acts off-diagonally)."""
 
 TT_META = 0
-"""Column of :func:`term_table` holding the term's packed ``k | kind << 2 | group << 4`` (see ``meta_*``)."""
+"""Column of :func:`term_table` holding the term's packed ``k | kind << 2 | group << 5`` (see ``meta_*``)."""
 TT_BOND = 1
 """First column of the bond records: bond a of the term is ``(i, j, b)`` at ``TT_BOND + TT_BOND_WIDTH a``
 plus 0, 1, 2 (sites i, j and the bond's index into ``bond_sites``)."""
 TT_BOND_WIDTH = 3
 
 _KIND_SHIFT = 2
-_GROUP_SHIFT = 4
+_GROUP_SHIFT = 5
 MAX_KINDS = 1 << (_GROUP_SHIFT - _KIND_SHIFT)
-"""Vertex kinds that fit into the packed column (codes 0..3, :data:`qmc.models.compiled.VERTEX_KINDS`)."""
+"""Vertex kinds that fit into the packed column (codes 0..7, :data:`qmc.models.compiled.VERTEX_KINDS`)."""
 
 
 @njit(inline="always")
