@@ -4,8 +4,8 @@ The sweep (:mod:`qmc.engine.diagonal`) and the step driver (:mod:`qmc.engine.ste
 Where the kind matters they call a hook below with the kind's *record* (a NamedTuple, e.g.
 :class:`qmc.engine.projector.ProjectorKind`) as first argument.  numba resolves the hook from the record's
 class when it compiles the kernel, so each model's kernel contains exactly its kind's code (no run-time
-branch, nothing taken from the projector fast path), and kernels stay in numba's on-disk cache: one cached
-specialisation per record type.
+branch; the projector fast path compiles as if the hooks were written out in the sweep), and kernels stay in
+numba's on-disk cache: one cached specialisation per record type.
 
 Hooks (a kind module defines a numba function of the same name and arguments for each):
 
@@ -17,9 +17,10 @@ Hooks (a kind module defines a numba function of the same name and arguments for
 ``loop_update(kind, chain, vertices, n_vertices) -> n_loops``
     the off-diagonal update on the linked vertex list the sweep built (records in :mod:`qmc.engine.records`).
 
-:func:`kind_record` picks the record for a model from the kinds of its groups: the first entry of
-``_SELECTION`` whose set of kind codes covers all of them, so a model made only of projector groups keeps
-the projector fast path even after kinds that also handle projector vertices are added behind it.
+:func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
+(:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
+groups keeps the projector fast path even after kinds that also handle projector vertices are added behind
+it.
 """
 
 from __future__ import annotations
