@@ -39,7 +39,7 @@ from _cases import CASES, add_case_arguments, case_model, selected_cases
 
 from qmc.chain.simulation import Simulation
 from qmc.engine.diagonal import diagonal_sweep
-from qmc.engine.loops import loop_update
+from qmc.engine.projector import loop_update
 from qmc.engine.rng import stream_seed
 
 __all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "main"]
@@ -70,15 +70,10 @@ def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
     t_sweep = t_loop = 0.0
     for _ in range(steps):
         c0 = time.process_time()
-        n, n_vert = diagonal_sweep(
-            sim.ops, sim.vflip, sim.spins, sim.links, sim.first, sim.last, sim.counters[0],
-            sim.beta_wtot, sim.alias_prob, sim.alias_idx,
-            sim.term_table, sim.bond_disp, sim.phase,
-            sim.rng, sim._group_counts, sim._sweep_out,
-        )
+        n, n_vert = diagonal_sweep(sim.chain, sim.terms, sim.kind, sim.vertices, sim.probes, sim.tallies)
         c1 = time.process_time()
         sim.counters[0] = n
-        loop_update(sim.links, sim.vflip, n_vert, sim.spins, sim.first, sim.rng)
+        loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
         c2 = time.process_time()
         t_sweep += c1 - c0
         t_loop += c2 - c1

@@ -68,7 +68,7 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
     With ``cache_dir`` numba's on-disk cache lives there: an empty directory gives the cold (compiling)
     start-up, a second call with the same directory the cached one."""
     code = ("import time; t=time.perf_counter();"
-            "from models import build_lattice, HeisenbergTerm, compile_model;"
+            "from qmc.models import build_lattice, HeisenbergTerm, compile_model;"
             "from qmc.chain.simulation import Simulation; from qmc.engine.rng import stream_seed;"
             "m=compile_model(build_lattice('square',(4,4)),[HeisenbergTerm(bonds='nn',coupling=1.0)]);"
             "s=Simulation(m,1.0,warmup_steps=1,measure_steps=1,bins=1,seed_words=stream_seed(1,'s'));"

@@ -1,10 +1,13 @@
 """Compile a lattice and a list of user terms into the engine's :class:`~models.compiled.CompiledModel`.
 
-Every term entry becomes one *group*:
+Every term entry becomes one *group*, of one vertex kind (``group_kind``, see
+:data:`~models.compiled.VERTEX_KINDS`):
 
 * ``HeisenbergTerm(bonds, J)``: ``J S_i.S_j = J/4 - J P_ij``, so each bond of the class gives a k = 1 term
   with ``C_t = J`` and the group constant is ``J/4 * n_bonds``;
 * ``ProjectorProductTerm(shape, Q)``: each placement gives a k-bond term with ``C_t = Q``; constant 0.
+
+Both are of the ``"projector"`` kind.
 
 Sign-problem guard (the decomposition ``H = E_const - sum_t C_t prod P`` is sign-free when every
 ``C_t > 0`` and every bond joins opposite sublattices): J must be > 0 and Q >= 0; a zero coupling drops
@@ -23,7 +26,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .compiled import CompiledModel
+from .compiled import KIND_PROJECTOR, CompiledModel
 from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
@@ -91,6 +94,7 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         term_group=np.concatenate(groups),
         group_names=tuple(names),
         group_constant=constants,
+        group_kind=np.array([_kind(term) for term in terms], dtype=np.int8),
         vbs_bonds=np.ascontiguousarray(lattice.vbs_bonds, dtype=np.int32),
         vbs_dir=np.ascontiguousarray(lattice.vbs_dir, dtype=np.int8),
         vbs_phase=np.ascontiguousarray(lattice.vbs_phase, dtype=np.int8),
@@ -187,6 +191,11 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     ids = np.empty(m, dtype=np.int64)
     ids[order] = rank[np.cumsum(new) - 1]
     return np.sort(first), ids
+
+
+def _kind(term: Term) -> int:
+    """The vertex kind of a term's operators (every term type so far is a product of singlet projectors)."""
+    return KIND_PROJECTOR
 
 
 def _bond_field(term: Term) -> str:

@@ -29,6 +29,10 @@ Conventions (all arrays are C-contiguous numpy arrays):
 ``term_group``       int32[T], index of the user term entry the term came from.
 ``group_names``      tuple of G names, e.g. "inter", "intra", "q2" (used as ``bond_energy/<name>``).
 ``group_constant``   float64[G], the constant each group adds to H (energy units, whole lattice).
+``group_kind``       int8[G], the vertex kind of each group's operators, an index into ``VERTEX_KINDS``
+                     (0, ``"projector"``: the singlet projectors above).  The engine picks its update from
+                     the kinds present (see :mod:`qmc.engine`); models stored before kinds existed are
+                     read as all ``"projector"``.
 ``vbs_bonds``        int32[nv, 2], nearest-neighbour bonds used for the columnar dimer order parameter.
 ``vbs_dir``          int8[nv], 0 for an x-bond, 1 for a y-bond.
 ``vbs_phase``        int8[nv], (-1)^x for x-bonds and (-1)^y for y-bonds (x, y of site0).
@@ -43,7 +47,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["CompiledModel"]
+__all__ = ["CompiledModel", "VERTEX_KINDS", "KIND_PROJECTOR"]
+
+VERTEX_KINDS = ("projector",)
+"""Names of the vertex kinds; a group's kind code is the position of its name here."""
+KIND_PROJECTOR = VERTEX_KINDS.index("projector")
 
 
 @dataclass(frozen=True)
@@ -70,7 +78,17 @@ class CompiledModel:
     linear_size: int
     open_boundaries: bool = False
     lattice_kind: str = "explicit"
+    group_kind: np.ndarray | None = None
     extra: dict = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        kind = self.group_kind
+        if kind is None:
+            kind = np.full(len(self.group_names), KIND_PROJECTOR, dtype=np.int8)
+        kind = np.ascontiguousarray(kind, dtype=np.int8)
+        if kind.shape != (len(self.group_names),) or np.any((kind < 0) | (kind >= len(VERTEX_KINDS))):
+            raise ValueError(f"group_kind must hold one code of {VERTEX_KINDS} per term group")
+        object.__setattr__(self, "group_kind", kind)
 
     @property
     def n_terms(self) -> int:
@@ -86,9 +104,10 @@ class CompiledModel:
 
     @property
     def term_weights(self) -> np.ndarray:
-        """SSE weight of one operator of each term, w_t = C_t / 2^{k_t} (energy units; k_t bonds of term t:
-        an operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k)."""
-        k = np.diff(np.asarray(self.term_start)).astype(np.int64)
+        """w_t, the largest SSE weight of one operator of each term (energy units): the diagonal update draws
+        terms with probability w_t / sum(w).  Projector kind: w_t = C_t / 2^{k_t} (k_t bonds of term t; an
+        operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k)."""
+        k = np.diff(np.asarray(self.term_start)).astype(np.int64)  # one formula per vertex kind
         return np.asarray(self.term_coupling, dtype=np.float64) / 2.0 ** k
 
     @property

@@ -1,14 +1,30 @@
 """The per-term table of the diagonal sweep (qmc.engine.vertices.term_table) holds exactly the model's
-terms: bond count, group, and each bond's sites and index, read back against the model's flat arrays
-(common practice, no source: a layout check)."""
+terms: bond count, vertex kind, group, and each bond's sites and index, read back against the model's flat
+arrays through the same names the sweep uses (TT_META / meta_* and TT_BOND / TT_BOND_WIDTH; common
+practice, no source: a layout check)."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
 from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
+from qmc.models.compiled import KIND_PROJECTOR
 
-from qmc.engine.vertices import TT_BOND, TT_META, term_table
+from qmc.engine.vertices import (
+    MAX_KINDS,
+    TT_BOND,
+    TT_BOND_WIDTH,
+    TT_META,
+    meta_bonds,
+    meta_group,
+    meta_kind,
+    term_table,
+)
+
+
+def _table(m, group_kind=None):
+    kind = m.group_kind if group_kind is None else group_kind
+    return term_table(m.term_start, m.term_bonds, m.term_group, m.bond_sites, kind)
 
 
 @pytest.mark.parametrize("shape, width", [(None, 4), ("plaquette-pair", 8), ("column-of-three", 16)])
@@ -17,17 +33,41 @@ def test_rows_repeat_the_model(shape, width):
     if shape:
         terms.append(ProjectorProductTerm(shape=shape, coupling=2.0))
     m = compile_model(build_lattice("square", (6, 6)), terms)
-    table = term_table(m.term_start, m.term_bonds, m.term_group, m.bond_sites)
+    assert m.group_kind.tolist() == [KIND_PROJECTOR] * len(terms)
+    table = _table(m)
     assert table.dtype == np.int32 and table.shape == (m.n_terms, width)
     for t in range(m.n_terms):
         bonds = m.term_bonds[m.term_start[t]:m.term_start[t + 1]]
-        assert table[t, TT_META] & 3 == len(bonds) and table[t, TT_META] >> 2 == m.term_group[t]
+        meta = table[t, TT_META]
+        assert meta_bonds(meta) == len(bonds) and meta_group(meta) == m.term_group[t]
+        assert meta_kind(meta) == KIND_PROJECTOR
         for a, b in enumerate(bonds):
-            i, j, bb = table[t, TT_BOND + 3 * a:TT_BOND + 3 * a + 3]
+            col = TT_BOND + TT_BOND_WIDTH * a
+            i, j, bb = table[t, col:col + TT_BOND_WIDTH]
             assert (i, j, bb) == (m.bond_sites[b, 0], m.bond_sites[b, 1], b)
-        assert not table[t, TT_BOND + 3 * len(bonds):].any()
+        assert not table[t, TT_BOND + TT_BOND_WIDTH * len(bonds):].any()
+
+
+def test_kind_and_group_fields_do_not_overlap():
+    """Every kind code next to large group numbers reads back unchanged (the packed fields are disjoint)."""
+    m = compile_model(build_lattice("square", (4, 4)),
+                      [HeisenbergTerm(bonds="nn", coupling=1.0), ProjectorProductTerm("plaquette-pair", 1.0)])
+    for kind in range(MAX_KINDS):
+        table = _table(m, np.full(2, kind))
+        meta = table[:, TT_META]
+        assert [meta_kind(x) for x in meta] == [kind] * m.n_terms
+        assert [meta_group(x) for x in meta] == m.term_group.tolist()
+        assert [meta_bonds(x) for x in meta] == np.diff(m.term_start).tolist()
+    many = term_table(np.array([0, 1]), np.array([0]), np.array([70000]), np.array([[0, 1]]),
+                      np.full(70001, MAX_KINDS - 1))
+    assert (meta_group(many[0, TT_META]), meta_kind(many[0, TT_META])) == (70000, MAX_KINDS - 1)
 
 
 def test_more_than_three_bonds_are_refused():
     with pytest.raises(ValueError, match="1 to 3 bonds"):
-        term_table(np.array([0, 4]), np.arange(4), np.zeros(1), np.zeros((4, 2)))
+        term_table(np.array([0, 4]), np.arange(4), np.zeros(1), np.zeros((4, 2)), np.zeros(1))
+
+
+def test_unknown_kind_codes_are_refused():
+    with pytest.raises(ValueError, match="vertex-kind codes"):
+        term_table(np.array([0, 1]), np.arange(1), np.zeros(1), np.zeros((1, 2)), np.array([MAX_KINDS]))

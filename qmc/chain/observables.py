@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qmc.engine import steps as S
+from qmc.engine import slots as S
 from qmc.models.compiled import CompiledModel
 
 __all__ = ["RENAMED_OBSERVABLES", "bin_names", "bin_row"]

@@ -14,22 +14,28 @@ from __future__ import annotations
 import numpy as np
 
 from qmc.chain.alias import alias_table
+from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
-from qmc.engine.diagonal import SWEEP_OUT_SIZE
+from qmc.engine.kinds import kind_record
+from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
-from qmc.engine.steps import acc_size, run_steps
-from qmc.engine.vertices import apply_pending_flips, count_ops, term_table
+from qmc.engine.slots import ET_SIZE, SW_SIZE, acc_size
+from qmc.engine.steps import bound_run_steps
+from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, apply_pending_flips, count_ops, term_table
 from qmc.models.compiled import CompiledModel
 
 __all__ = ["Simulation", "HIST_BINS", "HIST_RANGE"]
 
 HIST_BINS = 64
 HIST_RANGE = 0.25  # |D_a| <= 1/4 for the columnar dimer order parameter
-_STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
 
 
 class Simulation:
-    """SSE Markov chain for a compiled model at inverse temperature ``beta`` (see :mod:`qmc.engine`)."""
+    """SSE Markov chain for a compiled model at inverse temperature ``beta`` (see :mod:`qmc.engine`).
+
+    The kernels' arguments are records (:mod:`qmc.engine.records`): ``chain`` (spins, operator string,
+    operator count, RNG words), ``terms``, ``kind`` (the model's vertex kind), ``vertices``, ``probes`` and
+    ``tallies``; ``spins``, ``ops``, ``counters``, ``rng``, ``links``... read their arrays."""
 
     def __init__(
         self,
@@ -42,14 +48,14 @@ class Simulation:
         seed_words: np.ndarray,
     ) -> None:
         self._setup(model, beta, warmup_steps, measure_steps, bins)
-        self.rng = np.array(seed_words, dtype=np.uint64).copy()
-        if self.rng.shape != (4,) or not np.any(self.rng):
+        rng = np.array(seed_words, dtype=np.uint64).copy()
+        if rng.shape != (4,) or not np.any(rng):
             raise ValueError("seed_words must be four uint64 words, not all zero")
-        u = draw_doubles(self.rng, model.n_sites)
-        self.spins = np.where(u < 0.5, 1, -1).astype(np.int8)
-        cutoff = max(32, int(1.2 * self.beta_wtot) + 16)
-        self.ops = np.full(cutoff, -1, dtype=np.int32)
-        self.counters = np.zeros(1, dtype=np.int64)
+        u = draw_doubles(rng, model.n_sites)
+        cutoff = max(32, int(1.2 * self.terms.beta_wtot) + 16)
+        self.chain = build(Chain, spins=np.where(u < 0.5, 1, -1).astype(np.int8),
+                           ops=np.full(cutoff, EMPTY, dtype=np.int32), counters=np.zeros(1, dtype=np.int64),
+                           rng=rng)
         self.acc = np.zeros(acc_size(len(model.group_names)), dtype=np.float64)
         self.hist = np.zeros((self._hist_bins, self._hist_bins), dtype=np.int64)
         self.steps = np.zeros(1, dtype=np.int64)
@@ -66,22 +72,22 @@ class Simulation:
         bins: int,
         state: dict[str, np.ndarray],
     ) -> Simulation:
-        """Continue a chain from :meth:`state` output (bit-identical continuation)."""
+        """Continue a chain from :meth:`state` output (bit-identical continuation).  A checkpoint of an
+        older layout is migrated or refused (:mod:`qmc.chain.checkpoint`)."""
         self = cls.__new__(cls)
         self._setup(model, beta, warmup_steps, measure_steps, bins)
-        missing = [k for k in _STATE_KEYS if k not in state]
-        if missing:
-            raise ValueError(f"checkpoint lacks {', '.join(missing)}")
-        self.spins = np.array(state["spins"], dtype=np.int8)
-        self.ops = np.array(state["ops"], dtype=np.int32)
-        self.counters = np.array(state["counters"], dtype=np.int64)
-        self.rng = np.array(state["rng"], dtype=np.uint64)
+        state = current_layout(state)
+        self.chain = build(Chain, spins=np.array(state["spins"], dtype=np.int8),
+                           ops=np.array(state["ops"], dtype=np.int32),
+                           counters=np.array(state["counters"], dtype=np.int64),
+                           rng=np.array(state["rng"], dtype=np.uint64))
         self.acc = np.array(state["acc"], dtype=np.float64)
         self.hist = np.array(state["hist"], dtype=np.int64)
         self.steps = np.array(state["steps"], dtype=np.int64)
         if self.spins.shape != (model.n_sites,) or self.acc.shape != (acc_size(len(model.group_names)),):
             raise ValueError("checkpoint does not match the model (site or term-group count differs)")
-        if np.any(self.ops >= (model.n_terms << 3)) or int(np.sum(self.ops >= 0)) != int(self.counters[0]):
+        if (np.any(self.ops >= (model.n_terms << OP_TERM_SHIFT))
+                or int(np.sum(self.ops >= 0)) != int(self.counters[0])):
             raise ValueError("checkpoint operator string is inconsistent with the model")
         self._allocate_work()
         return self
@@ -102,38 +108,43 @@ class Simulation:
         self.steps_per_bin = self.measure_steps // self.n_bins
         k = np.diff(model.term_start).astype(np.int64)
         weights = model.term_weights
-        self.alias_prob, self.alias_idx = alias_table(weights)
-        self.beta_wtot = self.beta * float(np.sum(weights))
+        alias_prob, alias_idx = alias_table(weights)
         self.kmax = int(np.max(k))
         self.term_start = np.ascontiguousarray(model.term_start, dtype=np.int32)
-        self.term_bonds = np.ascontiguousarray(model.term_bonds, dtype=np.int32)
         self.term_group = np.ascontiguousarray(model.term_group, dtype=np.int32)
-        self.bond_sites = np.ascontiguousarray(model.bond_sites, dtype=np.int32)
-        self.term_table = term_table(self.term_start, self.term_bonds, self.term_group, self.bond_sites)
-        self.phase = np.ascontiguousarray(model.phase, dtype=np.int8)
-        self.bond_disp = np.ascontiguousarray(model.bond_disp, dtype=np.float64).reshape(
-            len(model.bond_sites), model.n_dirs
-        )
+        table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
+                           model.group_kind)
+        self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, beta=self.beta,
+                           beta_wtot=self.beta * float(np.sum(weights)))
+        self.kind = kind_record(model)
+        phase = np.ascontiguousarray(model.phase, dtype=np.int8)
         coords = np.asarray(model.site_coords, dtype=np.float64).reshape(model.n_sites, model.n_dirs)
         lengths = np.asarray(model.dir_lengths, dtype=np.float64)
         arg = 2.0 * np.pi * coords / lengths[None, :] if model.n_dirs else coords
-        self.cos_tab = np.ascontiguousarray((np.cos(arg) * self.phase[:, None]).T)
-        self.sin_tab = np.ascontiguousarray((np.sin(arg) * self.phase[:, None]).T)
-        self.vbs_bonds = np.ascontiguousarray(model.vbs_bonds, dtype=np.int32).reshape(-1, 2)
-        self.vbs_dir = np.ascontiguousarray(model.vbs_dir, dtype=np.int8)
-        self.vbs_phase = np.ascontiguousarray(model.vbs_phase, dtype=np.int8)
+        self.probes = build(
+            Probes, phase=phase,
+            bond_disp=np.ascontiguousarray(model.bond_disp, dtype=np.float64).reshape(
+                len(model.bond_sites), model.n_dirs),
+            cos_tab=np.ascontiguousarray((np.cos(arg) * phase[:, None]).T),
+            sin_tab=np.ascontiguousarray((np.sin(arg) * phase[:, None]).T),
+            vbs_bonds=np.ascontiguousarray(model.vbs_bonds, dtype=np.int32).reshape(-1, 2),
+            vbs_dir=np.ascontiguousarray(model.vbs_dir, dtype=np.int8),
+            vbs_phase=np.ascontiguousarray(model.vbs_phase, dtype=np.int8), hist_range=HIST_RANGE)
         self._hist_bins = HIST_BINS if model.n_vbs_dirs >= 2 else 0
         self.bin_names = bin_names(model)
+        self._kernel = None
 
     def _allocate_work(self) -> None:
-        cutoff = self.ops.shape[0]
-        self.vflip = np.zeros(cutoff * self.kmax, dtype=np.uint8)
-        self.links = np.zeros(4 * cutoff * self.kmax, dtype=np.int32)
-        self.first = np.zeros(self.model.n_sites, dtype=np.int32)
-        self._group_counts = np.zeros(max(len(self.model.group_names), 1), dtype=np.int64)
-        self._sweep_out = np.zeros(SWEEP_OUT_SIZE, dtype=np.float64)
-        self._et_out = np.zeros(4, dtype=np.float64)
-        self.last = np.zeros(self.model.n_sites, dtype=np.int32)
+        """Scratch records sized by the cutoff (vertex list) and the model (per-step outputs)."""
+        n_slots = self.ops.shape[0] * self.kmax
+        n_sites = self.model.n_sites
+        self.vertices = build(Vertices, links=np.zeros(4 * n_slots, dtype=np.int32),
+                              vflip=np.zeros(n_slots, dtype=np.uint8),
+                              first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32))
+        self.tallies = build(Tallies, acc=self.acc, hist=self.hist,
+                             group_counts=np.zeros(max(len(self.model.group_names), 1), dtype=np.int64),
+                             sweep_out=np.zeros(SW_SIZE, dtype=np.float64),
+                             et_out=np.zeros(ET_SIZE, dtype=np.float64))
 
     def _grow_cutoff(self) -> None:
         """Append empty slots so that the string is at least 1.5 n + 16 long (warm-up only)."""
@@ -141,9 +152,47 @@ class Simulation:
         new = n + n // 2 + 16
         if new <= self.ops.shape[0]:
             return
-        apply_pending_flips(self.ops, self.vflip, self.term_start)
-        self.ops = np.concatenate([self.ops, np.full(new - self.ops.shape[0], -1, dtype=np.int32)])
+        self._fold_flips()
+        ops = np.concatenate([self.ops, np.full(new - self.ops.shape[0], EMPTY, dtype=np.int32)])
+        self.chain = build(Chain, **{**self.chain._asdict(), "ops": ops})
         self._allocate_work()
+
+    def _fold_flips(self) -> None:
+        """Apply the loop flips that the next sweep would apply (the chain is unchanged in law and bits)."""
+        apply_pending_flips(self.ops, self.vertices.vflip, self.term_start)
+
+    # ------------------------------------------------------------------ arrays of the records
+    @property
+    def spins(self) -> np.ndarray:
+        return self.chain.spins
+
+    @property
+    def ops(self) -> np.ndarray:
+        return self.chain.ops
+
+    @property
+    def counters(self) -> np.ndarray:
+        return self.chain.counters
+
+    @property
+    def rng(self) -> np.ndarray:
+        return self.chain.rng
+
+    @property
+    def links(self) -> np.ndarray:
+        return self.vertices.links
+
+    @property
+    def vflip(self) -> np.ndarray:
+        return self.vertices.vflip
+
+    @property
+    def first(self) -> np.ndarray:
+        return self.vertices.first
+
+    @property
+    def last(self) -> np.ndarray:
+        return self.vertices.last
 
     # ------------------------------------------------------------------ running
     @property
@@ -179,14 +228,10 @@ class Simulation:
         return HIST_RANGE
 
     def _run(self, n_steps: int, measure: bool, stop_when_full: bool) -> int:
-        return run_steps(
-            n_steps, measure, stop_when_full,
-            self.ops, self.vflip, self.spins, self.links, self.first, self.last, self.counters,
-            self.beta, self.beta_wtot, self.alias_prob, self.alias_idx,
-            self.term_table, self.bond_disp, self.phase,
-            self.cos_tab, self.sin_tab, self.vbs_bonds, self.vbs_dir, self.vbs_phase, self.hist, HIST_RANGE,
-            self.rng, self.acc, self._group_counts, self._sweep_out, self._et_out,
-        )
+        records = (self.chain, self.terms, self.kind, self.vertices, self.probes, self.tallies)
+        if self._kernel is None:  # the records' types never change (records.build fixes them)
+            self._kernel = bound_run_steps(*records)
+        return self._kernel(n_steps, measure, stop_when_full, *records)
 
     def advance(self, max_steps: int) -> np.ndarray:
         """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names))."""
@@ -223,24 +268,25 @@ class Simulation:
         The RNG, step counters, accumulators and histogram stay with the chain.  The cutoff travels with the
         configuration: the SSE weight summed over placements does not depend on it, so the swap acceptance
         involves only the couplings (see :func:`qmc.exchange.rule.swap_log_ratio`)."""
-        apply_pending_flips(self.ops, self.vflip, self.term_start)
+        self._fold_flips()
         return {"spins": self.spins.copy(), "ops": self.ops.copy(), "counters": self.counters.copy()}
 
     def set_configuration(self, conf: dict[str, np.ndarray]) -> None:
         """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice."""
         spins = np.array(conf["spins"], dtype=np.int8)
         ops = np.array(conf["ops"], dtype=np.int32)
-        if spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << 3)):
+        if spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << OP_TERM_SHIFT)):
             raise ValueError("configuration does not fit this model")
-        self.spins = spins
-        self.ops = ops
-        self.counters = np.array(conf["counters"], dtype=np.int64)
+        self.chain = build(Chain, spins=spins, ops=ops, counters=np.array(conf["counters"], dtype=np.int64),
+                           rng=self.rng)
         self._allocate_work()
 
     def state(self) -> dict[str, np.ndarray]:
-        """Exact snapshot of the chain (copies).  Pending loop flips are folded into the operator string."""
-        apply_pending_flips(self.ops, self.vflip, self.term_start)
+        """Exact snapshot of the chain (copies) in checkpoint layout ``CHECKPOINT_LAYOUT``
+        (:mod:`qmc.chain.checkpoint`).  Pending loop flips are folded into the operator string."""
+        self._fold_flips()
         return {
+            LAYOUT_KEY: np.asarray(CHECKPOINT_LAYOUT, dtype=np.int64),
             "spins": self.spins.copy(),
             "ops": self.ops.copy(),
             "counters": self.counters.copy(),

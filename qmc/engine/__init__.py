@@ -1,10 +1,55 @@
 """numba kernels of the SSE engine (struct-of-arrays, no Python objects in hot loops).
 
-- :mod:`qmc.engine.vertices`     operator encoding and the multi-bond vertex / leg numbering
-- :mod:`qmc.engine.diagonal`     the diagonal-update sweep, fused with building the linked vertex list
-- :mod:`qmc.engine.loops`        the operator-loop update (all loops, each flipped with probability 1/2)
-- :mod:`qmc.engine.equal_time`   estimators of a single propagated state
-- :mod:`qmc.engine.steps`        Monte Carlo steps (diagonal sweep + loop update) with accumulation
+- :mod:`qmc.engine.records`     the kernels' arguments: named tuples Chain, Vertices, Terms, Probes, Tallies
+- :mod:`qmc.engine.slots`       named slots of the per-sweep outputs and of the accumulator
+- :mod:`qmc.engine.vertices`    operator encoding, leg numbering, the per-term table (k | kind | group, bonds)
+- :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
+- :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
+- :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
+- :mod:`qmc.engine.equal_time`  estimators of a single propagated state
+- :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
+- :mod:`qmc.engine.rng`         xoshiro256** with its state in a plain array
+
+Design note: adding a vertex kind
+---------------------------------
+Every term group has a vertex kind (``CompiledModel.group_kind``): how its operators are weighted and
+updated.  The sweep and the step driver are written once and ask the kind through hooks
+(:mod:`qmc.engine.kinds`): ``insertion_allowed`` (may the drawn term be inserted in this state, i.e. its
+weight W_t(state) / w_t) and ``loop_update`` (the off-diagonal update).  numba picks a hook's code from the
+class of the kind's *record*, the kernels' ``kind`` argument, when it compiles them: no run-time branch, the
+projector path compiles to the same code as before, and each kind has its own cached specialisation.
+tests/test_engine_kinds.py runs a second, test-only kind through the unchanged kernels as a worked example.
+
+A new kind adds, next to the existing one:
+
+1. ``models/compiled.py``: its name in ``VERTEX_KINDS`` (the code is the position; 8 fit the term table) and
+   its operator weight w_t in ``CompiledModel.term_weights`` (the largest weight of one operator of term t;
+   the alias table draws t with probability w_t / W_tot).  ``models/compile.py`` gives its groups the code.
+2. ``qmc/engine/<kind>.py`` beside ``projector.py``: a NamedTuple record class with the kind's own tables,
+   ``record(model)`` building it, and the hooks with the stubs' arguments: ``insertion_allowed``
+   (``@njit(inline="always")``; may draw random numbers; a kind covering several codes reads the term's
+   with ``meta_kind(table[t, TT_META])``) and ``loop_update``.
+3. ``qmc/engine/kinds.py``: one ``register_kind(Record, module, covers)`` line, ``covers`` being the codes its
+   update handles.  The first registered kind covering all of a model's codes runs it, so a kind that also
+   handles projector vertices is registered after the projector and pure projector models keep the fast path.
+4. Where the kind differs in a part of the sweep that is not a hook yet, a new hook: a stub and overload in
+   ``kinds.py`` whose projector implementation is today's code moved unchanged into ``projector.py`` (bins
+   bit-identical: tests/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's version.
+
+The two kinds planned next, in these terms:
+
+- SU(N) colours: a colour code (``projector`` terms with N > 2; N = 2 stays ``projector``); the site state
+  is a colour 0..N-1 in ``Chain.spins`` (A / conjugate-B basis); insertion allowed when every bond's two
+  colours agree (w_t = C_t / N^k); loops as the projector's, each given one of N colours.  New hooks: the
+  state's order parameter at slice 0, the propagation through an off-diagonal bond (a new colour pair rather
+  than a spin flip; the new colour in a per-slot array of the record, ``ops`` keeping ``(t << 3) | offmask``),
+  applying the loop update's colour changes to an operator (in place of the ``vflip`` xor), the equal-time
+  estimators and the initial state.
+- Directed loops: codes for XXZ bonds and fields; the record holds per-term diagonal weights and the
+  exit-leg probability tables (fewest bounces); insertion accepts with probability W_t(s_i, s_j) / w_t; the
+  kind covers the projector code too (projector vertices inside directed loops always leave at ``l ^ 1``).
+  New hook: where the sweep appends a bond vertex (projector: nothing), recording its leg states in a
+  per-vertex array (cutoff-sized, so allocated with the vertex list in ``Simulation._allocate_work``).
 """
 
 __all__: list[str] = []

@@ -5,10 +5,11 @@ SSE with a fixed-length string of M slots and n operators samples
     W = beta^n (M - n)! / M!  prod_p  C_{t_p} / 2^{k_{t_p}}
 
 for H = E_const - sum_t C_t prod_a P_{i_a j_a} (see :mod:`models.compiled`).  At an empty slot an operator
-is inserted with probability min(1, beta W_tot / (M - n)) times [all its bonds antiparallel], the term
-being drawn with probability w_t / W_tot (w_t = C_t / 2^{k_t}, alias table); a fully diagonal operator
-is removed with probability min(1, (M - n + 1) / (beta W_tot)).  Off-diagonal operators stay and
-propagate the spins.
+is proposed with probability min(1, beta W_tot / (M - n)), the term being drawn with probability
+w_t / W_tot (w_t = C_t / 2^{k_t}, alias table), and accepted as its vertex kind says
+(:func:`qmc.engine.kinds.insertion_allowed`; singlet projectors: when all its bonds are antiparallel); a
+fully diagonal operator is removed with probability min(1, (M - n + 1) / (beta W_tot)).  Off-diagonal
+operators stay and propagate the spins.
 
 One pass over the string does three things per slot:
 
@@ -25,7 +26,8 @@ so the loop flips are applied without a branch (``op ^= vflip << a``) and the in
 checks instead of leaving early; the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit
 off-diagonal mask), which stops LLVM from vectorising the one-to-three-bond loops behind run-time checks.
 A term's bond count, group, sites and bonds come from one row of :func:`qmc.engine.vertices.term_table`
-rather than the chain term -> bond list -> bond -> sites.
+rather than the chain term -> bond list -> bond -> sites.  The records' arrays are copied into locals once
+per sweep, so that the hot loop indexes plain arrays.
 """
 
 from __future__ import annotations
@@ -33,27 +35,41 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from qmc.engine.kinds import insertion_allowed
 from qmc.engine.rng import next_double
+from qmc.engine.slots import (
+    SW_MS_END,
+    SW_N_OLD,
+    SW_SUM_MS,
+    SW_SUM_MS2,
+    SW_SUM_MS4,
+    SW_WINDING,
+)
+from qmc.engine.vertices import (
+    EMPTY,
+    OP_OFF_MASK,
+    OP_TERM_SHIFT,
+    TT_BOND,
+    TT_BOND_WIDTH,
+    TT_META,
+    meta_bonds,
+    meta_group,
+)
 
-__all__ = ["diagonal_sweep", "SWEEP_OUT_SIZE"]
+__all__ = ["diagonal_sweep"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 
-# layout of ``out`` filled by diagonal_sweep
-SWEEP_OUT_SIZE = 8  # n_old, sum_ms, sum_ms2, sum_ms4, ms_end, w_0, w_1, w_2
-
 
 @njit(cache=True, boundscheck=False)
-def diagonal_sweep(
-    ops, vflip, spins, links, first, last, n_ops,
-    beta_wtot, alias_prob, alias_idx,
-    table, bond_disp, phase,
-    rng, group_counts, out,
-):
-    """One diagonal-update sweep; returns (n_new, n_vertices).  ``ms`` is 2 M_s (spins are +-1).
-
-    ``table`` is :func:`qmc.engine.vertices.term_table` (int32[T, 4|8|16]: ``k + 4 group``, then
-    ``(i, j, b)`` per bond)."""
+def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
+    """One diagonal-update sweep; returns (n_new, n_vertices).  Fills ``tallies.sweep_out`` (slots ``SW_*``)
+    and ``tallies.group_counts``; ``ms`` is 2 M_s (spins are +-1).  Records: :mod:`qmc.engine.records`."""
+    ops, spins, rng = chain.ops, chain.spins, chain.rng
+    links, vflip, first, last = vertices.links, vertices.vflip, vertices.first, vertices.last
+    table, alias_prob, alias_idx, beta_wtot = terms.table, terms.alias_prob, terms.alias_idx, terms.beta_wtot
+    bond_disp, phase = probes.bond_disp, probes.phase
+    group_counts, out = tallies.group_counts, tallies.sweep_out
     M = ops.shape[0]
     n_sites = spins.shape[0]
     n_terms = alias_prob.shape[0]
@@ -71,7 +87,7 @@ def diagonal_sweep(
     w1 = 0.0
     w2 = 0.0
 
-    n = n_ops
+    n = chain.counters[0]
     n_old = 0
     sum_ms = 0.0
     sum_ms2 = 0.0
@@ -83,22 +99,23 @@ def diagonal_sweep(
         t = 0
         k = 0
         if op >= 0:
-            t = op >> 3
-            meta = table[U(t), 0]
-            k = meta & 3  # k <= 3: tells LLVM the bond loops are short
+            t = op >> OP_TERM_SHIFT
+            meta = table[U(t), TT_META]
+            k = meta_bonds(meta)
             for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
                 op ^= np.int32(vflip[U(v_old + a)]) << a
                 vflip[U(v_old + a)] = 0
             v_old += k
             n_old += 1
-            group_counts[U(meta >> 2)] += 1
-            if (op & 7) != 0:
+            group_counts[U(meta_group(meta))] += 1
+            if (op & OP_OFF_MASK) != 0:
                 ops[p] = op
                 for a in range(k):
                     if (op >> a) & 1:
-                        i = table[U(t), 1 + 3 * a]
-                        j = table[U(t), 2 + 3 * a]
-                        b = table[U(t), 3 + 3 * a]
+                        col = TT_BOND + TT_BOND_WIDTH * a
+                        i = table[U(t), col]
+                        j = table[U(t), col + 1]
+                        b = table[U(t), col + 2]
                         si = spins[U(i)]
                         if n_dirs > 0:
                             w0 += si * bond_disp[U(b), 0]
@@ -120,7 +137,7 @@ def diagonal_sweep(
                 sum_ms4 += fm * fm * fm * fm
                 u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
                 if u * beta_wtot < M - n + 1:
-                    ops[p] = -1
+                    ops[p] = EMPTY
                     n -= 1
                     continue
                 ops[p] = op
@@ -133,18 +150,17 @@ def diagonal_sweep(
             t = int(r)
             if r - t >= alias_prob[U(t)]:
                 t = alias_idx[U(t)]
-            k = table[U(t), 0] & 3
-            blocked = False
-            for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
-                blocked |= spins[U(table[U(t), 1 + 3 * a])] == spins[U(table[U(t), 2 + 3 * a])]
-            if blocked:
+            k = meta_bonds(table[U(t), TT_META])
+            allowed, s0, s1, s2, s3 = insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3)
+            if not allowed:
                 continue
-            ops[p] = t << 3
+            ops[p] = t << OP_TERM_SHIFT
             n += 1
         # append the bond vertices of the operator now at slot p (term t, k bonds)
         for a in range(k):
-            i = table[U(t), 1 + 3 * a]
-            j = table[U(t), 2 + 3 * a]
+            col = TT_BOND + TT_BOND_WIDTH * a
+            i = table[U(t), col]
+            j = table[U(t), col + 1]
             leg = 4 * v
             prev = last[U(i)]
             if prev >= 0:
@@ -173,12 +189,12 @@ def diagonal_sweep(
     rng[1] = s1
     rng[2] = s2
     rng[3] = s3
-    out[0] = n_old
-    out[1] = sum_ms
-    out[2] = sum_ms2
-    out[3] = sum_ms4
-    out[4] = ms
-    out[5] = w0
-    out[6] = w1
-    out[7] = w2
+    out[SW_N_OLD] = n_old
+    out[SW_SUM_MS] = sum_ms
+    out[SW_SUM_MS2] = sum_ms2
+    out[SW_SUM_MS4] = sum_ms4
+    out[SW_MS_END] = ms
+    out[SW_WINDING] = w0
+    out[SW_WINDING + 1] = w1
+    out[SW_WINDING + 2] = w2
     return n, v

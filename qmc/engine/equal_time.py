@@ -3,8 +3,8 @@
 Per configuration (N sites, phi_i the staggered sign):
 
 - ``mz2``        (sum_i S^z_i)^2
-- ``s_q_next``   S(Q + dq_a) = (1/N) |sum_i phi_i S^z_i exp(i dq_a . r_i)|^2 averaged over directions a,
-                 dq_a = 2 pi / L_a along a (the nearest wavevectors of the ordering wavevector Q)
+- ``s_q_shifted`` S(Q + dq_a) = (1/N) |sum_i phi_i S^z_i exp(i dq_a . r_i)|^2 averaged over directions a,
+                  dq_a = 2 pi / L_a along a (the nearest wavevectors of the ordering wavevector Q)
 - ``D_x, D_y``   columnar dimer order parameter D_a = (1/N) sum_{bonds b along a} (-1)^{a_b} S^z_i S^z_j
 - ``cos4``       cos 4 theta = (D_x^4 - 6 D_x^2 D_y^2 + D_y^4) / (D_x^2 + D_y^2)^2 (0 when D = 0)
 
@@ -15,17 +15,23 @@ from __future__ import annotations
 
 from numba import njit
 
+from qmc.engine.slots import ET_DX, ET_DY, ET_MZ2, ET_SQN
+
 __all__ = ["equal_time"]
 
 
 @njit(cache=True, boundscheck=False)
-def equal_time(spins, cos_tab, sin_tab, vbs_bonds, vbs_dir, vbs_phase, hist, hist_range, out):
-    """Fill out = [mz2, s_q_next, D_x, D_y] for the current spins and add (D_x, D_y) to ``hist``."""
+def equal_time(spins, probes, tallies):
+    """Fill ``tallies.et_out`` (slots ``ET_*``: mz2, S(Q + dq), D_x, D_y) for the current spins and add
+    (D_x, D_y) to ``tallies.hist``.  Records: :mod:`qmc.engine.records`."""
+    cos_tab, sin_tab, hist_range = probes.cos_tab, probes.sin_tab, probes.hist_range
+    vbs_bonds, vbs_dir, vbs_phase = probes.vbs_bonds, probes.vbs_dir, probes.vbs_phase
+    hist, out = tallies.hist, tallies.et_out
     n_sites = spins.shape[0]
     mz = 0
     for i in range(n_sites):
         mz += spins[i]
-    out[0] = 0.25 * mz * mz
+    out[ET_MZ2] = 0.25 * mz * mz
     n_dirs = cos_tab.shape[0]
     sqn = 0.0
     for d in range(n_dirs):
@@ -37,9 +43,9 @@ def equal_time(spins, cos_tab, sin_tab, vbs_bonds, vbs_dir, vbs_phase, hist, his
             im += s * sin_tab[d, i]
         sqn += re * re + im * im
     if n_dirs > 0:
-        out[1] = 0.25 * sqn / (n_dirs * n_sites)
+        out[ET_SQN] = 0.25 * sqn / (n_dirs * n_sites)
     else:
-        out[1] = 0.0
+        out[ET_SQN] = 0.0
     dx = 0.0
     dy = 0.0
     for b in range(vbs_bonds.shape[0]):
@@ -50,8 +56,8 @@ def equal_time(spins, cos_tab, sin_tab, vbs_bonds, vbs_dir, vbs_phase, hist, his
             dy += c
     dx *= 0.25 / n_sites
     dy *= 0.25 / n_sites
-    out[2] = dx
-    out[3] = dy
+    out[ET_DX] = dx
+    out[ET_DY] = dy
     nh = hist.shape[0]
     if vbs_bonds.shape[0] > 0 and nh > 0:
         ix = int((dx + hist_range) / (2.0 * hist_range) * nh)

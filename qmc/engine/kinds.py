@@ -1,0 +1,93 @@
+"""The vertex-kind seam: the hooks through which the generic kernels ask a model's vertex kind.
+
+The sweep (:mod:`qmc.engine.diagonal`) and the step driver (:mod:`qmc.engine.steps`) are written once.
+Where the kind matters they call a hook below with the kind's *record* (a NamedTuple, e.g.
+:class:`qmc.engine.projector.ProjectorKind`) as first argument.  numba resolves the hook from the record's
+class when it compiles the kernel, so each model's kernel contains exactly its kind's code (no run-time
+branch; the projector fast path compiles as if the hooks were written out in the sweep), and kernels stay in
+numba's on-disk cache: one cached specialisation per record type.
+
+Hooks (a kind module defines a numba function of the same name and arguments for each):
+
+``insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3) -> (allowed, s0, s1, s2, s3)``
+    inlined into the sweep after the alias draw picked term t (probability w_t / W_tot, w_t from
+    :attr:`~models.compiled.CompiledModel.term_weights`): accept the insertion with probability
+    W_t(state) / w_t, drawing from the RNG words if it needs to.  ``meta_kind(table[t, TT_META])`` tells a
+    kind that covers several kinds which one term t has.
+``loop_update(kind, chain, vertices, n_vertices) -> n_loops``
+    the off-diagonal update on the linked vertex list the sweep built (records in :mod:`qmc.engine.records`).
+
+:func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
+(:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
+groups keeps the projector fast path even after kinds that also handle projector vertices are added behind
+it.
+"""
+
+from __future__ import annotations
+
+from types import ModuleType
+from typing import Any
+
+import numpy as np
+from numba.core import types
+from numba.extending import overload
+
+from qmc.engine import projector
+from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
+
+__all__ = ["insertion_allowed", "loop_update", "kind_record", "register_kind"]
+
+_SELECTION: list[tuple[frozenset[int], ModuleType]] = []
+"""(kind codes a module's record handles, the module), in order of preference."""
+_MODULE_OF_RECORD: dict[type, ModuleType] = {}
+
+
+def register_kind(record: type, module: ModuleType, covers: frozenset[int]) -> None:
+    """Make ``module`` (which defines the hooks and ``record(model)``) the implementation of the kind whose
+    record class is ``record``; :func:`kind_record` picks it for models whose kind codes lie in ``covers``
+    (an empty set: only reachable by passing its record to the kernels directly, as tests do)."""
+    _MODULE_OF_RECORD[record] = module
+    if covers:
+        _SELECTION.append((frozenset(covers), module))
+
+
+def kind_record(model: CompiledModel) -> Any:
+    """The record of the vertex kind that runs ``model`` (built by the kind module's ``record(model)``)."""
+    codes = frozenset(np.unique(model.group_kind).tolist())
+    for covers, module in _SELECTION:
+        if codes <= covers:
+            return module.record(model)
+    names = ", ".join(VERTEX_KINDS[c] for c in sorted(codes))
+    raise ValueError(f"no update in this engine handles a model with vertex kinds {names}")
+
+
+def _implementation(kind: Any, hook: str) -> Any:
+    """The Python function of ``hook`` in the module of the kind record's numba type (typing time)."""
+    if isinstance(kind, types.BaseNamedTuple):
+        module = _MODULE_OF_RECORD.get(kind.instance_class)
+        if module is not None:
+            return getattr(module, hook).py_func
+    return None
+
+
+def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def loop_update(kind, chain, vertices, n_vertices):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+@overload(insertion_allowed, inline="always")
+def _insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
+    return _implementation(kind, "insertion_allowed")
+
+
+@overload(loop_update)
+def _loop_update(kind, chain, vertices, n_vertices):
+    return _implementation(kind, "loop_update")
+
+
+register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))

@@ -1,0 +1,110 @@
+"""The kernels' structured arguments: named tuples of arrays that numba passes as one value each.
+
+Instead of thirty positional arrays (two int32 vectors of the same length could be swapped and still
+compile), the kernels take a few records and read every array by field name.  Build them with
+:func:`build`, which takes keywords only and checks each field's dtype and number of dimensions, so a
+wrong array is refused where the record is made, not silently used.
+
+==============  =============================================================================================
+``Chain``       the Markov chain itself: ``spins`` int8[N] (+-1, the state at slice 0), ``ops`` int32[M]
+                (operator string, see :mod:`qmc.engine.vertices`), ``counters`` int64[1] (n), ``rng``
+                uint64[4] (xoshiro256** words)
+``Vertices``    the linked vertex list rebuilt by every sweep: ``links`` int32[4 M k_max], ``vflip``
+                uint8[M k_max] (loop flips not yet applied to ``ops``), ``first``/``last`` int32[N]
+                (first and last leg of each site's world line)
+``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
+                ``alias_prob`` float64[T], ``alias_idx`` int32[T] (:mod:`qmc.chain.alias`), ``beta``,
+                ``beta_wtot`` = beta sum_t w_t
+``Probes``      what the estimators need: ``phase`` int8[N] (staggered sign), ``bond_disp`` float64[nb, D],
+                ``cos_tab``/``sin_tab`` float64[D, N], ``vbs_bonds`` int32[nv, 2], ``vbs_dir``/``vbs_phase``
+                int8[nv], ``hist_range``
+``Tallies``     where results go: ``acc`` float64[acc_size(G)], ``hist`` int64[h, h], and the per-step
+                scratch ``group_counts`` int64[max(G, 1)], ``sweep_out`` float64[SW_SIZE], ``et_out``
+                float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
+==============  =============================================================================================
+
+The vertex kind's own record (e.g. :class:`qmc.engine.projector.ProjectorKind`) is a further argument; see
+:mod:`qmc.engine`.  Passing records costs no speed (measured with benchmarks/c_compare.py, see CHANGELOG):
+numba unpacks them into the same arrays, and the kernels copy the fields into locals once per call.
+"""
+
+from __future__ import annotations
+
+from typing import Any, NamedTuple
+
+import numpy as np
+
+__all__ = ["Chain", "Vertices", "Terms", "Probes", "Tallies", "build"]
+
+
+class Chain(NamedTuple):
+    spins: np.ndarray
+    ops: np.ndarray
+    counters: np.ndarray
+    rng: np.ndarray
+
+
+class Vertices(NamedTuple):
+    links: np.ndarray
+    vflip: np.ndarray
+    first: np.ndarray
+    last: np.ndarray
+
+
+class Terms(NamedTuple):
+    table: np.ndarray
+    alias_prob: np.ndarray
+    alias_idx: np.ndarray
+    beta: float
+    beta_wtot: float
+
+
+class Probes(NamedTuple):
+    phase: np.ndarray
+    bond_disp: np.ndarray
+    cos_tab: np.ndarray
+    sin_tab: np.ndarray
+    vbs_bonds: np.ndarray
+    vbs_dir: np.ndarray
+    vbs_phase: np.ndarray
+    hist_range: float
+
+
+class Tallies(NamedTuple):
+    acc: np.ndarray
+    hist: np.ndarray
+    group_counts: np.ndarray
+    sweep_out: np.ndarray
+    et_out: np.ndarray
+
+
+_I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uint64, np.float64
+_SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndim 0 is a Python float
+    Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1)},
+    Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1)},
+    Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "beta": (float, 0),
+            "beta_wtot": (float, 0)},
+    Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
+             "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0)},
+    Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),
+              "et_out": (_F64, 1)},
+}
+
+
+def build(cls: type, **fields: Any) -> Any:
+    """``cls(**fields)`` after checking every field: arrays C-contiguous with the declared dtype and number
+    of dimensions, scalars converted to float.  Raises TypeError naming the field otherwise."""
+    spec = _SPEC[cls]
+    if set(fields) != set(spec):
+        raise TypeError(f"{cls.__name__} needs exactly the fields {', '.join(spec)}")
+    for name, (dtype, ndim) in spec.items():
+        value = fields[name]
+        if ndim == 0:
+            fields[name] = float(value)
+            continue
+        if not (isinstance(value, np.ndarray) and value.dtype == dtype and value.ndim == ndim
+                and value.flags.c_contiguous):
+            got = (f"{value.dtype}[{value.ndim}d]" if isinstance(value, np.ndarray) else type(value).__name__)
+            raise TypeError(f"{cls.__name__}.{name} must be a C-contiguous {np.dtype(dtype)} array with "
+                            f"{ndim} dimension(s), got {got}")
+    return cls(**fields)
