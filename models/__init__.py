@@ -11,15 +11,18 @@ from .catalog import LATTICES
 from .compile import compile_model, group_names
 from .compiled import CompiledModel
 from .errors import ModelError
-from .lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice, tile_lattice
+from .lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice, normalize_boundary, tile_lattice
 from .named import NAMED_MODELS, bilayer, columnar_dimer, heisenberg, jq2, jq3, ladder
 from .shapes import SHAPE_LATTICES, SHAPES, parse_shape, place_shape, rotations, translate_shape
 from .terms import HeisenbergTerm, ProjectorProductTerm, Term
 from .unit_cell import Site, UnitCell
+from .walls import WALL_PATTERNS, WALLS, DomainWall, edge_patterns, wall_factors, wall_references
 
 __all__ = [
-    "BOUNDARIES", "CompiledModel", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice", "ModelError",
+    "BOUNDARIES", "CompiledModel", "DomainWall", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice",
+    "ModelError",
     "NAMED_MODELS", "ProjectorProductTerm", "SHAPES", "SHAPE_LATTICES", "Site", "Term", "UnitCell", "bilayer",
     "build_lattice", "columnar_dimer", "compile_model", "group_names", "heisenberg", "jq2", "jq3",
     "ladder", "parse_shape", "place_shape", "rotations", "tile_lattice", "translate_shape",
+    "WALLS", "WALL_PATTERNS", "edge_patterns", "normalize_boundary", "wall_factors", "wall_references",
 ]

@@ -31,14 +31,18 @@ from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
 from .terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .walls import DomainWall, wall_factors
 
 __all__ = ["compile_model", "group_names"]
 
 _MAX_NAME = 64  # group names are stored as 64-byte strings (CompiledModel.to_arrays)
 
 
-def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
-    """Validate ``terms`` on ``lattice`` and flatten them into a CompiledModel (see module docstring)."""
+def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | None = None) -> CompiledModel:
+    """Validate ``terms`` on ``lattice`` and flatten them into a CompiledModel (see module docstring).
+
+    With ``wall`` the couplings of the edge terms that carry its pinned patterns are multiplied by its
+    factor (:mod:`models.walls`; per placement, constants included)."""
     if not isinstance(lattice, Lattice):
         raise ModelError(f"expected a Lattice, got {type(lattice).__name__}", "lattice")
     if isinstance(terms, HeisenbergTerm | ProjectorProductTerm):
@@ -66,11 +70,17 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         if sites.shape[0] == 0:
             raise ModelError(f"{label}: no bonds of this term fit on the {_describe(lattice)} lattice",
                              f"terms[{t}].{_bond_field(term)}")
+        scaled = np.full(sites.shape[0], coupling)
+        if wall is not None:
+            try:
+                scaled *= wall_factors(lattice, sites, wall)
+            except ModelError as err:
+                raise ModelError(err.message, err.where).within("domain_wall") from None
         if isinstance(term, HeisenbergTerm):
-            constants[t] = 0.25 * coupling * sites.shape[0]
+            constants[t] = 0.25 * float(np.sum(scaled))
         sites_parts.append(sites.reshape(-1, 2))
         disp_parts.append(disp.reshape(sites.shape[0] * sites.shape[1], lattice.n_dirs))
-        couplings.append(np.full(sites.shape[0], coupling))
+        couplings.append(scaled)
         groups.append(np.full(sites.shape[0], t, np.int32))
         k_per_term.append(np.full(sites.shape[0], sites.shape[1], np.int32))
     if not couplings:
@@ -102,6 +112,7 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         linear_size=int(dir_lengths[0]) if dir_lengths.size else 0,
         open_boundaries=lattice.open_boundaries,
         lattice_kind=lattice.kind,
+        site_column=_site_column(lattice),
         extra={"size": tuple(lattice.size), "boundary": lattice.boundary},
     )
 
@@ -193,6 +204,18 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     return np.sort(first), ids
 
 
+def _site_column(lattice: Lattice) -> np.ndarray | None:
+    """int32[N] column x of each site on a strip open along x and periodic along every other winding axis
+    (where profiles along x are measured), else None."""
+    cell, wraps = lattice.cell, lattice.periodic
+    if cell is None or not wraps or wraps[0] or 0 not in cell.winding_axes:
+        return None
+    others = [a for a in cell.winding_axes if a != 0]
+    if not others or not all(wraps[a] for a in others):
+        return None
+    return np.ascontiguousarray(np.rint(lattice.coords[:, 0]), dtype=np.int32)
+
+
 def _kind(term: Term) -> int:
     """The vertex kind of a term's operators (every term type so far is a product of singlet projectors)."""
     return KIND_PROJECTOR
@@ -203,4 +226,5 @@ def _bond_field(term: Term) -> str:
 
 
 def _describe(lattice: Lattice) -> str:
-    return f"{'x'.join(map(str, lattice.size))} {lattice.boundary} {lattice.kind}"
+    boundary = lattice.boundary if isinstance(lattice.boundary, str) else "-".join(lattice.boundary)
+    return f"{'x'.join(map(str, lattice.size))} {boundary} {lattice.kind}"

@@ -39,6 +39,9 @@ Conventions (all arrays are C-contiguous numpy arrays):
 ``n_vbs_dirs``       0 (no valence-bond order parameter on this lattice), 1 (chain) or 2.
 ``linear_size``      L used in stiffness*L and corr_length/L (first direction's length).
 ``open_boundaries``  True if any direction is open (winding numbers then vanish identically).
+``site_column``      int32[N], the column x of every site, or None.  Set on strips open along x and
+                     periodic along the other directions, where the engine then also measures profiles
+                     along x (dimer order and energy per column, :mod:`qmc.chain.observables`).
 """
 
 from __future__ import annotations
@@ -79,6 +82,7 @@ class CompiledModel:
     open_boundaries: bool = False
     lattice_kind: str = "explicit"
     group_kind: np.ndarray | None = None
+    site_column: np.ndarray | None = None
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -97,6 +101,11 @@ class CompiledModel:
     @property
     def n_dirs(self) -> int:
         return int(self.bond_disp.shape[1])
+
+    @property
+    def n_columns(self) -> int:
+        """Number of columns of the profiles along x (0: no profiles measured)."""
+        return int(np.max(self.site_column)) + 1 if self.site_column is not None else 0
 
     @property
     def max_bonds_per_term(self) -> int:
@@ -120,7 +129,7 @@ class CompiledModel:
         out: dict[str, np.ndarray] = {}
         for name in self.__dataclass_fields__:
             value = getattr(self, name)
-            if name == "extra":
+            if name == "extra" or value is None:
                 continue
             if isinstance(value, tuple):
                 out[name] = np.array([s.encode() for s in value], dtype="S64")

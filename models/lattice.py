@@ -17,7 +17,10 @@ lattice is bipartite for any size.  A periodic length of 2 keeps both bonds ``(0
 each with displacement +1: that is the periodic lattice (the infinite lattice folded onto two cells), so
 every site keeps its full coordination and the Heisenberg coupling across such a direction is effectively
 doubled (common practice, no source).  Open boundaries drop every bond that would cross the boundary (in
-all directions); the ladder is open across its legs for either boundary.
+all directions); the ladder is open across its legs for either boundary.  The boundary may also be given per
+direction, one entry per size entry (e.g. ``("open", "periodic")``: a strip open along x and periodic along
+y); ``Lattice.boundary`` is then that tuple, or the single word when all entries agree.  A lattice with any
+open winding direction has ``open_boundaries`` (winding numbers are not measured on it).
 """
 
 from __future__ import annotations
@@ -33,7 +36,7 @@ from .errors import ModelError, unknown_name
 from .tiling import axis_periodic, cell_coords, tile
 from .unit_cell import UnitCell
 
-__all__ = ["Lattice", "build_lattice", "tile_lattice", "LATTICE_KINDS", "BOUNDARIES"]
+__all__ = ["Lattice", "build_lattice", "tile_lattice", "normalize_boundary", "LATTICE_KINDS", "BOUNDARIES"]
 
 #: number of size entries of each built-in lattice kind
 LATTICE_KINDS: dict[str, int] = {kind: cell.dim for kind, cell in LATTICES.items()}
@@ -49,12 +52,13 @@ class Lattice:
     ``bond_classes[name]`` int32[nb, 2], ``bond_disps[name]`` float64[nb, D], ``vbs_bonds`` int32[nv, 2],
     ``vbs_dir`` int8[nv] (0 = x-bond, 1 = y-bond), ``vbs_phase`` int8[nv] ((-1)^x resp. (-1)^y of site 0).
     ``periodic`` tells per size entry whether that axis wraps around; ``cell`` is the declaration the
-    lattice was tiled from (None for an explicit bond list).
+    lattice was tiled from (None for an explicit bond list).  ``boundary`` is ``"periodic"``, ``"open"``
+    or, for mixed boundaries, one of these per size entry.
     """
 
     kind: str
     size: tuple[int, ...]
-    boundary: str
+    boundary: str | tuple[str, ...]
     n_sites: int
     sublattice: np.ndarray
     coords: np.ndarray
@@ -79,7 +83,8 @@ class Lattice:
 
     @property
     def open_boundaries(self) -> bool:
-        return self.boundary == "open"
+        """True when any direction is open (for a ladder: any direction besides the legs' width)."""
+        return self.boundary == "open" or (isinstance(self.boundary, tuple) and "open" in self.boundary)
 
     @property
     def class_names(self) -> tuple[str, ...]:
@@ -123,7 +128,7 @@ class Lattice:
             raise ModelError(f"sub must be in 0..{self.sites_per_cell - 1}", "site_index")
         flat, stride = np.zeros(np.broadcast_shapes(*(c.shape for c in cells), sub.shape), np.int64), 1
         outside = np.zeros(flat.shape, bool)
-        wraps = self.periodic or (not self.open_boundaries,) * len(self.size)
+        wraps = self.periodic or (self.boundary == "periodic",) * len(self.size)
         for c, length, wrap in zip(cells, self.size, wraps, strict=True):
             if not wrap:
                 outside |= (c < 0) | (c >= length)
@@ -174,8 +179,10 @@ class Lattice:
                    vbs_phase=np.zeros(0, np.int8), n_vbs_dirs=0, periodic=(False,))
 
 
-def build_lattice(kind: str, size: int | Sequence[int], boundary: str = "periodic") -> Lattice:
-    """Tile the unit cell declared for ``kind``; ``size`` counts unit cells per axis (an int: all axes).
+def build_lattice(kind: str, size: int | Sequence[int], boundary: str | Sequence[str] = "periodic"
+                  ) -> Lattice:
+    """Tile the unit cell declared for ``kind``; ``size`` counts unit cells per axis (an int: all axes),
+    ``boundary`` is one word for all axes or one per axis.
 
     Raises ModelError for an unknown kind or boundary, and as :func:`tile_lattice` for a bad size.
     """
@@ -184,17 +191,17 @@ def build_lattice(kind: str, size: int | Sequence[int], boundary: str = "periodi
     return tile_lattice(LATTICES[kind], size, boundary, kind)
 
 
-def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str = "periodic",
+def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str | Sequence[str] = "periodic",
                  kind: str = "custom") -> Lattice:
-    """Tile any declared unit cell over ``size`` cells (an int means the same length along every axis).
+    """Tile any declared unit cell over ``size`` cells (an int means the same length along every axis);
+    ``boundary`` as in :func:`normalize_boundary`.
 
-    Raises ModelError for an unknown boundary, a wrong number of size entries, a length below 2, or an
-    odd periodic length along an axis where one cell step swaps the sublattice (the lattice would then
-    not be bipartite).
+    Raises ModelError for an unknown boundary, a wrong number of size or boundary entries, a length below
+    2, or an odd periodic length along an axis where one cell step swaps the sublattice (the lattice would
+    then not be bipartite).
     """
-    if boundary not in BOUNDARIES:
-        raise unknown_name("boundary", boundary, BOUNDARIES, "boundary")
     dim = cell.dim
+    boundary = normalize_boundary(boundary, dim)
     if isinstance(size, numbers.Integral) and not isinstance(size, bool):
         size = (size,) * dim
     if isinstance(size, str | bytes) or not isinstance(size, Sequence | np.ndarray):
@@ -203,7 +210,8 @@ def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str = "per
         raise ModelError(f"the {kind} lattice needs {dim} size entr{'y' if dim == 1 else 'ies'}, "
                          f"got {len(size)}: {list(size)}", "size")
     size = tuple(_positive_int(s, f"size[{a}]", minimum=2) for a, s in enumerate(size))
-    periodic = boundary == "periodic"
+    words = boundary if isinstance(boundary, tuple) else (boundary,) * dim
+    periodic = tuple(b == "periodic" for b in words)
     wraps = axis_periodic(cell, periodic)
     for a, length in enumerate(size):
         if length % 2 and cell.flips[a] and wraps[a]:
@@ -218,6 +226,23 @@ def tile_lattice(cell: UnitCell, size: int | Sequence[int], boundary: str = "per
     return Lattice(kind=kind, size=size, boundary=boundary, n_sites=n_sites, cell=cell,
                    bond_classes={k: v[0] for k, v in classes.items()},
                    bond_disps={k: v[1] for k, v in classes.items()}, **fields)
+
+
+def normalize_boundary(boundary: str | Sequence[str], dim: int) -> str | tuple[str, ...]:
+    """``"periodic"`` or ``"open"`` for all axes, or one of them per axis (a tuple of ``dim`` words; a tuple
+    whose entries all agree becomes that word).  ModelError for an unknown word or a wrong count."""
+    if isinstance(boundary, str):
+        if boundary not in BOUNDARIES:
+            raise unknown_name("boundary", boundary, BOUNDARIES, "boundary")
+        return boundary
+    if not isinstance(boundary, Sequence) or len(boundary) != dim:
+        raise ModelError(f"give one boundary for all directions or one per direction ({dim}), got "
+                         f"{boundary!r}", "boundary")
+    for a, word in enumerate(boundary):
+        if word not in BOUNDARIES:
+            raise unknown_name("boundary", word, BOUNDARIES, f"boundary[{a}]")
+    words = tuple(boundary)
+    return words[0] if len(set(words)) == 1 else words
 
 
 def _positive_int(value, where: str, minimum: int) -> int:

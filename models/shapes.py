@@ -18,7 +18,7 @@ reflections are not added), so the x-oriented ``plaquette-pair`` gains exactly o
 term has 2N placements on an N-site torus; the same holds for ``column-of-three``.  :func:`translate_shape`
 places a shape at every unit cell (and, on the bilayer, in each layer separately).  Every placement on a
 torus is kept, even when two placements coincide as operators (possible for a periodic length 2), which
-is the same torus convention as for the lattice bonds.  With open boundaries, placements that stick out
+is the same torus convention as for the lattice bonds.  Along an open direction, placements that stick out
 of the lattice are dropped.
 """
 
@@ -110,8 +110,9 @@ def translate_shape(lattice: Lattice, shape: Shape) -> tuple[np.ndarray, np.ndar
     _check_lattice(lattice)
     pts = np.asarray(shape, dtype=np.int64)  # (k, end, axis)
     vec = pts[:, 1, :] - pts[:, 0, :]
+    wraps = lattice.periodic or (lattice.boundary == "periodic",) * len(lattice.size)
     for a, length in enumerate(lattice.size):
-        if not lattice.open_boundaries and np.any(2 * np.abs(vec[:, a]) > length):
+        if wraps[a] and np.any(2 * np.abs(vec[:, a]) > length):
             raise ModelError(f"a bond of the shape spans {np.abs(vec[:, a]).max()} cells along "
                              f"{lattice.dir_names[a]}, more than half the periodic length {length}", "shape")
     lx, ly = lattice.size

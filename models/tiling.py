@@ -1,8 +1,9 @@
 """Repeat a :class:`~models.unit_cell.UnitCell` over a finite box of cells: the one lattice builder.
 
 :func:`tile` turns a declaration, a size ``(L_0, ..., L_{d-1})`` and a boundary into the arrays of
-:class:`models.lattice.Lattice` (all its fields except ``kind``, ``size``, ``boundary``, ``n_sites``).
-Everything is vectorized over cells; the conventions are those of :mod:`models.unit_cell`:
+:class:`models.lattice.Lattice` (all its fields except ``kind``, ``size``, ``boundary``, ``n_sites``); the
+boundary (``periodic``) is one choice for all axes or one per axis.  Everything is vectorized over cells;
+the conventions are those of :mod:`models.unit_cell`:
 
 * site ``cell*n + s`` (or ``s*n_cells + cell`` for a layered cell), cells numbered first axis fastest;
 * sublattice ``(sublattice_s + sum_a flips_a r_a) mod 2``;
@@ -17,6 +18,8 @@ Everything is vectorized over cells; the conventions are those of :mod:`models.u
 """
 
 from __future__ import annotations
+
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -35,12 +38,16 @@ def cell_coords(size: tuple[int, ...]) -> np.ndarray:
     return np.ascontiguousarray(grids[::-1].T)
 
 
-def axis_periodic(cell: UnitCell, periodic: bool) -> tuple[bool, ...]:
-    """Per axis: does it wrap around (the boundary choice, except for the cell's always-open axes)?"""
-    return tuple(periodic and name not in cell.open_axes for name in cell.axes)
+def axis_periodic(cell: UnitCell, periodic: bool | Sequence[bool]) -> tuple[bool, ...]:
+    """Per axis: does it wrap around (the boundary choice, one for all axes or one per axis, except for
+    the cell's always-open axes)?"""
+    per_axis = (periodic,) * cell.dim if isinstance(periodic, bool | np.bool_) else tuple(periodic)
+    if len(per_axis) != cell.dim:
+        raise ModelError(f"give one boundary per axis ({cell.dim}), got {len(per_axis)}", "boundary")
+    return tuple(bool(p) and name not in cell.open_axes for p, name in zip(per_axis, cell.axes, strict=True))
 
 
-def tile(cell: UnitCell, size: tuple[int, ...], periodic: bool) -> dict:
+def tile(cell: UnitCell, size: tuple[int, ...], periodic: bool | Sequence[bool]) -> dict:
     """Lattice fields of ``cell`` repeated over ``size`` cells; see the module docstring.
 
     Raises ModelError if a declared bond spans more than half of a periodic length (its two images
