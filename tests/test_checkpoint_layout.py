@@ -37,7 +37,7 @@ def _sim():
 def test_the_layout_is_pinned_to_what_the_checkpoint_holds():
     """Changing the accumulator slots or the state arrays without raising CHECKPOINT_LAYOUT (and adding a
     migration or a refusal for the old layout) fails here."""
-    assert CHECKPOINT_LAYOUT == 2
+    assert CHECKPOINT_LAYOUT == 3
     assert STATE_KEYS == ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
     assert ACC_LAYOUT == ("n_ops", "n_ops_sq", "mz2", "ms2", "ms4", "chi_stag", "sq_shifted", "dx2", "dy2",
                           "d4", "cos4", "w2_0", "w2_1", "w2_2")
@@ -63,9 +63,37 @@ def test_an_unnumbered_layout_1_state_is_migrated():
     assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
 
 
+def test_a_layout_2_state_is_migrated():
+    """Layout 2 had no profile block; its states continue bit-identically under layout 3."""
+    whole = _sim().advance(800)
+    sim = _sim()
+    first = sim.advance(450)
+    old = {**sim.state(), LAYOUT_KEY: np.asarray(2, dtype=np.int64)}
+    resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
+    assert int(resumed.state()[LAYOUT_KEY]) == CHECKPOINT_LAYOUT
+    assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
+
+
+def test_a_chain_with_profiles_restores_bit_identically():
+    """The profile block of a strip open along x is part of the checkpoint."""
+    model = compile_model(build_lattice("square", (4, 4), ("open", "periodic")),
+                          [HeisenbergTerm("nn", 1.0), ProjectorProductTerm("column-of-three", 1.0)])
+    assert model.n_columns == 4
+
+    def sim():
+        return Simulation(model, 2.0, seed_words=stream_seed(3, "profiles"), **KW)
+
+    whole = sim().advance(800)
+    part = sim()
+    first = part.advance(450)
+    rest = Simulation.restore(model, 2.0, state=part.state(), **KW).advance(800)
+    assert np.array_equal(np.vstack([first, rest]), whole)
+
+
 @pytest.mark.parametrize("layout, words", [
-    (CHECKPOINT_LAYOUT + 1, ["newer layout 3", "reads layout 2", "rerun the task", "newer release"]),
-    (0, ["old layout 0", "reads layout 2", "rerun the task", "older release"]),
+    (CHECKPOINT_LAYOUT + 1, [f"newer layout {CHECKPOINT_LAYOUT + 1}", f"reads layout {CHECKPOINT_LAYOUT}",
+                             "rerun the task", "newer release"]),
+    (0, ["old layout 0", f"reads layout {CHECKPOINT_LAYOUT}", "rerun the task", "older release"]),
 ])
 def test_a_layout_without_migration_is_refused_with_both_numbers(layout, words):
     state = {**_sim().state(), LAYOUT_KEY: np.asarray(layout)}
@@ -137,7 +165,8 @@ def test_task_files_of_layout_1_resume_and_unknown_layouts_fail_the_task(tmp_pat
     assert out.status == "stopped"
     _set_layout(out.path, CHECKPOINT_LAYOUT + 7)
     failed = run_task(task, tmp_path / "run")
-    assert failed.status == "failed" and "newer layout 9, this program reads layout 2" in failed.message
+    assert failed.status == "failed" and (f"newer layout {CHECKPOINT_LAYOUT + 7}, this program reads layout "
+                                          f"{CHECKPOINT_LAYOUT}") in failed.message
     assert read_task(out.path).steps_done == out.steps_done  # the file is kept as it was
     _set_layout(out.path, None)  # as written before layouts were numbered
     assert run_task(task, tmp_path / "run").status == "done"

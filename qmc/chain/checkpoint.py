@@ -10,6 +10,9 @@ Layouts:
 
 1. checkpoints without a ``layout`` entry (seriesloop 0.1.0): spins, ops, counters, rng, acc, hist, steps;
 2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number.
+3. the accumulator ``acc`` may end in a profile block (:func:`qmc.engine.slots.profile_start`), present
+   only for models that measure profiles along x (strips open along x, new with this layout).  Layout 2 is
+   migrated by raising the number: no model of layout 2 had profiles, so its arrays mean the same.
 """
 
 from __future__ import annotations
@@ -22,11 +25,12 @@ from qmc.errors import UserError
 
 __all__ = ["CHECKPOINT_LAYOUT", "STATE_KEYS", "LAYOUT_KEY", "current_layout"]
 
-CHECKPOINT_LAYOUT = 2
+CHECKPOINT_LAYOUT = 3
 STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
 LAYOUT_KEY = "layout"
 
-_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0"}
+_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without profiles",
+             3: "the releases with profiles along x"}
 """The releases that write each layout (named in the refusal message)."""
 
 
@@ -34,7 +38,12 @@ def _from_layout_1(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     return {**state, LAYOUT_KEY: np.asarray(2, dtype=np.int64)}
 
 
-_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1}
+def _from_layout_2(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    return {**state, LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
+
+
+_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1,
+                                                                                    2: _from_layout_2}
 """layout n -> function turning a layout-n state into a layout-(n+1) state."""
 
 

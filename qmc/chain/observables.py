@@ -25,12 +25,17 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N; a group is the
                    terms of one [[terms]] block or one bond class (Heisenberg and projector-product alike)
 =================  ===========================================================================================
+
+On strips open along x and periodic along y (models with ``site_column``) the bins also hold the profiles
+along x, ``vbs_profile_x/<c>``, ``vbs_profile_y/<c>`` and ``energy_profile/<c>`` for every column c
+(formulas in :mod:`qmc.chain.profiles`).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from qmc.chain.profiles import profile_names, profile_values
 from qmc.engine import slots as S
 from qmc.models.compiled import CompiledModel
 
@@ -57,6 +62,7 @@ def bin_names(model: CompiledModel) -> tuple[str, ...]:
     if model.n_vbs_dirs >= 2:
         names += ["vbs_cos4"]
     names += [f"term_energy/{g}" for g in model.group_names]
+    names += profile_names(model)
     return tuple(names)
 
 
@@ -90,4 +96,8 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
             vals[f"stiffness/{name}"] = rho[d]
     for g, name in enumerate(model.group_names):
         vals[f"term_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
+    if model.n_columns:
+        start = S.profile_start(len(model.group_names))
+        block = a[start:start + S.PROFILE_ROWS * model.n_columns]
+        vals.update(zip(profile_names(model), profile_values(model, beta, block), strict=True))
     return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)

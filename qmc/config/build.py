@@ -36,8 +36,12 @@ def build_model(task: Task) -> CompiledModel:
             terms.append(cls(**kwargs))
         except ModelError as exc:
             raise _located(exc.within(f"terms[{i}]"), task) from None
+    wall = None
+    if task.domain_wall is not None:
+        d = task.domain_wall
+        wall = models.DomainWall(wall=d["wall"], pin=d["pin"], pattern=d["pattern"])
     try:
-        return models.compile_model(lat, terms)
+        return models.compile_model(lat, terms, wall)
     except ModelError as exc:
         raise _located(exc, task) from None
 
@@ -67,8 +71,8 @@ def validate(config: RunConfig) -> int:
     """
     seen: set[str] = set()
     for task in config.tasks():
-        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms],
-                         sort_keys=True, default=list)
+        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms,
+                          task.domain_wall], sort_keys=True, default=list)
         if key not in seen:
             seen.add(key)
             build_model(task)

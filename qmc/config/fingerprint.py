@@ -9,19 +9,21 @@ from __future__ import annotations
 import hashlib
 import json
 
-from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import DomainWallSpec, LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import canonical_number
 
 __all__ = ["fingerprint"]
 
 
 def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling) -> str:
+                scan: tuple[ScanEntry, ...], sampling: Sampling, domain_wall: DomainWallSpec | None = None
+                ) -> str:
     """SHA-256 (hex) of the semantic content of a configuration.
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output``,
     ``sampling.checkpoint_seconds`` and ``exchange.max_ranks`` do not enter; numbers enter by value (1 and
-    1.0 are the same).  ``exchange.every`` enters only with replica exchange.
+    1.0 are the same).  ``exchange.every`` enters only with replica exchange, ``[domain_wall]`` only when
+    given (so configurations without it keep their fingerprints).
     """
     s = sampling
     content = {
@@ -38,5 +40,8 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
     }
     if s.exchange is not None:
         content["sampling"]["exchange_every"] = s.exchange_every
+    if domain_wall is not None:
+        content["domain_wall"] = {"walls": list(domain_wall.walls), "pattern": domain_wall.pattern,
+                                  "pin": canonical_number(domain_wall.pin)}
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()

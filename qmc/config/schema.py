@@ -6,7 +6,8 @@ Sections and keys (``*`` marks required ones)::
                 config file; default "runs/<file stem>"), seed* = master seed (integer >= 0),
                 description = "text"
     [lattice]   kind* = chain | square | bilayer | honeycomb | cubic, size* = [numbers or scan names]
-                (one entry per direction, or a single value for all), boundary = periodic | open
+                (one entry per direction, or a single value for all), boundary = periodic | open, or one
+                of them per direction (e.g. ["open", "periodic"])
                 or: kind* = "explicit", sites* = N, bonds = [[i, j], ...], classes = {name = [[i, j], ...]}
                 (at least one of bonds/classes; with both, the classes split the bond list exactly)
     [[terms]]   type* = "heisenberg": bonds* = bond class, coupling* = J   (adds +J S_i.S_j per bond)
@@ -20,6 +21,10 @@ Sections and keys (``*`` marks required ones)::
     [exchange]  along* = scan name of a coupling (replica exchange between its values), every = 10
                 (Monte Carlo steps between swap attempts), max_ranks = at most this many MPI ranks per
                 ladder (default: as many as shorten its step)
+    [domain_wall] walls* = ["pi/2", "pi"] (one or both), pattern = "columnar", pin = 2.0 (> 0): every scan
+                point becomes the reference task (wall "none") plus one task per wall, and "none-x" when
+                "pi/2" is asked for (the edges, :mod:`qmc.models.walls`); square lattice with boundary =
+                ["open", "periodic"] only
 
 Keys of earlier releases (:data:`RENAMED_KEYS`) are refused with a message naming their replacement.
 """
@@ -38,19 +43,23 @@ __all__ = [
     "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES", "EXPLICIT", "SECTIONS", "MAX_TASKS",
     "COPY_PARAM", "RESERVED_NAMES", "RENAMED_KEYS", "NAME_RE", "TERM_NAME_RE",
     "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "TERM_KEYS", "HOME",
-    "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling", "check_coupling",
+    "DOMAIN_WALL_KEYS", "WALL_PARAM", "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling",
+    "DomainWallSpec", "check_coupling",
 ]
 
 # LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
 TERM_TYPES = ("heisenberg", "projector-product")
 SHAPES = tuple(models.SHAPES)  # named shapes of projector-product terms
 EXPLICIT = "explicit"
-SECTIONS = ("run", "lattice", "terms", "scan", "sampling", "exchange")
+SECTIONS = ("run", "lattice", "terms", "scan", "sampling", "exchange", "domain_wall")
 MAX_TASKS = 100_000
 COPY_PARAM = "copy"
 """Parameter name of the copy index (0 .. copies-1) in a task's ``params``."""
+WALL_PARAM = "wall"
+"""Parameter name of a domain-wall task's wall (``"none"``, ``"pi/2"``, ``"pi"``, ``"none-x"``)."""
 RESERVED_NAMES = {
     COPY_PARAM: "independent copies are numbered by 'copy', set by sampling.copies",
+    WALL_PARAM: "the tasks of [domain_wall] are told apart by 'wall'",
     "replica": "task files of earlier releases number their independent copies by 'replica'",
 }
 """Scan names a configuration may not use, with the reason."""
@@ -67,7 +76,7 @@ RUN_KEYS = {"name": "free text naming the run", "output": "the run directory, re
             "seed": "the master random seed, an integer >= 0", "description": "free text"}
 LATTICE_KEYS = {"kind": "one of " + ", ".join([*LATTICE_KINDS, EXPLICIT]),
                 "size": 'the number of unit cells per direction, e.g. size = ["L", "L"]',
-                "boundary": "periodic or open"}
+                "boundary": 'periodic or open, or one per direction, e.g. ["open", "periodic"]'}
 EXPLICIT_KEYS = {"kind": "explicit", "sites": "the number of sites N", "bonds": "[[i, j], ...] site pairs",
                  "classes": "{name = [[i, j], ...], ...} named bond classes"}
 SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring, an integer >= 0",
@@ -78,6 +87,9 @@ SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring, 
 EXCHANGE_KEYS = {"along": "scan name of the coupling whose values exchange configurations",
                  "every": "Monte Carlo steps between swap attempts, an integer >= 1",
                  "max_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
+DOMAIN_WALL_KEYS = {"walls": 'the walls to run beside the reference, e.g. ["pi/2", "pi"]',
+                    "pattern": 'the valence-bond pattern pinned at the edges: "columnar"',
+                    "pin": "factor (> 0) on the couplings of the edge terms that carry the pattern"}
 TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
                             "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
              "projector-product": {"type": "projector-product",
@@ -88,6 +100,7 @@ TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the 
                                    "name": "label of the term"}}
 HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
         **{k: "[sampling]" for k in SAMPLING_KEYS}, **{k: "[exchange]" for k in EXCHANGE_KEYS},
+        **{k: "[domain_wall]" for k in DOMAIN_WALL_KEYS},
         "beta": "[scan]", "L": "[scan]",
         **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize")}}
 """Key -> the section it belongs in, for messages about a key in the wrong place."""
@@ -111,11 +124,12 @@ class LatticeSpec:
     """``[lattice]``: a built-in kind with size expressions, or an explicit bond list (kind "explicit").
 
     ``size`` has one expression per direction; ``size_scalar`` records that one value was given for all.
+    ``boundary`` is one word for all directions or, when they differ, one per direction.
     """
 
     kind: str
     size: tuple[Expression, ...] = ()
-    boundary: str = "periodic"
+    boundary: str | tuple[str, ...] = "periodic"
     size_scalar: bool = False
     sites: int | None = None
     bonds: tuple[tuple[int, int], ...] | None = None
@@ -175,6 +189,22 @@ class Sampling:
     @property
     def steps_per_bin(self) -> int:
         return self.measure_steps // self.bins
+
+
+@dataclass(frozen=True)
+class DomainWallSpec:
+    """``[domain_wall]``: the ``walls`` asked for (in :data:`qmc.models.WALLS` order), the edge ``pattern``
+    and the factor ``pin``; :attr:`tasks` lists the wall of every task of a scan point."""
+
+    walls: tuple[str, ...]
+    pattern: str = "columnar"
+    pin: float = 2.0
+
+    @property
+    def tasks(self) -> tuple[str, ...]:
+        """The wall of every task of one scan point: reference ``none`` first, ``none-x`` with ``pi/2``."""
+        extra = ("none-x",) if "pi/2" in self.walls else ()
+        return ("none", *self.walls, *extra)
 
 
 def check_coupling(value: Number, where: str, context: str) -> None:

@@ -64,8 +64,20 @@ def parse_lattice(r: TableReader) -> LatticeSpec:
         size = tuple(r.expression(f"lattice.size[{i}]", v) for i, v in enumerate(raw))
     else:
         size = (r.expression("lattice.size", raw),) * dim
-    boundary = r.choice("lattice.boundary", t.get("boundary", "periodic"), BOUNDARIES, "boundary")
+    boundary = _boundary(r, t.get("boundary", "periodic"), kind, dim)
     return LatticeSpec(kind=kind, size=size, boundary=boundary, size_scalar=not isinstance(raw, list))
+
+
+def _boundary(r: TableReader, value: Any, kind: str, dim: int) -> str | tuple[str, ...]:
+    """One boundary word for all directions, or a list of one per direction (equal words fold into one)."""
+    if not isinstance(value, list):
+        return r.choice("lattice.boundary", value, BOUNDARIES, "boundary")
+    if len(value) != dim:
+        entries = "entry" if dim == 1 else "entries"
+        raise r.fail("lattice.boundary", f"a {kind} lattice needs {dim} boundary {entries} (one per "
+                                         f"direction), got {len(value)}")
+    words = tuple(r.choice(f"lattice.boundary[{a}]", v, BOUNDARIES, "boundary") for a, v in enumerate(value))
+    return words[0] if len(set(words)) == 1 else words
 
 
 def _explicit(r: TableReader, t: dict) -> LatticeSpec:

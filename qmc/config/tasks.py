@@ -4,6 +4,10 @@ Task ids join the scanned (not derived) values in file order with the copy numbe
 The random stream of a task is ``stream_seed(seed, seed_key)`` with ``seed_key`` built from the sorted
 parameter values and the copy index only, so it depends neither on the order of the scan, nor on the
 task id's text, nor on where the task runs.
+
+With ``[domain_wall]`` every point and copy gives one task per wall (reference first): the id gains
+``_wall-<tag>`` before the copy number (:data:`WALL_TAGS`, e.g. ``L8_J0_wall-pi2_c0``), ``params["wall"]``
+holds the wall and the seed key gains ``;wall=..;pattern=..;pin=..`` before the copy index.
 """
 
 from __future__ import annotations
@@ -16,6 +20,8 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    WALL_PARAM,
+    DomainWallSpec,
     LatticeSpec,
     RunSection,
     Sampling,
@@ -25,7 +31,10 @@ from qmc.config.schema import (
 )
 from qmc.errors import UserError
 
-__all__ = ["Task", "expand_tasks", "canonical_number"]
+__all__ = ["Task", "expand_tasks", "canonical_number", "WALL_TAGS"]
+
+WALL_TAGS = {"none": "none", "pi/2": "pi2", "pi": "pi", "none-x": "nonex"}
+"""The text of each wall in task ids (ids name files, so no '/')."""
 
 _NEED_EVEN = ("chain", "square", "bilayer", "cubic")  # bipartite with periodic boundaries only for even L
 
@@ -40,14 +49,16 @@ class Task:
     and ``copy``.  The random stream of the task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
     names the replica-exchange ladder the task belongs to (tasks that differ only in the exchanged
     parameter ``exchange`` share it), or is None without exchange; the ladder's swap decisions draw from
-    ``stream_seed(seed, exchange_seed_key)``.
+    ``stream_seed(seed, exchange_seed_key)``.  ``boundary`` is one word or one per direction;
+    ``domain_wall`` is ``{"wall", "pattern", "pin"}`` for a task of ``[domain_wall]`` (``params["wall"]``
+    then holds the wall), else None.
     """
 
     task_id: str
-    params: dict[str, Number]
+    params: dict[str, Any]
     lattice_kind: str
     size: tuple[int, ...]
-    boundary: str
+    boundary: str | tuple[str, ...]
     terms: list[dict[str, Any]]
     beta: float
     copy: int
@@ -59,6 +70,7 @@ class Task:
     exchange_seed_key: str | None = None
     explicit: dict[str, Any] | None = None
     source: str = ""
+    domain_wall: dict[str, Any] | None = None
 
 
 def canonical_number(v: Number) -> str:
@@ -67,8 +79,10 @@ def canonical_number(v: Number) -> str:
 
 
 def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                 scan: tuple[ScanEntry, ...], sampling: Sampling) -> list[Task]:
-    """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner.
+                 scan: tuple[ScanEntry, ...], sampling: Sampling, domain_wall: DomainWallSpec | None = None
+                 ) -> list[Task]:
+    """All tasks: cartesian product of the scan entries in file order (first slowest), the walls of
+    ``domain_wall`` (if any) next, copies inner.
 
     Derived entries are evaluated per point; beta, sizes and couplings are checked per task, with the
     point named in the message (``source`` is the file name for messages).
@@ -96,17 +110,40 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
         label = "_".join(f"{e.name}{format_number(values[e.name])}" for e in base)
         key = ";".join(f"{k}={canonical_number(params[k])}" for k in sorted(params))
         rest = [f"{e.name}{format_number(values[e.name])}" for e in base if e.name != exchange]
-        for c in range(sampling.copies):
-            group = "_".join([*rest, f"c{c}"]) if exchange is not None else None
-            # The seed keys below are frozen: their text fixes every random stream, so it keeps the
-            # word "replica" (the copy index's name in earlier releases) and the old group label.
-            ladder_key = "exchange:" + "_".join([*rest, f"r{c}"]) if exchange is not None else None
-            tasks.append(Task(
-                task_id=f"{label}_c{c}", params={**params, COPY_PARAM: c}, lattice_kind=lattice.kind,
-                size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
-                copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
-                exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source))
+        if domain_wall is not None:
+            _check_strip(source, lattice, size, context)
+        for wall in domain_wall.tasks if domain_wall is not None else (None,):
+            point, wall_key, edges = dict(params), key, None
+            if wall is not None:
+                point[WALL_PARAM] = wall
+                wall_key = (f"{key};wall={wall};pattern={domain_wall.pattern};"
+                            f"pin={canonical_number(domain_wall.pin)}")
+                edges = {"wall": wall, "pattern": domain_wall.pattern, "pin": domain_wall.pin}
+            tag = label if wall is None else f"{label}_wall-{WALL_TAGS[wall]}"
+            for c in range(sampling.copies):
+                group = "_".join([*rest, f"c{c}"]) if exchange is not None else None
+                # The seed keys below are frozen: their text fixes every random stream, so it keeps the
+                # word "replica" (the copy index's name in earlier releases) and the old group label.
+                ladder_key = "exchange:" + "_".join([*rest, f"r{c}"]) if exchange is not None else None
+                tasks.append(Task(
+                    task_id=f"{tag}_c{c}", params={**point, COPY_PARAM: c}, lattice_kind=lattice.kind,
+                    size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
+                    copy=c, sampling=sampling, seed_key=f"{wall_key};replica={c}", exchange=exchange,
+                    seed=run.seed, exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit,
+                    source=source, domain_wall=edges))
     return tasks
+
+
+def _check_strip(source: str, lattice: LatticeSpec, size: tuple[int, ...], context: str) -> None:
+    """Domain walls need Lx even and at least 4 (both edges end on whole dimers) and Ly at least 4."""
+    lx, ly = size
+    if lx % 2 or lx < 4:
+        raise UserError(f"Lx = {lx}{context}: domain walls need an even length of at least 4 along the "
+                        "open direction, so that both edges end on whole dimers",
+                        f"{source}: {lattice.size_key(0)}")
+    if ly < 4:
+        raise UserError(f"Ly = {ly}{context}: domain walls need a periodic length of at least 4",
+                        f"{source}: {lattice.size_key(1)}")
 
 
 def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
@@ -142,7 +179,8 @@ def _resolve_size(source: str, lat: LatticeSpec, values: dict[str, Number], cont
         if v < 2:
             raise UserError(f"{expr.text!r} = {v}{context} is too small: every length must be at least 2",
                             f"{source}: {key}")
-        if v % 2 and lat.boundary == "periodic" and lat.kind in _NEED_EVEN:
+        periodic = lat.boundary[i] if isinstance(lat.boundary, tuple) else lat.boundary
+        if v % 2 and periodic == "periodic" and lat.kind in _NEED_EVEN:
             raise UserError(f"{expr.text!r} = {v}{context} is odd: a periodic {lat.kind} lattice needs even "
                             "lengths to be bipartite (use an even size or boundary = \"open\")",
                             f"{source}: {key}")

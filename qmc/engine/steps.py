@@ -15,6 +15,8 @@ lattice, not yet divided by N):
 - A_DX2, A_DY2, A_D4, A_COS4   D_x^2, D_y^2, (D_x^2 + D_y^2)^2, cos 4 theta
 - A_W2 + a             w_a^2, the squared net up-spin displacement along direction a
 - A_GROUP + g          n_g, the number of operators of term group g
+- profile block        per-column sums on strips open along x (:mod:`qmc.engine.profiles`), only when the
+                       model measures profiles (``probes.site_column`` not empty)
 """
 
 from __future__ import annotations
@@ -26,6 +28,7 @@ from numba import njit, typeof
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.equal_time import equal_time
 from qmc.engine.kinds import loop_update
+from qmc.engine.profiles import column_profiles
 from qmc.engine.slots import (
     A_CHIS,
     A_COS4,
@@ -44,6 +47,7 @@ from qmc.engine.slots import (
     ET_DY,
     ET_MZ2,
     ET_SQN,
+    PROFILE_ROWS,
     SW_MS_END,
     SW_N_OLD,
     SW_SUM_MS,
@@ -69,7 +73,10 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
     sweep_out, et_out = tallies.sweep_out, tallies.et_out
     spins, counters = chain.spins, chain.counters
     beta = terms.beta
-    n_groups = acc.shape[0] - A_GROUP
+    n_groups = group_counts.shape[0]
+    n_cols = 0
+    if probes.site_column.shape[0] > 0:
+        n_cols = (acc.shape[0] - A_GROUP - n_groups) // PROFILE_ROWS
     n_dirs = probes.bond_disp.shape[1]
     M = chain.ops.shape[0]
     for step in range(n_steps):
@@ -107,6 +114,8 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
             acc[A_D4] += d2 * d2
             if d2 > 0.0:
                 acc[A_COS4] += (dx2 * dx2 - 6.0 * dx2 * dy2 + dy2 * dy2) / (d2 * d2)
+            if n_cols > 0:
+                column_profiles(chain.ops, spins, probes, acc, A_GROUP + n_groups, n_cols)
         if stop_when_full and 3 * (M - n) < n:
             return step + 1
     return n_steps
