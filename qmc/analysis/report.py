@@ -9,6 +9,11 @@
     plots/crossings_<quantity>.{png,pdf} crossing drift with its extrapolation, 1/nu(L)
     plots/collapse_<quantity>.{png,pdf}  data collapse
     plots/vbs_L<L>.{png,pdf}             VBS histograms (largest beta per coupling)
+    plots/vbs_<coupling><g>.{png,pdf}    VBS histograms at one coupling, one panel per L (emergent U(1))
+    plots/cos4_vs_L.{png,pdf}            |<cos 4 theta>| versus L per coupling with power-law fits
+    domain_wall.csv, profiles.csv        runs with [domain_wall]: kappa per (scan point, wall); profiles
+    plots/kappa.{png,pdf}                kappa versus L with power-law fits, kappa L versus L
+    plots/profiles_<point>.{png,pdf}     D_x(x), D_y(x), e(x) of the reference and the walls of a point
 
 Steps: independent copies are merged (:func:`qmc.analysis.summary.group_copies`), every point is
 summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
@@ -20,7 +25,10 @@ using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max`` at the
 (the crossing and 1/nu of the largest size pair).
 Here ``L`` is the smaller size of each pair, and both fits share ``omega_fixed`` when too few
 pairs exist to fit the exponent.  The crossing analysis and the plots versus the coupling use the
-largest beta available at each (L, g).
+largest beta available at each (L, g).  In a run with ``[domain_wall]`` they use the reference tasks
+(``wall = "none"``); the wall energies and profiles come from :mod:`qmc.analysis.walls`, the emergent-U(1)
+analysis from :mod:`qmc.analysis.u1`.  A run with a single size or a single coupling is analysed as far as
+it goes (no crossings then, with a warning saying why).
 """
 
 from __future__ import annotations
@@ -38,9 +46,12 @@ from .crossings import find_crossings
 from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
+from .orders import order_lines, order_plots, wall_report
 from .scan import curves_for, detect_coupling, other_varying, scan_points
 from .summary import group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
+from .u1 import u1_analysis
+from .walls import WALL_PARAM, has_walls, size_like
 
 __all__ = ["CROSSING_QUANTITIES", "analyze_run", "format_result"]
 
@@ -152,6 +163,8 @@ def _make_plots(
     best: dict[tuple, dict] = {}
     for p in points:
         key = (p["L"], p["g"])
+        if WALL_PARAM in p["params"]:
+            continue  # pinned edges fix the angle of the order parameter
         if p.get("vbs") and p["vbs"].get("counts") and (key not in best or p["beta"] > best[key]["beta"]):
             best[key] = p
     by_size: dict[float, list] = {}
@@ -199,6 +212,8 @@ def analyze_run(
     coupling = detect_coupling(summaries, coupling)
     extra = other_varying(summaries, coupling)
     points = scan_points(summaries, coupling)
+    extra_ref = [k for k in extra if k != WALL_PARAM]
+    reference = [p for p in points if p["params"].get(WALL_PARAM, "none") == "none"]
     hist_of = {m.task_id: (m.vbs_histogram, m.vbs_hist_range) for m in merged}
     names = observable_names(points)
     if quantity not in names and quantity not in CROSSING_QUANTITIES:
@@ -228,13 +243,21 @@ def analyze_run(
         collapse_x_max=collapse_x_max,
     )
     if quantity in names:
-        crossings, plot_data = _crossing_analysis(points, quantity, coupling, extra, opts, warnings)
+        crossings, plot_data = _crossing_analysis(reference, quantity, coupling, extra_ref, opts, warnings)
     else:
         crossings, plot_data = None, {}
         warnings.append(f"{quantity}: not available in these tasks: crossing analysis skipped")
 
+    walls: dict[str, Any] = {"entries": [], "fits": [], "sizes": []}
+    if has_walls(points):
+        walls["entries"], walls["fits"], wall_files = wall_report(points, out, warnings)
+        walls["sizes"] = size_like(points)
+        files += wall_files
+    u1 = u1_analysis(points, coupling, extra_ref)
+
     if plot:
-        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of)
+        files += _make_plots(reference, names, coupling, quantity, plot_data, out, extra_ref, hist_of)
+        files += order_plots(points, coupling, walls, u1, hist_of, out)
 
     result = {
         "out_dir": str(out),
@@ -247,6 +270,9 @@ def analyze_run(
         "observables": names,
         "quantity": quantity,
         "crossings": crossings,
+        "domain_wall": walls["entries"],
+        "domain_wall_fits": walls["fits"],
+        "emergent_u1": u1,
         "ground_state": ground,
         "warnings": warnings,
         "files": [str(f) for f in files] + [str(out / "analysis.json")],
@@ -283,8 +309,10 @@ def format_result(result: dict[str, Any]) -> str:
         if cr.get("collapse"):
             c = cr["collapse"]
             lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
+    lines += order_lines(result)
     gs = result["ground_state"]
     lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")
     lines += [f"warning: {w}" for w in result["warnings"]]
     lines.append(f"written: {result['out_dir']}")
     return "\n".join(lines)
+

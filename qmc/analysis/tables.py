@@ -21,6 +21,8 @@ from typing import Any
 
 import numpy as np
 
+from .walls import is_profile
+
 __all__ = ["TAU_SUFFIX", "observable_names", "table_rows", "to_jsonable", "write_csv", "write_json"]
 
 TAU_SUFFIX = "_tau_int[bins]"
@@ -45,8 +47,10 @@ def to_jsonable(obj: Any) -> Any:
 
 
 def observable_names(points: Sequence[dict]) -> list[str]:
-    """Sorted union of the observable names of all points."""
-    return sorted(set().union(*(p["observables"] for p in points))) if points else []
+    """Sorted union of the observable names of all points, without the per-column profiles (they have
+    their own table, profiles.csv: :mod:`qmc.analysis.walls`)."""
+    names = set().union(*(p["observables"] for p in points)) if points else set()
+    return sorted(n for n in names if not is_profile(n))
 
 
 def table_rows(

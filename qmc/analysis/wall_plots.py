@@ -1,0 +1,100 @@
+"""Figures of the domain-wall analysis (:mod:`qmc.analysis.walls`): kappa(L), the profiles across the strip.
+
+``plot_kappa`` draws, for every series (wall and coupling), kappa versus L on log-log axes with its
+power-law fit, and kappa L versus L beside it (kappa L grows with L when the wall energy falls more slowly
+than 1/L, the signature of a VBS).  ``plot_profiles`` draws the dimer order D_x(x), D_y(x) and the energy
+per site e(x) across the strip for the reference and each wall of one scan point.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from pathlib import Path
+
+import numpy as np
+
+from .plots import new_figure, save_figure
+from .walls import profiles_of, series_label
+
+__all__ = ["plot_kappa", "plot_profiles", "log_axes"]
+
+_WALL_NAMES = {"none": "reference (y-dimer edges)", "none-x": "reference (x-dimer edges)",
+               "pi": "pi wall", "pi/2": "pi/2 wall"}
+
+
+def log_axes(ax, sizes: Sequence[float]) -> None:
+    """Log-log axes with the sizes as plain x tick labels and plain y tick labels."""
+    from matplotlib.ticker import FormatStrFormatter, NullFormatter
+
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ticks = sorted(set(float(L) for L in sizes))
+    ax.set_xticks(ticks)
+    ax.xaxis.set_major_formatter(FormatStrFormatter("%g"))
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.yaxis.set_major_formatter(FormatStrFormatter("%g"))
+    ax.yaxis.set_minor_formatter(FormatStrFormatter("%g"))
+
+
+def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[str], base: str | Path
+               ) -> list[Path]:
+    """Left: kappa versus L (log-log) with the fits; right: kappa L versus L.  Non-positive kappa values are
+    drawn on the right panel only."""
+    fig, axes = new_figure(1, 2, size=(11.0, 4.2))
+    left, right = axes[0]
+    for f in fits:
+        members = [e for e in entries if e["wall"] == f["wall"]
+                   and {k: v for k, v in e["params"].items() if k not in sizes} == f["params"]]
+        L = np.array([m["L"] for m in members], dtype=float)
+        k = np.array([m["kappa"] for m in members], dtype=float)
+        s = np.array([m["kappa_err"] for m in members], dtype=float)
+        label = series_label(f["wall"], f["params"])
+        fit = f["fit"]
+        text = (f": a = {fit['exponent']:.3g} +- {fit['exponent_err']:.2g}" if fit["ok"] else
+                " (no fit)")
+        positive = k > 0
+        bar = left.errorbar(L[positive], k[positive], yerr=s[positive], marker="o", ms=4, ls="none",
+                            capsize=2, label=label + text)
+        colour = bar[0].get_color()
+        if fit["ok"] and fit["amplitude"] > 0:
+            grid = np.geomspace(L.min() * 0.9, L.max() * 1.1, 50)
+            left.plot(grid, fit["amplitude"] * grid ** (-fit["exponent"]), lw=1, color=colour)
+        right.errorbar(L, k * L, yerr=s * L, marker="o", ms=4, lw=1, capsize=2, color=colour, label=label)
+    log_axes(left, [e["L"] for e in entries])
+    fig.subplots_adjust(left=0.08, wspace=0.3)
+    left.set_xlabel("distance between the pinned edges L")
+    left.set_ylabel("wall energy per unit length kappa")
+    left.set_title("kappa = (E_wall - E_ref) / L_y, fit A L^-a", fontsize="small")
+    left.legend(fontsize="x-small")
+    right.axhline(0.0, color="0.6", lw=0.8)
+    right.set_xlabel("distance between the pinned edges L")
+    right.set_ylabel("kappa L")
+    right.set_xticks(sorted({float(e["L"]) for e in entries}))
+    right.set_title("kappa L: grows with L in a valence-bond solid", fontsize="small")
+    return save_figure(fig, base)
+
+
+def plot_profiles(points: Sequence[dict], title: str, base: str | Path) -> list[Path]:
+    """D_x(x), D_y(x) and e(x) of the tasks of one scan point (one curve per wall), side by side."""
+    fig, axes = new_figure(1, 3, size=(13.0, 3.8))
+    panels = (("D_x", "x-dimer order D_x(x)"), ("D_y", "y-dimer order D_y(x)"),
+              ("e", "energy per site e(x)"))
+    order = {"none": 0, "none-x": 1, "pi/2": 2, "pi": 3}
+    for p in sorted(points, key=lambda q: order.get(str(q["params"].get("wall")), 9)):
+        prof = profiles_of(p)
+        if prof is None:
+            continue
+        x = prof["x"][0]
+        label = _WALL_NAMES.get(str(p["params"].get("wall")), str(p["params"].get("wall", p["task"])))
+        for ax, (name, _) in zip(axes[0], panels, strict=True):
+            mean, err = prof[name]
+            ax.errorbar(x, mean, yerr=np.where(np.isfinite(err), err, 0.0), marker="o", ms=3, lw=1, capsize=2,
+                        label=label)
+    axes[0][0].set_title("edge columns hold one x-bond each", fontsize="x-small")
+    for ax, (_, ylabel) in zip(axes[0], panels, strict=True):
+        ax.set_xlabel("column x (open edges at both ends)")
+        ax.set_ylabel(ylabel)
+        ax.axhline(0.0, color="0.6", lw=0.8)
+    axes[0][0].legend(fontsize="x-small")
+    fig.suptitle(title, fontsize="small")
+    return save_figure(fig, base)
