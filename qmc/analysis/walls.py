@@ -101,18 +101,24 @@ def wall_energies(points: Sequence[dict]) -> tuple[list[dict], list[str]]:
                             "kappa": kappa, "kappa_err": err, "kappa_L": kappa * p["L"],
                             "kappa_L_err": err * p["L"], "E_wall": e_w, "E_wall_err": s_w, "E_ref": e_r,
                             "E_ref_err": s_r, "tasks": [p["task"], *(by_wall[r]["task"] for r in refs)]})
-    entries.sort(key=lambda e: (e["wall"], _key(e["params"]), e["L"], e["beta"]))
+    entries.sort(key=lambda e: (e["wall"], _key({k: v for k, v in e["params"].items()
+                                                 if k != "beta" and v != e["L"]}), e["L"], e["beta"]))
     return entries, warnings
 
 
 def size_like(points: Sequence[dict]) -> list[str]:
-    """Parameters that follow the size: at least two values, one value per L (e.g. L itself, beta = L)."""
+    """Parameters that follow the size: equal to L in every task (the size itself), or taking at least two
+    values, one per L (e.g. beta = "L")."""
     out = []
     names = set().union(*(p["params"] for p in points)) if points else set()
     for k in sorted(names - set(_NOT_PARAMS)):
+        values = [p["params"].get(k) for p in points]
+        if all(isinstance(v, int | float) and v == p["L"] for v, p in zip(values, points, strict=True)):
+            out.append(k)
+            continue
         by_size: dict[float, set] = {}
-        for p in points:
-            by_size.setdefault(p["L"], set()).add(repr(canonical_value(p["params"].get(k))))
+        for p, v in zip(points, values, strict=True):
+            by_size.setdefault(p["L"], set()).add(repr(canonical_value(v)))
         if len(by_size) > 1 and all(len(v) == 1 for v in by_size.values()) \
                 and len(set().union(*by_size.values())) > 1:
             out.append(k)

@@ -10,7 +10,8 @@ Layout: ``hamiltonian`` (sparse full-space H), ``lattices`` (cluster geometry an
 ``symmetry`` (group validation, state-level symmetry tables), ``blocks`` (block data types, Kubo kernel),
 ``response`` (Kubo integrals, operator averages, exact twist stiffness), ``spectrum`` (ExactSpectrum:
 block construction and thermodynamics; finite-difference stiffness), ``clusters`` (thermal observables
-of the chain, square J-Q2 and bilayer clusters used by ``qmc validate``), ``bethe`` (Bethe ansatz).
+of the chain, square J-Q2 and bilayer clusters used by ``qmc validate``), ``strips`` (J-Q3 strips open along
+x with pinned edges: domain-wall energies and column profiles), ``bethe`` (Bethe ansatz).
 """
 
 from .bethe import chain_ground_state_energy
@@ -33,6 +34,7 @@ from .lattices import (
 )
 from .response import ResponseMixin
 from .spectrum import ExactSpectrum, stiffness_by_twist
+from .strips import STRIP_WALLS, strip_ground_state, strip_kappa, strip_terms
 from .symmetry import (
     PermutationGroup,
     SymmetryTable,
@@ -49,6 +51,7 @@ __all__ = [
     "PermutationGroup",
     "ResponseMixin",
     "Sector",
+    "STRIP_WALLS",
     "SymmetryGroup",
     "SymmetryTable",
     "as_betas",
@@ -74,6 +77,9 @@ __all__ = [
     "staggered_signs_chain",
     "staggered_signs_square",
     "stiffness_by_twist",
+    "strip_ground_state",
+    "strip_kappa",
+    "strip_terms",
     "symmetry_table",
     "sz_diagonal",
     "validate_group",

@@ -20,6 +20,12 @@ bonds are dimers of the left edge's pattern and which has a site in column x = 0
 
 The wall energy per unit length compared with the simulation is kappa = (E_wall - E_ref) / Ly with total
 energies, E_ref = E_none for the pi wall and (E_none + E_none-x) / 2 for the pi/2 wall.
+
+Ground-state profiles per column c (``strip_ground_state``), with B_b = <S^z_i S^z_j> of bond b:
+
+    D_x(c) = (1/Ly) sum over the x-bonds b touching column c of (1/2) (-1)^(x of the left site) B_b
+    D_y(c) = (1/Ly) sum over the y-bonds b of column c of (-1)^(y of the lower site) B_b
+    e(c)   = (1/Ly) sum_t f_tc <h_t>,  h_t = J_t S_i.S_j or -Q_t P P P, f_tc = (sites of t in column c) / (2k)
 """
 
 from __future__ import annotations
@@ -28,7 +34,7 @@ import numpy as np
 
 from .hamiltonian import basis_states, build_hamiltonian, popcount
 
-__all__ = ["STRIP_WALLS", "strip_terms", "strip_energy", "strip_kappa"]
+__all__ = ["STRIP_WALLS", "strip_terms", "strip_kappa", "strip_ground_state"]
 
 STRIP_WALLS = {"none": (("y", 0), ("y", 0)), "pi": (("y", 0), ("y", 1)), "pi/2": (("y", 0), ("x", 0)),
                "none-x": (("x", 0), ("x", 0))}
@@ -80,16 +86,10 @@ def strip_terms(Lx: int, Ly: int, J: float, Q: float, wall: str | None = None, p
     return heis, q3
 
 
-def strip_energy(Lx: int, Ly: int, beta: float, J: float, Q: float, wall: str, pin: float,
-                 levels: int = 8) -> tuple[float, float]:
-    """Thermal total energy <H> of the pinned strip at inverse temperature beta, from the ``levels`` lowest
-    eigenvalues of every total-S^z sector (Lanczos; sectors with S^z and -S^z share their spectrum).
-
-    Returns ``(energy, neglected)``: ``neglected`` bounds the Boltzmann weight of the levels left out
-    relative to Z (each sector's missing levels lie at or above its highest computed one), so the energy
-    is exact to about ``neglected`` times the spread of the spectrum.  Low temperatures only: at
-    ``beta * gap`` of order 10 and more a few levels per sector are plenty.
-    """
+def strip_ground_state(Lx: int, Ly: int, J: float, Q: float, wall: str, pin: float) -> dict:
+    """Ground state of the pinned strip (a singlet, in the S^z = 0 sector): ``energy`` (total), ``gap`` to
+    the next level (lowest of the second S^z = 0 level and the lowest S^z = 1 level), and the column
+    profiles ``D_x``, ``D_y``, ``e`` (float64[Lx], formulas in the module docstring)."""
     from scipy.sparse.linalg import eigsh
 
     heis, q3 = strip_terms(Lx, Ly, J, Q, wall, pin)
@@ -97,23 +97,35 @@ def strip_energy(Lx: int, Ly: int, beta: float, J: float, Q: float, wall: str, p
     H = build_hamiltonian(n, heis, q3)
     states = basis_states(n)
     n_up = popcount(states, n)
-    spectra, missing = [], []
-    for m in range((n + 1) // 2, n + 1):
-        S = np.flatnonzero(n_up == m)
-        block = H[S][:, S]
-        if S.size <= max(4 * levels, 64):
-            E = np.linalg.eigvalsh(block.toarray())
-        else:
-            E = np.sort(eigsh(block, k=levels, which="SA", tol=1e-12, return_eigenvectors=False))
-        copies = 1 if 2 * m == n else 2
-        spectra.append((E, copies))
-        missing.append((S.size - E.size, E[-1], copies))
-    E0 = min(E.min() for E, _ in spectra)
-    weights = [(E, c * np.exp(-beta * (E - E0))) for E, c in spectra]
-    Z = sum(w.sum() for _, w in weights)
-    energy = sum((E * w).sum() for E, w in weights) / Z
-    neglected = sum(c * k * np.exp(-beta * (top - E0)) for k, top, c in missing) / Z
-    return float(energy), float(neglected)
+    S0, S1 = np.flatnonzero(n_up == n // 2), np.flatnonzero(n_up == n // 2 + 1)
+    E, V = eigsh(H[S0][:, S0], k=2, which="SA", tol=1e-12)
+    order = np.argsort(E)
+    E, psi = E[order], V[:, order[0]]
+    E1 = eigsh(H[S1][:, S1], k=1, which="SA", tol=1e-12, return_eigenvectors=False)[0]
+    prob = psi**2
+    sz = ((states[S0, None] >> np.arange(n)) & 1) - 0.5  # (D, n)
+
+    def corr(i: int, j: int) -> float:
+        return float(prob @ (sz[:, i] * sz[:, j]))
+
+    dx, dy, e = np.zeros(Lx), np.zeros(Lx), np.zeros(Lx)
+    for y in range(Ly):
+        for x in range(Lx):
+            i = y * Lx + x
+            dy[x] += (-1) ** y * corr(i, ((y + 1) % Ly) * Lx + x)
+            if x + 1 < Lx:
+                half = 0.5 * (-1) ** x * corr(i, i + 1)
+                dx[x] += half
+                dx[x + 1] += half
+    terms = [([(c, i, j)], [], [(i, j)]) for c, i, j in heis] + [([], [(c, b)], b) for c, b in q3]
+    for h_heis, h_q3, bonds in terms:
+        h = build_hamiltonian(n, h_heis, h_q3)[S0][:, S0]
+        value = float(psi @ (h @ psi))
+        sites = [s for b in bonds for s in b]
+        for s in sites:
+            e[s % Lx] += value / len(sites)
+    return {"energy": float(E[0]), "gap": float(min(E[1], E1) - E[0]), "D_x": dx / Ly, "D_y": dy / Ly,
+            "e": e / Ly}
 
 
 def strip_kappa(energies: dict[str, float], wall: str, Ly: int) -> float:
