@@ -120,6 +120,18 @@ def _weighted(parts: list[dict[str, dict[str, float]]]) -> dict[str, dict[str, f
     return obs
 
 
+def _listing(names: list[str]) -> str:
+    """Comma-separated names, a run of per-column names ``p/0, p/1, ...`` shortened to ``p/<columns>``."""
+    plain, columns = set(), set()
+    for n in names:
+        head, _, tail = n.rpartition("/")
+        if head and tail.isdigit():
+            columns.add(head)
+        else:
+            plain.add(n)
+    return ", ".join(sorted(plain | {f"{c}/<columns>" for c in columns}))
+
+
 def summarize_task(task_data: Any) -> dict[str, Any]:
     """Summary dict of one task or of merged copies (see module docstring)."""
     rec = as_record(task_data)
@@ -136,17 +148,17 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
         warnings.append(f"{tid}: no bins stored yet")
         warn = {k: [] for k in warn}
     if warn["plateau"]:
-        names = ", ".join(sorted(set(warn["plateau"])))
+        names = _listing(warn["plateau"])
         warnings.append(
             f"{tid}: error not converged in the binning analysis (too few independent bins): {names}"
         )
     if warn["halves"]:
-        names = ", ".join(sorted(set(warn["halves"])))
+        names = _listing(warn["halves"])
         warnings.append(
             f"{tid}: first and second half of the bins disagree (drift; warm-up too short?): {names}"
         )
     if warn["undefined"]:
-        names = ", ".join(sorted(set(warn["undefined"])))
+        names = _listing(warn["undefined"])
         warnings.append(f"{tid}: derived quantity undefined for these means: {names}")
     summary: dict[str, Any] = {
         "task": tid,

@@ -3,7 +3,7 @@
 ``plot_kappa`` draws, for every series (wall and coupling), kappa versus L on log-log axes with its
 power-law fit, and kappa L versus L beside it (kappa L grows with L when the wall energy falls more slowly
 than 1/L, the signature of a VBS).  ``plot_profiles`` draws the dimer order D_x(x), D_y(x) and the energy
-per site e(x) across the strip for the reference and each wall of one scan point.
+per site of each wall relative to its reference across the strip, for one scan point.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .plots import new_figure, save_figure
-from .walls import profiles_of, series_label
+from .walls import REFERENCES, profiles_of, series_label
 
 __all__ = ["plot_kappa", "plot_profiles", "log_axes"]
 
@@ -75,26 +75,47 @@ def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[st
 
 
 def plot_profiles(points: Sequence[dict], title: str, base: str | Path) -> list[Path]:
-    """D_x(x), D_y(x) and e(x) of the tasks of one scan point (one curve per wall), side by side."""
+    """D_x(x) and D_y(x) of the tasks of one scan point (one curve per wall) and, for each wall, the energy
+    per site relative to the reference with the same edge, e(x) - e_ref(x) (for the pi/2 wall: "none" on
+    the left half, "none-x" on the right half), whose sum over x is kappa up to statistical errors (n_c =
+    L_y sites per column; exactly so on average, by the mirror symmetry of the references)."""
     fig, axes = new_figure(1, 3, size=(13.0, 3.8))
-    panels = (("D_x", "x-dimer order D_x(x)"), ("D_y", "y-dimer order D_y(x)"),
-              ("e", "energy per site e(x)"))
+    panels = (("D_x", "x-dimer order D_x(x)"), ("D_y", "y-dimer order D_y(x)"))
     order = {"none": 0, "none-x": 1, "pi/2": 2, "pi": 3}
-    for p in sorted(points, key=lambda q: order.get(str(q["params"].get("wall")), 9)):
-        prof = profiles_of(p)
+    by_wall = {str(p["params"].get("wall")): p for p in points}
+    profiles = {w: profiles_of(p) for w, p in by_wall.items()}
+    for wall in sorted(profiles, key=lambda w: order.get(w, 9)):
+        prof = profiles[wall]
         if prof is None:
             continue
         x = prof["x"][0]
-        label = _WALL_NAMES.get(str(p["params"].get("wall")), str(p["params"].get("wall", p["task"])))
-        for ax, (name, _) in zip(axes[0], panels, strict=True):
+        label = _WALL_NAMES.get(wall, wall)
+        for ax, (name, _) in zip(axes[0], panels, strict=False):
             mean, err = prof[name]
             ax.errorbar(x, mean, yerr=np.where(np.isfinite(err), err, 0.0), marker="o", ms=3, lw=1, capsize=2,
                         label=label)
-    axes[0][0].set_title("edge columns hold one x-bond each", fontsize="x-small")
-    for ax, (_, ylabel) in zip(axes[0], panels, strict=True):
-        ax.set_xlabel("column x (open edges at both ends)")
+        refs = [profiles.get(r) for r in REFERENCES.get(wall, ())]
+        if refs and all(r is not None for r in refs):
+            # column by column, the reference with the same edge: for the pi/2 wall the left half of "none"
+            # and the right half of "none-x" (mirror symmetry: together they hold (E_none + E_none-x) / 2)
+            side = np.minimum((2 * x >= x.size).astype(int), len(refs) - 1)
+            ref = np.choose(side, [r["e"][0] for r in refs])
+            ref_err = np.choose(side, [r["e"][1] for r in refs])
+            delta, err = prof["e"][0] - ref, np.hypot(prof["e"][1], ref_err)
+            axes[0][2].errorbar(x, delta, yerr=np.where(np.isfinite(err), err, 0.0), marker="o", ms=3, lw=1,
+                                capsize=2, color=f"C{order[wall]}",
+                                label=f"{label}: sum = {np.sum(delta):.3g}")
+    for ax, (_, ylabel) in zip(axes[0], panels, strict=False):
         ax.set_ylabel(ylabel)
+    axes[0][0].set_title("edge columns hold one x-bond each", fontsize="x-small")
+    axes[0][2].set_ylabel("e(x) - e_ref(x), energy per site")
+    axes[0][2].set_title("wall energy density (reference with the same edge); sum over x ~ kappa",
+                         fontsize="x-small")
+    for ax in axes[0]:
+        ax.set_xlabel("column x (open edges at both ends)")
         ax.axhline(0.0, color="0.6", lw=0.8)
     axes[0][0].legend(fontsize="x-small")
+    if axes[0][2].has_data():
+        axes[0][2].legend(fontsize="x-small")
     fig.suptitle(title, fontsize="small")
     return save_figure(fig, base)
