@@ -89,7 +89,8 @@ _TERMS_HELP = '''\
 _LATTICE_HELP = '''\
 # kind: chain | square | bilayer | honeycomb | cubic (or "explicit" with sites = N, bonds = [[i, j], ...]).
 # size: number of unit cells along each direction; numbers or scan names.
-# boundary: "periodic" (default) or "open".  Periodic chain/square/bilayer/cubic lattices need even sizes.
+# boundary: "periodic" (default) or "open", or one per direction such as ["open", "periodic"] (a strip
+# open along x).  Periodic chain/square/bilayer/cubic lattices need even sizes.
 '''
 
 _CRITICAL_BETA = ("# beta = L: at these transitions time scales like length (dynamic exponent z = 1), so\n"
@@ -187,6 +188,43 @@ TEMPLATES: dict[str, str] = {
         _sampling(2000, 20000, 100, exchange="J"),
     ),
 }
+
+
+_WALLS_HELP = '''\
+[domain_wall]
+# Every scan point runs as several tasks that differ only in the valence-bond pattern pinned at the two
+# open edges: the reference "none" (y-dimers on both edges, in phase), each wall listed here, and, with
+# "pi/2", a second reference "none-x" (x-dimers on both edges).  "pi": the right edge is shifted by one
+# row, so the order parameter turns by pi across the strip; "pi/2": the right edge carries x-dimers.
+# `qmc analyze` reports the wall energy per unit length kappa = (E_wall - E_ref) / L_y (E_ref = E_none for
+# the pi wall, the mean of "none" and "none-x" for the pi/2 wall), its power-law fit versus L, and the
+# order and energy profiles across the strip.
+walls = ["pi/2", "pi"]
+# pattern: the valence-bond pattern the edges carry (columnar dimers).
+pattern = "columnar"
+# pin: factor on the couplings of the edge terms made only of the edge pattern's dimers (> 0).  Only
+# existing couplings are scaled, so the model stays free of the sign problem; a larger factor holds the
+# edges more firmly.
+pin = 2.0
+'''
+
+TEMPLATES["jq3-walls"] = _compose(
+    "# Domain walls in the valence-bond solid of the J-Q3 model: H = J sum_<ij> S_i.S_j - Q sum P P P over\n"
+    "# three parallel bonds stacked in a column, P = 1/4 - S_i.S_j, Q = 1, on L x L strips open along x and\n"
+    "# periodic along y.  A wall between two valence-bond domains costs a finite energy per unit length in\n"
+    "# the solid, so kappa L grows with L; near the Neel transition (J/Q ~ 0.67) the angle of the order\n"
+    "# parameter is free over long distances (an emergent U(1) symmetry), a wall spreads over the whole\n"
+    "# strip and kappa falls with L.\n",
+    _run("jq3-walls", 1313, "valence-bond domain walls in the J-Q3 model"),
+    'kind = "square"\nsize = ["L", "L"]\nboundary = ["open", "periodic"]\n',
+    '[[terms]]\ntype = "heisenberg"\nbonds = "nn"\ncoupling = "J"\n\n'
+    '[[terms]]\ntype = "projector-product"\nshape = "column-of-three"\nsymmetrize = true\ncoupling = 1.0\n',
+    "L = [8, 12, 16]\n# J: Heisenberg coupling in units of Q, from deep in the solid towards the Neel\n"
+    "# phase.\n"
+    "J = [0.0, 0.3, 0.6]\n# beta = L: low enough a temperature for ground-state energy differences.\n"
+    "beta = \"L\"\n",
+    _sampling(4000, 40000, 40),
+) + "\n" + _WALLS_HELP
 
 
 def template(kind: str) -> str:
