@@ -10,8 +10,9 @@ Layouts:
 
 1. checkpoints without a ``layout`` entry (seriesloop 0.1.0): spins, ops, counters, rng, acc, hist, steps;
 2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number.
-3. the accumulator ``acc`` may end in a profile block (:func:`qmc.engine.slots.profile_start`), present
-   only for models that measure profiles along x (strips open along x, new with this layout).  Layout 2 is
+3. the accumulator ``acc`` may end in a profile block (:func:`qmc.engine.slots.profile_start`: dimer
+   sums per column and operator counts per term), present only for models that measure profiles along x
+   (strips open along x, new with this layout).  Layout 2 is
    migrated by raising the number: no model of layout 2 had profiles, so its arrays mean the same.
 """
 

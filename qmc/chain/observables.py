@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qmc.chain.profiles import profile_names, profile_values
+from qmc.chain.profiles import profile_names, profile_size, profile_values
 from qmc.engine import slots as S
 from qmc.models.compiled import CompiledModel
 
@@ -98,6 +98,6 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
         vals[f"term_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
     if model.n_columns:
         start = S.profile_start(len(model.group_names))
-        block = a[start:start + S.PROFILE_ROWS * model.n_columns]
+        block = a[start:S.acc_size(len(model.group_names), *profile_size(model))]
         vals.update(zip(profile_names(model), profile_values(model, beta, block), strict=True))
     return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)

@@ -1,9 +1,9 @@
-"""Profiles along x on strips open along x: the kernel's tables and the per-bin values.
+"""Profiles along x on strips open along x: the size of their accumulator block and the per-bin values.
 
 For a model with ``site_column`` (:class:`qmc.models.CompiledModel`: open along x, periodic along the
-other directions) the engine sums, per column of sites c = 0 .. C-1 (:mod:`qmc.engine.profiles`), the
-dimer correlations of the bonds touching c and the operators of the terms touching c.  Per bin, with
-n_c the number of sites of column c and beta the inverse temperature:
+other directions) the engine sums, per column of sites c = 0 .. C-1, the dimer correlations of the bonds
+touching c, and the operators of every term (:mod:`qmc.engine.profiles`).  Per bin, with n_c the number
+of sites of column c and beta the inverse temperature:
 
 ========================  ===================================================================================
 ``vbs_profile_x/<c>``     D_x(c) = (1/n_c) sum_{x-bonds b touching c} (1/2) (-1)^(x_b) <S^z_i S^z_j>: the
@@ -20,17 +20,18 @@ n_c the number of sites of column c and beta the inverse temperature:
 ``E_t = C_t const_g / sum_{t' in g} C_t'`` splits a group's constant over its terms in proportion to their
 couplings: ``C_t / 4`` for a Heisenberg term (also a pinned one, :mod:`qmc.models.walls`), 0 for a
 projector product.  A dimer (a singlet-like bond) has S^z_i S^z_j < 0, so a column of dimers at even x
-gives D_x(c) < 0.
+gives D_x(c) < 0.  At an open edge a column has one x-bond only, half of whose (negative) correlation
+then enters D_x(c) without the bond on the other side that cancels it in the bulk.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from qmc.engine.slots import PROFILE_DX, PROFILE_DY, PROFILE_OPS
+from qmc.engine.slots import PROFILE_DX, PROFILE_DY, PROFILE_TERMS
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["PROFILE_PREFIXES", "profile_names", "profile_probes", "profile_values"]
+__all__ = ["PROFILE_PREFIXES", "profile_names", "profile_size", "profile_values"]
 
 PROFILE_PREFIXES = ("vbs_profile_x/", "vbs_profile_y/", "energy_profile/")
 """Bin-name prefixes of the profile observables, followed by the column index."""
@@ -42,55 +43,43 @@ def profile_names(model: CompiledModel) -> list[str]:
     return [f"{prefix}{c}" for prefix in PROFILE_PREFIXES for c in cols]
 
 
-def _term_sites(model: CompiledModel) -> tuple[np.ndarray, np.ndarray]:
-    """(sites int64[T, 2 kmax] padded with -1, k int64[T]) of every term."""
+def profile_size(model: CompiledModel) -> tuple[int, int]:
+    """(C, T): the columns and terms of the model's profile block, (0, 0) without profiles."""
+    return (model.n_columns, model.n_terms) if model.n_columns else (0, 0)
+
+
+def _term_shares(model: CompiledModel) -> np.ndarray:
+    """float64[T, C]: f_tc, the share of term t's 2k sites that lie in column c."""
     start = np.asarray(model.term_start, dtype=np.int64)
     k = np.diff(start)
-    kmax = int(k.max()) if k.size else 1
-    sites = np.full((model.n_terms, 2 * kmax), -1, dtype=np.int64)
     bonds = np.asarray(model.bond_sites, dtype=np.int64)[np.asarray(model.term_bonds, dtype=np.int64)]
     term_of = np.repeat(np.arange(model.n_terms), k)
-    slot = np.arange(bonds.shape[0]) - start[term_of]
-    sites[term_of, 2 * slot] = bonds[:, 0]
-    sites[term_of, 2 * slot + 1] = bonds[:, 1]
-    return sites, k
+    column = np.asarray(model.site_column, dtype=np.int64)
+    shares = np.zeros((model.n_terms, model.n_columns))
+    for end in (0, 1):
+        np.add.at(shares, (term_of, column[bonds[:, end]]), 1.0 / (2.0 * k[term_of]))
+    return shares
 
 
-def profile_probes(model: CompiledModel) -> dict[str, np.ndarray]:
-    """``site_column``, ``term_columns``, ``term_column_weight`` for the kernel's Probes record (empty
-    arrays for a model without profiles): site s of term t lies in column ``term_columns[t, s]`` and carries
-    ``1/(2 k_t)`` of the term (padding entries carry weight 0)."""
-    if model.site_column is None:
-        return {"site_column": np.zeros(0, np.int32), "term_columns": np.zeros((0, 1), np.int32),
-                "term_column_weight": np.zeros((0, 1), np.float64)}
-    column = np.ascontiguousarray(model.site_column, dtype=np.int32)
-    sites, k = _term_sites(model)
-    present = sites >= 0
-    columns = np.where(present, column[np.where(present, sites, 0)], 0).astype(np.int32)
-    weight = np.where(present, 1.0 / (2.0 * k[:, None]), 0.0)
-    return {"site_column": column, "term_columns": np.ascontiguousarray(columns),
-            "term_column_weight": np.ascontiguousarray(weight, dtype=np.float64)}
-
-
-def _column_constants(model: CompiledModel) -> np.ndarray:
-    """float64[C], sum_t f_tc E_t: each term's share of its group's constant, split over its sites."""
+def _term_constants(model: CompiledModel) -> np.ndarray:
+    """float64[T], E_t: each term's share of its group's constant, in proportion to its coupling."""
     coupling = np.asarray(model.term_coupling, dtype=np.float64)
     group = np.asarray(model.term_group, dtype=np.int64)
     total = np.bincount(group, weights=coupling, minlength=len(model.group_names))
     const = np.asarray(model.group_constant, dtype=np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
-        per_term = np.where(total[group] > 0, coupling * const[group] / total[group], 0.0)
-    probes = profile_probes(model)
-    return np.bincount(probes["term_columns"].ravel(),
-                       weights=(probes["term_column_weight"] * per_term[:, None]).ravel(),
-                       minlength=model.n_columns)
+        return np.where(total[group] > 0, coupling * const[group] / total[group], 0.0)
 
 
 def profile_values(model: CompiledModel, beta: float, block: np.ndarray) -> np.ndarray:
     """Per-bin profile values in :func:`profile_names` order from the step-averaged profile block
-    (float64[3 C], rows :data:`qmc.engine.slots.PROFILE_DX`... ; see the module docstring)."""
-    n_cols = model.n_columns
-    rows = np.asarray(block, dtype=np.float64).reshape(3, n_cols)
+    (C slots D_x, C slots D_y, T term counts; :mod:`qmc.engine.profiles`), formulas in the module
+    docstring."""
+    n_cols, n_terms = profile_size(model)
+    block = np.asarray(block, dtype=np.float64)
+    dx = block[PROFILE_DX * n_cols:(PROFILE_DX + 1) * n_cols]
+    dy = block[PROFILE_DY * n_cols:(PROFILE_DY + 1) * n_cols]
+    counts = block[PROFILE_TERMS * n_cols:PROFILE_TERMS * n_cols + n_terms]
     sites = np.bincount(np.asarray(model.site_column, dtype=np.int64), minlength=n_cols).astype(np.float64)
-    energy = (_column_constants(model) - rows[PROFILE_OPS] / beta) / sites
-    return np.concatenate([rows[PROFILE_DX] / sites, rows[PROFILE_DY] / sites, energy])
+    energy = (_term_constants(model) - counts / beta) @ _term_shares(model) / sites
+    return np.concatenate([dx / sites, dy / sites, energy])

@@ -16,7 +16,7 @@ import numpy as np
 from qmc.chain.alias import alias_table
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
-from qmc.chain.profiles import profile_probes
+from qmc.chain.profiles import profile_size
 from qmc.engine.kinds import kind_record
 from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
@@ -57,7 +57,7 @@ class Simulation:
         self.chain = build(Chain, spins=np.where(u < 0.5, 1, -1).astype(np.int8),
                            ops=np.full(cutoff, EMPTY, dtype=np.int32), counters=np.zeros(1, dtype=np.int64),
                            rng=rng)
-        self.acc = np.zeros(acc_size(len(model.group_names), model.n_columns), dtype=np.float64)
+        self.acc = np.zeros(acc_size(len(model.group_names), *profile_size(model)), dtype=np.float64)
         self.hist = np.zeros((self._hist_bins, self._hist_bins), dtype=np.int64)
         self.steps = np.zeros(1, dtype=np.int64)
         self._allocate_work()
@@ -86,7 +86,7 @@ class Simulation:
         self.hist = np.array(state["hist"], dtype=np.int64)
         self.steps = np.array(state["steps"], dtype=np.int64)
         if (self.spins.shape != (model.n_sites,)
-                or self.acc.shape != (acc_size(len(model.group_names), model.n_columns),)):
+                or self.acc.shape != (acc_size(len(model.group_names), *profile_size(model)),)):
             raise ValueError("checkpoint does not match the model (site, term-group or column count differs)")
         if (np.any(self.ops >= (model.n_terms << OP_TERM_SHIFT))
                 or int(np.sum(self.ops >= 0)) != int(self.counters[0])):
@@ -132,7 +132,7 @@ class Simulation:
             vbs_bonds=np.ascontiguousarray(model.vbs_bonds, dtype=np.int32).reshape(-1, 2),
             vbs_dir=np.ascontiguousarray(model.vbs_dir, dtype=np.int8),
             vbs_phase=np.ascontiguousarray(model.vbs_phase, dtype=np.int8), hist_range=HIST_RANGE,
-            **profile_probes(model))
+            site_column=np.ascontiguousarray(model.site_column if model.n_columns else np.zeros(0), np.int32))
         self._hist_bins = HIST_BINS if model.n_vbs_dirs >= 2 else 0
         self.bin_names = bin_names(model)
         self._kernel = None

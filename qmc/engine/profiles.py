@@ -1,20 +1,20 @@
 """Profiles along x on strips open along x: dimer order and operator counts per column of sites.
 
 Measured only for models with ``site_column`` (:class:`qmc.models.CompiledModel`), once per measured step,
-into the profile block of the accumulator (:func:`qmc.engine.slots.profile_start`, C columns):
+into the profile block of the accumulator (:func:`qmc.engine.slots.profile_start`, C columns, T terms):
 
-- row PROFILE_DX, column c:  sum over the x-bonds b = (i, j) touching column c of
+- C slots from PROFILE_DX:  for column c, the sum over the x-bonds b = (i, j) touching column c of
   (1/2) (-1)^(x_b) S^z_i S^z_j, each bond shared equally by the columns of its two sites (x_b the column of
   its first site, the phase of the dimer pattern); the sum over c is N D_x
-- row PROFILE_DY, column c:  the same for the y-bonds, which lie inside one column: sum of
+- C slots from PROFILE_DY:  the same for the y-bonds, which lie inside one column: sum of
   (-1)^(y_b) S^z_i S^z_j over the y-bonds of column c; the sum over c is N D_y
-- row PROFILE_OPS, column c: sum over the operators in the string of the share of their term in column c,
-  ``term_column_weight[t, s]`` for site s of term t in column ``term_columns[t, s]`` (1/(2k) per site of a
-  k-bond term), so that the sum over c is n
+- T slots from PROFILE_TERMS: n_t, the operators of term t in the string (the per-column energies are
+  formed from them once per bin, :mod:`qmc.chain.profiles`)
 
-The equal-time rows use the spins at slice 0 after the step's loop update; the operator row counts the
-string after the step's updates (the loop update changes no term index).  Cost: O(N + M) per measured
-step (M the string length), paid only by models that measure profiles.
+The equal-time rows use the spins at slice 0 after the step's loop update; the term counts are those of
+the string after the step's updates (the loop update changes no term index).  Cost per measured step:
+O(N) for the dimer rows and one pass over the string with one increment per operator, paid only by
+models that measure profiles.
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.engine.slots import PROFILE_DX, PROFILE_OPS
+from qmc.engine.slots import PROFILE_DX, PROFILE_TERMS
 from qmc.engine.vertices import OP_TERM_SHIFT
 
 __all__ = ["column_profiles"]
@@ -32,7 +32,7 @@ U = np.uint32  # unsigned indices: no negative-index wrap-around code
 
 @njit(cache=True, boundscheck=False)
 def column_profiles(ops, spins, probes, acc, start, n_cols):
-    """Add this step's profile sums (module docstring) to ``acc[start : start + 3 n_cols]``."""
+    """Add this step's profile sums (module docstring) to the block of ``acc`` that begins at ``start``."""
     col = probes.site_column
     vbs_bonds, vbs_dir, vbs_phase = probes.vbs_bonds, probes.vbs_dir, probes.vbs_phase
     for b in range(vbs_bonds.shape[0]):
@@ -42,12 +42,8 @@ def column_profiles(ops, spins, probes, acc, start, n_cols):
         row = start + (PROFILE_DX + vbs_dir[b]) * n_cols
         acc[U(row + col[U(i)])] += half
         acc[U(row + col[U(j)])] += half
-    term_columns, weight = probes.term_columns, probes.term_column_weight
-    width = term_columns.shape[1]
-    base = start + PROFILE_OPS * n_cols
+    base = start + PROFILE_TERMS * n_cols
     for p in range(ops.shape[0]):
         op = ops[p]
         if op >= 0:
-            t = op >> OP_TERM_SHIFT
-            for s in range(width):
-                acc[U(base + term_columns[U(t), s])] += weight[U(t), s]
+            acc[U(base + (op >> OP_TERM_SHIFT))] += 1.0

@@ -17,10 +17,9 @@ wrong array is refused where the record is made, not silently used.
                 ``beta_wtot`` = beta sum_t w_t
 ``Probes``      what the estimators need: ``phase`` int8[N] (staggered sign), ``bond_disp`` float64[nb, D],
                 ``cos_tab``/``sin_tab`` float64[D, N], ``vbs_bonds`` int32[nv, 2], ``vbs_dir``/``vbs_phase``
-                int8[nv], ``hist_range``; for profiles along x (else empty): ``site_column`` int32[N],
-                ``term_columns`` int32[T, w] and ``term_column_weight`` float64[T, w] (the column of each
-                of a term's sites and its share of the term, :mod:`qmc.engine.profiles`)
-``Tallies``     where results go: ``acc`` float64[acc_size(G, C)], ``hist`` int64[h, h], and the per-step
+                int8[nv], ``hist_range``; for profiles along x (else empty) ``site_column`` int32[N]
+                (:mod:`qmc.engine.profiles`)
+``Tallies``     where results go: ``acc`` float64[acc_size(G, C, T)], ``hist`` int64[h, h], and the per-step
                 scratch ``group_counts`` int64[G] (G >= 1), ``sweep_out`` float64[SW_SIZE], ``et_out``
                 float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
 ==============  =============================================================================================
@@ -71,8 +70,6 @@ class Probes(NamedTuple):
     vbs_phase: np.ndarray
     hist_range: float
     site_column: np.ndarray
-    term_columns: np.ndarray
-    term_column_weight: np.ndarray
 
 
 class Tallies(NamedTuple):
@@ -91,7 +88,7 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
             "beta_wtot": (float, 0)},
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0),
-             "site_column": (_I32, 1), "term_columns": (_I32, 2), "term_column_weight": (_F64, 2)},
+             "site_column": (_I32, 1)},
     Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),
               "et_out": (_F64, 1)},
 }

@@ -27,11 +27,10 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
 - A_DX2, A_DY2, A_D4, A_COS4   D_x^2, D_y^2, (D_x^2 + D_y^2)^2, cos 4 theta
 - A_W2 + a                 w_a^2 (a < MAX_DIRS)
 - A_GROUP + g              n_g, operators of term group g (g < G)
-- profile_start(G) + r C + c   profiles along x, only for models with C = ``n_columns`` > 0 columns
-                           (:func:`qmc.engine.profiles.column_profiles`), rows r = PROFILE_DX, PROFILE_DY
-                           (dimer order summed over the bonds touching column c, each bond shared equally
-                           by its two sites' columns), PROFILE_OPS (operators, each shared equally by the
-                           columns of its 2k sites)
+- profile_start(G) + ...   profiles along x, only for models with C = ``n_columns`` > 0 columns
+                           (:func:`qmc.engine.profiles.column_profiles`): C slots PROFILE_DX and C slots
+                           PROFILE_DY (dimer order summed over the bonds touching column c, each bond shared
+                           equally by its two sites' columns), then T slots n_t (operators of each term t)
 
 The accumulator is part of the checkpoint (:meth:`qmc.chain.simulation.Simulation.state`): changing
 ``ACC_LAYOUT`` means raising the checkpoint layout version there.
@@ -45,7 +44,7 @@ __all__ = [
     "ET_MZ2", "ET_SQN", "ET_DX", "ET_DY", "ET_SIZE",
     "A_NOPS", "A_NOPS2", "A_MZ2", "A_MS2", "A_MS4", "A_CHIS", "A_SQN",
     "A_DX2", "A_DY2", "A_D4", "A_COS4", "A_W2", "A_GROUP", "ACC_LAYOUT", "acc_size",
-    "PROFILE_DX", "PROFILE_DY", "PROFILE_OPS", "PROFILE_ROWS", "profile_start",
+    "PROFILE_DX", "PROFILE_DY", "PROFILE_TERMS", "profile_start",
 ]
 
 MAX_DIRS = 3
@@ -69,9 +68,8 @@ A_W2 = ACC_LAYOUT.index("w2_0")
 A_GROUP = len(ACC_LAYOUT)
 
 
-PROFILE_DX, PROFILE_DY, PROFILE_OPS = 0, 1, 2
-PROFILE_ROWS = 3
-"""Rows of the profile block: one slot per column each."""
+PROFILE_DX, PROFILE_DY, PROFILE_TERMS = 0, 1, 2
+"""Offsets, in units of C slots, of the D_x and D_y rows and of the start of the T term counts."""
 
 
 def profile_start(n_groups: int) -> int:
@@ -79,7 +77,8 @@ def profile_start(n_groups: int) -> int:
     return A_GROUP + n_groups
 
 
-def acc_size(n_groups: int, n_columns: int = 0) -> int:
-    """Length of the accumulator for a model with ``n_groups`` term groups and ``n_columns`` profile
-    columns (0: no profiles, the layout of models without them is unchanged)."""
-    return A_GROUP + n_groups + PROFILE_ROWS * n_columns
+def acc_size(n_groups: int, n_columns: int = 0, n_terms: int = 0) -> int:
+    """Length of the accumulator for a model with ``n_groups`` term groups and, when it measures profiles,
+    ``n_columns`` columns and ``n_terms`` terms (``n_columns`` = 0: no profiles, the layout of models
+    without them is unchanged)."""
+    return A_GROUP + n_groups + (PROFILE_TERMS * n_columns + n_terms if n_columns else 0)

@@ -47,7 +47,7 @@ from qmc.engine.slots import (
     ET_DY,
     ET_MZ2,
     ET_SQN,
-    PROFILE_ROWS,
+    PROFILE_TERMS,
     SW_MS_END,
     SW_N_OLD,
     SW_SUM_MS,
@@ -76,7 +76,7 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
     n_groups = group_counts.shape[0]
     n_cols = 0
     if probes.site_column.shape[0] > 0:
-        n_cols = (acc.shape[0] - A_GROUP - n_groups) // PROFILE_ROWS
+        n_cols = (acc.shape[0] - A_GROUP - n_groups - terms.table.shape[0]) // PROFILE_TERMS
     n_dirs = probes.bond_disp.shape[1]
     M = chain.ops.shape[0]
     for step in range(n_steps):
