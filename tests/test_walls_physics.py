@@ -26,7 +26,7 @@ pytestmark = pytest.mark.slow
 
 SIZES = (8, 12, 16)
 WALLS = ("none", "pi/2", "pi", "none-x")
-STEPS = dict(warmup_steps=4000, measure_steps=60000, bins=60)
+STEPS = dict(warmup_steps=5000, measure_steps=64000, bins=128)
 
 
 def _kappas(terms, name: str) -> dict[str, dict[int, tuple[float, float]]]:

@@ -24,7 +24,7 @@ _WALL_NAMES = {"none": "reference (y-dimer edges)", "none-x": "reference (x-dime
 
 def log_axes(ax, sizes: Sequence[float]) -> None:
     """Log-log axes with the sizes as plain x tick labels and plain y tick labels."""
-    from matplotlib.ticker import FormatStrFormatter, NullFormatter
+    from matplotlib.ticker import FormatStrFormatter, LogLocator, NullFormatter
 
     ax.set_xscale("log")
     ax.set_yscale("log")
@@ -32,8 +32,9 @@ def log_axes(ax, sizes: Sequence[float]) -> None:
     ax.set_xticks(ticks)
     ax.xaxis.set_major_formatter(FormatStrFormatter("%g"))
     ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.yaxis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0)))
     ax.yaxis.set_major_formatter(FormatStrFormatter("%g"))
-    ax.yaxis.set_minor_formatter(FormatStrFormatter("%g"))
+    ax.yaxis.set_minor_formatter(NullFormatter())
 
 
 def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[str], base: str | Path
@@ -42,6 +43,10 @@ def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[st
     drawn on the right panel only."""
     fig, axes = new_figure(1, 2, size=(11.0, 4.2))
     left, right = axes[0]
+    groups: list[dict] = []
+    for f in fits:  # one colour per coupling, one marker and line style per wall
+        if f["params"] not in groups:
+            groups.append(f["params"])
     for f in fits:
         members = [e for e in entries if e["wall"] == f["wall"]
                    and {k: v for k, v in e["params"].items() if k not in sizes} == f["params"]]
@@ -53,13 +58,15 @@ def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[st
         text = (f": a = {fit['exponent']:.3g} +- {fit['exponent_err']:.2g}" if fit["ok"] else
                 " (no fit)")
         positive = k > 0
-        bar = left.errorbar(L[positive], k[positive], yerr=s[positive], marker="o", ms=4, ls="none",
-                            capsize=2, label=label + text)
-        colour = bar[0].get_color()
+        colour = f"C{groups.index(f['params']) % 10}"
+        marker, line = ("s", "--") if f["wall"] == "pi/2" else ("o", "-")
+        left.errorbar(L[positive], k[positive], yerr=s[positive], marker=marker, ms=4, ls="none", capsize=2,
+                      color=colour, label=label + text)
         if fit["ok"] and fit["amplitude"] > 0:
             grid = np.geomspace(L.min() * 0.9, L.max() * 1.1, 50)
-            left.plot(grid, fit["amplitude"] * grid ** (-fit["exponent"]), lw=1, color=colour)
-        right.errorbar(L, k * L, yerr=s * L, marker="o", ms=4, lw=1, capsize=2, color=colour, label=label)
+            left.plot(grid, fit["amplitude"] * grid ** (-fit["exponent"]), lw=1, ls=line, color=colour)
+        right.errorbar(L, k * L, yerr=s * L, marker=marker, ms=4, lw=1, ls=line, capsize=2, color=colour,
+                       label=label)
     log_axes(left, [e["L"] for e in entries])
     fig.subplots_adjust(left=0.08, wspace=0.3)
     left.set_xlabel("distance between the pinned edges L")

@@ -223,7 +223,7 @@ TEMPLATES["jq3-walls"] = _compose(
     "# phase.\n"
     "J = [0.0, 0.3, 0.6]\n# beta = L: low enough a temperature for ground-state energy differences.\n"
     "beta = \"L\"\n",
-    _sampling(4000, 40000, 40),
+    _sampling(10000, 40000, 100),
 ) + "\n" + _WALLS_HELP
 
 
