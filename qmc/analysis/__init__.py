@@ -5,8 +5,10 @@ estimates), ``chains`` (combining independent copies), ``derived`` (derived obse
 ``tasks`` (task records), ``summary`` (per-task summaries, merging copies), ``scan`` (coupling
 detection, curves per size), ``groundstate`` (beta-doubling check), ``crossings`` (crossing points,
 1/nu from slopes), ``extrapolate`` (L -> infinity fits), ``collapse`` (data collapse), ``vbs`` (VBS
-histogram anisotropy), ``tables`` (CSV/JSON), ``plots`` (matplotlib, Agg), ``report``
-(``analyze_run``).  This layer never imports the engine or storage; it reads TaskData-like objects.
+histogram anisotropy), ``powerlaw`` (fits A L^-a), ``walls`` and ``wall_plots`` (domain-wall energies
+kappa(L) and profiles), ``u1`` (<cos 4 theta> versus L, histogram panels), ``orders`` (their part of the
+report), ``tables`` (CSV/JSON), ``plots`` (matplotlib, Agg), ``report`` (``analyze_run``).  This
+layer never imports the engine or storage; it reads TaskData-like objects.
 """
 
 from .binning import BinningLevels, ErrorEstimate, binning_levels, error_estimate, halves_consistent, rebin
@@ -28,11 +30,14 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import beta_doubling_check
 from .jackknife import JackknifeResult, jackknife, jackknife_pseudovalues
+from .powerlaw import PowerLaw, fit_power_law
 from .report import CROSSING_QUANTITIES, analyze_run, format_result
 from .scan import detect_coupling
 from .summary import group_copies, summarize_task
 from .tasks import AnalysisTask
+from .u1 import u1_analysis
 from .vbs import cos4_from_histogram, plot_vbs_histogram, vbs_anisotropy
+from .walls import kappa_fits, wall_energies
 
 __all__ = [
     "CROSSING_QUANTITIES",
@@ -44,6 +49,7 @@ __all__ = [
     "ErrorEstimate",
     "Extrapolation",
     "JackknifeResult",
+    "PowerLaw",
     "AnalysisTask",
     "analyze_run",
     "beta_doubling_check",
@@ -61,12 +67,14 @@ __all__ = [
     "extrapolate",
     "find_crossing",
     "find_crossings",
+    "fit_power_law",
     "format_result",
     "group_copies",
     "halves_consistent",
     "inverse_nu",
     "jackknife",
     "jackknife_pseudovalues",
+    "kappa_fits",
     "merge_bin_dicts",
     "plot_vbs_histogram",
     "rebin",
@@ -75,7 +83,9 @@ __all__ = [
     "specific_heat",
     "stiffness_L",
     "summarize_task",
+    "u1_analysis",
     "vbs_anisotropy",
+    "wall_energies",
     "weighted_mean",
     "xi_over_L",
 ]
