@@ -83,8 +83,10 @@ class Lattice:
 
     @property
     def open_boundaries(self) -> bool:
-        """True when any direction is open (for a ladder: any direction besides the legs' width)."""
-        return self.boundary == "open" or (isinstance(self.boundary, tuple) and "open" in self.boundary)
+        """True when any winding direction is open (a ladder's width, always open, does not count)."""
+        if self.cell is None or not self.periodic:
+            return self.boundary != "periodic"
+        return not all(self.periodic[a] for a in self.cell.winding_axes)
 
     @property
     def class_names(self) -> tuple[str, ...]:
