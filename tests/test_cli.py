@@ -312,7 +312,7 @@ def test_entry_point_in_a_subprocess(tmp_path):
                           timeout=120)
     assert proc.returncode == 2 and proc.stdout == ""
     assert proc.stderr.strip() == f"error: {path}: not an HDF5 file; a task file is written by 'qmc run' " \
-                                  "(format dsqmc-task)"
+                                  "(format seriesloop/task)"
 
 
 def test_serial_run_of_an_exchange_ladder(tmp_path):

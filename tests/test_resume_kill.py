@@ -21,7 +21,8 @@ import pytest
 
 from qmc.config.parser import load_config
 from qmc.run.serial import run_task
-from qmc.storage.task_file import load_index, read_task, task_path
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path
 
 # ~10 s of Monte Carlo work (L=8 at beta = 2: ~15 us/step on a 2026 machine), so that the
 # L=8 task always writes intermediate checkpoints (at most one write per second)

@@ -18,7 +18,8 @@ from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
 from qmc.run.progress import Progress, format_duration
 from qmc.run.serial import StopFlag, prepare_run, run_serial, run_task, task_fingerprint
-from qmc.storage.task_file import load_index, read_task, task_path, write_task
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path, write_task
 
 CONFIG = """
 [run]

@@ -294,7 +294,7 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
 
 def _inspect_text(d: Any) -> str:
     rows: list[tuple[str, str]] = [
-        ("file", d.path), ("format", "dsqmc-task, version 1"), ("task", d.task_id), ("status", d.status),
+        ("file", d.path), ("format", f"{d.file_format}, version {d.format_version}"), ("task", d.task_id), ("status", d.status),
     ]
     if d.message:
         rows.append(("message", d.message))

@@ -53,8 +53,8 @@ from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
 from qmc.run.pacing import next_chunk, write_due
 from qmc.run.progress import NullProgress, ProgressSink
 from qmc.run.task_identity import task_fingerprint
-from qmc.storage.provenance import session_entry, task_provenance
-from qmc.storage.task_file import TaskRecord, now_iso, read_task, task_path, write_task
+from qmc.storage.provenance import now_iso, session_entry, task_provenance
+from qmc.storage.task_file import TaskRecord, read_task, task_path, write_task
 
 __all__ = [
     "Ladder", "ladder_tasks", "check_ladder_models", "check_ladders", "exchange_seed_key", "work_units",

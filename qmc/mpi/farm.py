@@ -51,7 +51,8 @@ from typing import Any
 from qmc.exchange.tasks import is_ladder, run_unit, work_units
 from qmc.exchange.team import form_team, team_size
 from qmc.run.serial import RunPlan, RunReport, TaskOutcome, task_weight, update_index
-from qmc.storage.task_file import now_iso, write_index
+from qmc.storage.provenance import now_iso
+from qmc.storage.run_index import write_index
 
 __all__ = [
     "INDEX_INTERVAL", "MpiWorld", "FarmStats", "launcher_rank_size", "mpi_world", "unit_cost",

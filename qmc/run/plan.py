@@ -18,14 +18,9 @@ from typing import Any
 from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
 from qmc.run.task_identity import steps_total, task_fingerprint
-from qmc.storage.task_file import (
-    atomic_write_text,
-    load_index,
-    new_index,
-    task_header,
-    task_path,
-    write_index,
-)
+from qmc.storage.atomic import atomic_write_text
+from qmc.storage.run_index import load_index, new_index, write_index
+from qmc.storage.task_file import task_header, task_path
 
 __all__ = ["RunPlan", "prepare_run"]
 

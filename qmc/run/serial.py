@@ -40,8 +40,9 @@ from qmc.run.pacing import CHUNK_SECONDS, MIN_WRITE_INTERVAL, next_chunk, write_
 from qmc.run.plan import RunPlan, prepare_run
 from qmc.run.progress import NullProgress, ProgressSink
 from qmc.run.task_identity import steps_total, task_fingerprint, task_weight
-from qmc.storage.provenance import session_entry, task_provenance
-from qmc.storage.task_file import TaskRecord, now_iso, read_task, task_path, write_index, write_task
+from qmc.storage.provenance import now_iso, session_entry, task_provenance
+from qmc.storage.run_index import write_index
+from qmc.storage.task_file import TaskRecord, read_task, task_path, write_task
 
 __all__ = [
     "CHUNK_SECONDS", "MIN_WRITE_INTERVAL", "StopFlag", "TaskOutcome", "RunPlan", "RunReport",
