@@ -16,7 +16,8 @@ from click.testing import CliRunner
 from qmc.cli.main import cli
 from qmc.config.parser import load_config
 from qmc.config.templates import TEMPLATES
-from qmc.run.serial import StopFlag, run_task
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
 from qmc.storage.task_file import load_index, read_task, task_path
 
 CONFIG = """
@@ -170,7 +171,7 @@ def test_usage_errors_are_one_line(tmp_path):
 
 
 def test_task_failure_exit_code_and_message(tmp_path, monkeypatch):
-    import qmc.run.serial as runner
+    import qmc.run.single as runner
 
     def broken(task):
         raise RuntimeError("boom")

@@ -1,4 +1,5 @@
-"""Replica exchange along a coupling (qmc.exchange.tasks): exact results, bookkeeping, files, resuming.
+"""Replica exchange along a coupling (qmc.exchange, qmc.run.ladder_run): exact results, bookkeeping, files,
+resuming.
 
 Physics: on the 4x4 J-Q2 model (J = 1, beta = 2) at four values of Q, the energy per site and m_stag2 with
 exchange agree with exact diagonalization (qmc/validation/exact, independent of the engine) within 4 error
@@ -24,15 +25,12 @@ from qmc.chain.simulation import Simulation
 from qmc.config.parser import build_model, load_config
 from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.exchange.tasks import (
-    GROUP_STATE_KEYS,
-    Ladder,
-    check_ladders,
-    exchange_summary,
-    run_group,
-    work_units,
-)
-from qmc.run.serial import StopFlag, run_task
+from qmc.exchange.ladder import GROUP_STATE_KEYS, Ladder, check_ladders
+from qmc.exchange.records import exchange_summary
+from qmc.run.ladder_run import run_group
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.run.units import work_units
 from qmc.storage.task_file import read_task, task_path
 
 JQ2 = """

@@ -122,7 +122,7 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
     (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks (see qmc.mpi.farm).
     """
     from qmc.mpi.farm import mpi_world
-    from qmc.run.serial import StopFlag
+    from qmc.run.outcome import StopFlag
 
     t_start = time.time()
     world = mpi_world()  # before the signal handlers, so that MPI start-up cannot replace them
@@ -147,8 +147,10 @@ def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool
               max_time: float | None, t_start: float, flag: Any, world: Any) -> int:
     """Serial run, or rank 0 of an MPI run; returns the exit status."""
     from qmc.config.parser import load_config
+    from qmc.run.plan import prepare_run
     from qmc.run.progress import NullProgress, Progress
-    from qmc.run.serial import prepare_run, run_serial, task_weight
+    from qmc.run.serial import run_serial
+    from qmc.run.task_identity import task_weight
 
     try:
         cfg = load_config(config)
@@ -263,7 +265,7 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
     """
     from qmc.analysis import group_replicas, summarize_task
     from qmc.analysis.tables import to_jsonable
-    from qmc.exchange.tasks import exchange_summary
+    from qmc.exchange.records import exchange_summary
     from qmc.storage.task_file import read_run
 
     tasks = read_run(run_dir)
@@ -294,7 +296,8 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_replicas: bool) -> None:
 
 def _inspect_text(d: Any) -> str:
     rows: list[tuple[str, str]] = [
-        ("file", d.path), ("format", f"{d.file_format}, version {d.format_version}"), ("task", d.task_id), ("status", d.status),
+        ("file", d.path), ("format", f"{d.file_format}, version {d.format_version}"), ("task", d.task_id),
+        ("status", d.status),
     ]
     if d.message:
         rows.append(("message", d.message))
@@ -314,7 +317,7 @@ def _inspect_text(d: Any) -> str:
                                       f"[-{d.vbs_hist_range:g}, {d.vbs_hist_range:g}]^2, "
                                       f"{int(d.vbs_histogram.sum())} samples"))
     if d.exchange:
-        from qmc.exchange.tasks import exchange_summary
+        from qmc.exchange.records import exchange_summary
 
         x = exchange_summary(d.exchange)
         plain = {k: (v.tolist() if hasattr(v, "tolist") else v) for k, v in d.exchange.items()}

@@ -48,9 +48,12 @@ from collections import deque
 from dataclasses import dataclass, field
 from typing import Any
 
-from qmc.exchange.tasks import is_ladder, run_unit, work_units
 from qmc.exchange.team import form_team, team_size
-from qmc.run.serial import RunPlan, RunReport, TaskOutcome, task_weight, update_index
+from qmc.run.outcome import RunReport, TaskOutcome
+from qmc.run.outcome import record_outcome as update_index
+from qmc.run.plan import RunPlan
+from qmc.run.task_identity import task_weight
+from qmc.run.units import is_ladder, run_unit, work_units
 from qmc.storage.provenance import now_iso
 from qmc.storage.run_index import write_index
 
@@ -465,8 +468,8 @@ def run_farm(world: MpiWorld, plan: RunPlan, *, stop_flag: Any = None, progress:
     Same result as ``run_serial``; the statistics are logged and kept in ``run_farm.stats``.
     Any unexpected error aborts the whole MPI job (``MPI_Abort``) rather than leaving ranks waiting.
     """
+    from qmc.run.outcome import StopFlag
     from qmc.run.progress import NullProgress
-    from qmc.run.serial import StopFlag
 
     stop_flag = stop_flag if stop_flag is not None else StopFlag()
     log = logger if logger is not None else logging.getLogger("qmc.run")
