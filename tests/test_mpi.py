@@ -23,7 +23,7 @@ import pytest
 
 from qmc.config.parser import load_config
 from qmc.exchange.ladder import Ladder
-from qmc.mpi.farm import launcher_rank_size, mpi_world
+from qmc.mpi.world import launcher_rank_size, mpi_world
 from qmc.run.outcome import StopFlag
 from qmc.run.single import run_task
 from qmc.run.units import work_units

@@ -121,7 +121,7 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
     command exits 0; the next `qmc run` continues where it stopped.  Started by an MPI launcher
     (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks (see qmc.mpi.farm).
     """
-    from qmc.mpi.farm import mpi_world
+    from qmc.mpi.world import mpi_world
     from qmc.run.outcome import StopFlag
 
     t_start = time.time()
