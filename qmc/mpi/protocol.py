@@ -148,7 +148,7 @@ def encode(msg: Message) -> tuple:
     """``(kind, *fields)`` of a message, outcomes as plain dicts."""
     kind = _KIND[type(msg)]
     if isinstance(msg, Done):
-        return (int(kind), msg.unit, [dataclasses.asdict(o) for o in msg.outcomes], list(msg.log_lines))
+        return (int(kind), msg.unit, [dict(vars(o)) for o in msg.outcomes], list(msg.log_lines))
     return (int(kind), *(getattr(msg, f.name) for f in dataclasses.fields(msg)))
 
 

@@ -41,7 +41,7 @@ from qmc.exchange.records import (
     written_with,
 )
 from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
-from qmc.run.outcome import StopSignal, TaskOutcome
+from qmc.run.outcome import StopSignal, TaskOutcome, failure_message
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
@@ -218,7 +218,7 @@ class LadderRun(TaskRun):
         except Exception as exc:
             if self.team.size == 1:
                 raise
-            self.write_error = f"writing the task files failed: {type(exc).__name__}: {exc}"
+            self.write_error = f"writing the task files failed: {failure_message(exc)}"
 
     # -------------------------------------------------------------------------------------------- records
     def _extras(self, j: int, sim: Simulation) -> dict[str, Any]:
