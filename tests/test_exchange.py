@@ -286,6 +286,21 @@ def test_stop_resume_and_a_kill_between_file_rewrites_are_bit_identical(tmp_path
         assert ended == (["stopped", "done"] if i in (0, 2) else ["stopped", "stopped", "done"])
 
 
+def test_a_ladder_stopped_in_its_warm_up_resumes(tmp_path):
+    # no bins yet at the stop: the files hold an empty bin table (c48469a failed here on resuming)
+    config, unit = ladder_of(write_config(tmp_path, warmup=500, measure=1000, bins=10, every=5))
+    rows, walk, _ = reference(unit)
+    run_dir = tmp_path / "run"
+    out = run_until(unit, run_dir, len(unit) * 100, config.text)
+    assert {o.status for o in out} == {"stopped"} and 0 < out[0].steps_done < 500 and out[0].bins_done == 0
+    out = run_group(unit, run_dir, config_text=config.text)
+    assert {o.status for o in out} == {"done"}, out[0].message
+    for i, t in enumerate(unit):
+        table, d = stored(task_path(run_dir, t.task_id))
+        assert np.array_equal(table, rows[i]), t.task_id
+        assert list(np.asarray(d.exchange["walker"]).reshape(-1)) == walk[i]
+
+
 def test_a_missing_file_restarts_the_ladder(tmp_path):
     config, unit = ladder_of(write_config(tmp_path, measure=1000, bins=10))
     rows, _, _ = reference(unit)
