@@ -19,7 +19,8 @@ from qmc.config.parser import load_config
 from qmc.engine.rng import stream_seed
 from qmc.engine.slots import ACC_LAYOUT
 from qmc.errors import UserError
-from qmc.run.serial import StopFlag, run_task
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
 from qmc.storage.task_file import read_task
 
 KW = dict(warmup_steps=200, measure_steps=600, bins=6)

@@ -16,8 +16,9 @@ from click.testing import CliRunner
 from qmc.cli.main import cli
 from qmc.config.parser import load_config
 from qmc.config.templates import TEMPLATES
-from qmc.run.serial import StopFlag, run_task
-from qmc.storage.task_file import TASK_FORMAT, load_index, read_task, task_path
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.storage.task_file import load_index, read_task, task_path
 
 CONFIG = """
 [run]
@@ -184,7 +185,7 @@ def test_usage_errors_are_one_line(tmp_path):
 
 
 def test_task_failure_exit_code_and_message(tmp_path, monkeypatch):
-    import qmc.run.serial as runner
+    import qmc.run.single as runner
 
     def broken(task):
         raise RuntimeError("boom")
@@ -261,7 +262,7 @@ def test_inspect(done_run):
     for fragment in ("task           L6_J1_beta1_c0", "status         done", "bins           20 of 20 done",
                      "steps          1050 of 1050", "checkpoint", "numba_version", "git_revision",
                      "master_seed      5", "sessions (1)", "[sampling]", "L = 6",
-                     f"format         {TASK_FORMAT}, version"):
+                     "format         seriesloop/task, version"):
         assert fragment in out, fragment
 
 
@@ -328,7 +329,7 @@ def test_entry_point_in_a_subprocess(tmp_path):
                           timeout=120)
     assert proc.returncode == 2 and proc.stdout == ""
     assert proc.stderr.strip() == f"error: {path}: not an HDF5 file; a task file is written by 'qmc run' " \
-                                  f"(format {TASK_FORMAT})"
+                                  "(format seriesloop/task)"
 
 
 def test_serial_run_of_an_exchange_ladder(tmp_path):

@@ -1,4 +1,5 @@
-"""Replica exchange along a coupling (qmc.exchange.tasks): exact results, bookkeeping, files, resuming.
+"""Replica exchange along a coupling (qmc.exchange, qmc.run.ladder_run): exact results, bookkeeping, files,
+resuming.
 
 Physics: on the 4x4 J-Q2 model (J = 1, beta = 2) at four values of Q, the energy per site and m_stag2 with
 exchange agree with exact diagonalization (qmc/validation/exact, independent of the engine) within 4 error
@@ -24,15 +25,12 @@ from qmc.chain.simulation import Simulation
 from qmc.config.parser import build_model, load_config
 from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.exchange.tasks import (
-    GROUP_STATE_KEYS,
-    Ladder,
-    check_ladders,
-    exchange_summary,
-    run_group,
-    work_units,
-)
-from qmc.run.serial import StopFlag, run_task
+from qmc.exchange.ladder import GROUP_STATE_KEYS, Ladder, check_ladders
+from qmc.exchange.records import exchange_summary
+from qmc.run.ladder_run import run_group
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.run.units import work_units
 from qmc.storage.task_file import read_task, task_path
 
 JQ2 = """
@@ -287,6 +285,21 @@ def test_stop_resume_and_a_kill_between_file_rewrites_are_bit_identical(tmp_path
         assert list(np.asarray(d.exchange["walker"]).reshape(-1)) == walk[i]
         ended = [s["ended"] for s in d.provenance["sessions"]]
         assert ended == (["stopped", "done"] if i in (0, 2) else ["stopped", "stopped", "done"])
+
+
+def test_a_ladder_stopped_in_its_warm_up_resumes(tmp_path):
+    # no bins yet at the stop: the files hold an empty bin table (c48469a failed here on resuming)
+    config, unit = ladder_of(write_config(tmp_path, warmup=500, measure=1000, bins=10, every=5))
+    rows, walk, _ = reference(unit)
+    run_dir = tmp_path / "run"
+    out = run_until(unit, run_dir, len(unit) * 100, config.text)
+    assert {o.status for o in out} == {"stopped"} and 0 < out[0].steps_done < 500 and out[0].bins_done == 0
+    out = run_group(unit, run_dir, config_text=config.text)
+    assert {o.status for o in out} == {"done"}, out[0].message
+    for i, t in enumerate(unit):
+        table, d = stored(task_path(run_dir, t.task_id))
+        assert np.array_equal(table, rows[i]), t.task_id
+        assert list(np.asarray(d.exchange["walker"]).reshape(-1)) == walk[i]
 
 
 def test_a_missing_file_restarts_the_ladder(tmp_path):

@@ -22,10 +22,13 @@ import numpy as np
 import pytest
 
 from qmc.config.parser import load_config
-from qmc.exchange.tasks import Ladder, work_units
-from qmc.mpi.farm import launcher_rank_size, mpi_world
-from qmc.run.serial import StopFlag, run_task
-from qmc.storage.task_file import load_index, read_task, task_path
+from qmc.exchange.ladder import Ladder
+from qmc.mpi.world import launcher_rank_size, mpi_world
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.run.units import work_units
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path
 
 pytest.importorskip("mpi4py")
 

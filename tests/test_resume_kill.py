@@ -1,7 +1,7 @@
 """Crash safety of `qmc run` for real: a subprocess killed with SIGKILL at random moments and resumed
 gives bins bit-identical to an uninterrupted run; SIGTERM and --max-time stop cleanly with exit 0.
 
-The reference is the same task run in this process by :func:`qmc.run.serial.run_task` without interruption
+The reference is the same task run in this process by :func:`qmc.run.single.run_task` without interruption
 (same master seed, so the same random stream).  Delays are drawn from a seeded generator; what they hit
 (start-up, a chunk, a file write) varies with the machine, which is the point.
 """
@@ -20,8 +20,9 @@ import numpy as np
 import pytest
 
 from qmc.config.parser import load_config
-from qmc.run.serial import run_task
-from qmc.storage.task_file import load_index, read_task, task_path
+from qmc.run.single import run_task
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path
 
 # ~10 s of Monte Carlo work (L=8 at beta = 2: ~15 us/step on a 2026 machine), so that the
 # L=8 task always writes intermediate checkpoints (at most one write per second)

@@ -11,14 +11,20 @@ import numpy as np
 import pytest
 
 import qmc.run.pacing as pacing
-import qmc.run.serial as runner
+import qmc.run.single as single
+import qmc.run.task_book as task_book
 from qmc.chain.simulation import Simulation
 from qmc.config.parser import load_config
 from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
+from qmc.run.outcome import StopFlag
+from qmc.run.plan import prepare_run
 from qmc.run.progress import Progress, format_duration
-from qmc.run.serial import StopFlag, prepare_run, run_serial, run_task, task_fingerprint
-from qmc.storage.task_file import load_index, read_task, task_path, write_task
+from qmc.run.serial import run_serial
+from qmc.run.single import run_task
+from qmc.run.task_identity import task_fingerprint
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path, write_task
 
 CONFIG = """
 [run]
@@ -138,26 +144,26 @@ def test_writes_are_throttled(tmp_path, monkeypatch):
     cfg = load_config(config_file(tmp_path, measure=40000))
     task = cfg.tasks()[0]
     calls = []
-    real = runner.write_task
-    monkeypatch.setattr(runner, "write_task", lambda p, rec: (calls.append(rec.status), real(p, rec)))
+    real = task_book.write_task
+    monkeypatch.setattr(task_book, "write_task", lambda p, rec: (calls.append(rec.status), real(p, rec)))
     t0 = time.monotonic()
     run_task(task, tmp_path / "run", checkpoint_seconds=0.001)
     elapsed = time.monotonic() - t0
     # first file + at most one per second + the final one, although a bin completes every few ms
     assert calls[0] == "running" and calls[-1] == "done"
-    assert len(calls) <= 2 + int(elapsed / runner.MIN_WRITE_INTERVAL) + 1
+    assert len(calls) <= 2 + int(elapsed / pacing.MIN_WRITE_INTERVAL) + 1
 
 
 def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
     cfg = load_config(config_file(tmp_path, sizes="[4, 6]"))
-    real = runner.build_model
+    real = single.build_model
 
     def broken(task):
         if task.params["L"] == 6:
             raise RuntimeError("simulated crash")
         return real(task)
 
-    monkeypatch.setattr(runner, "build_model", broken)
+    monkeypatch.setattr(single, "build_model", broken)
     plan = prepare_run(cfg)
     report = run_serial(plan)
     assert [o.status for o in report.outcomes] == ["failed", "done"]  # largest first
@@ -166,7 +172,7 @@ def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
     entry = index["tasks"]["L6_J1_beta1.5_c0"]
     assert entry["status"] == "failed" and "RuntimeError: simulated crash" in entry["message"]
     assert index["tasks"]["L4_J1_beta1.5_c0"]["status"] == "done"
-    monkeypatch.setattr(runner, "build_model", real)
+    monkeypatch.setattr(single, "build_model", real)
     plan = prepare_run(cfg)  # rerun: only the failed task
     assert [t.task_id for t in plan.tasks] == ["L6_J1_beta1.5_c0"] and plan.done == ["L4_J1_beta1.5_c0"]
     report = run_serial(plan)

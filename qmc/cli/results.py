@@ -29,7 +29,7 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
     from qmc.analysis import group_copies, summarize_task
     from qmc.analysis.tables import to_jsonable
     from qmc.cli.text import summary_table
-    from qmc.exchange.tasks import exchange_summary
+    from qmc.exchange.records import exchange_summary
     from qmc.storage.task_file import read_run
 
     tasks = read_run(run_dir)

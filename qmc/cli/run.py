@@ -80,8 +80,8 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
     rank 0 hands out tasks (largest first) and computes too, and a replica-exchange ladder runs its
     chains side by side on up to [exchange] max_ranks ranks.  Results do not depend on K.
     """
-    from qmc.mpi.farm import mpi_world
-    from qmc.run.serial import StopFlag
+    from qmc.mpi.world import mpi_world
+    from qmc.run.outcome import StopFlag
 
     t_start = time.time()
     world = mpi_world()  # before the signal handlers, so that MPI start-up cannot replace them
@@ -106,8 +106,10 @@ def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool
               max_time: float | None, t_start: float, flag: Any, world: Any) -> int:
     """Serial run, or rank 0 of an MPI run; returns the exit status."""
     from qmc.config.parser import load_config
+    from qmc.run.plan import prepare_run
     from qmc.run.progress import NullProgress, Progress
-    from qmc.run.serial import prepare_run, run_serial, task_weight
+    from qmc.run.serial import run_serial
+    from qmc.run.task_identity import task_weight
 
     try:
         cfg = load_config(config)

@@ -10,8 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from qmc.exchange.tasks import exchange_summary
-from qmc.storage.task_file import FORMAT_VERSION, TASK_FORMAT
+from qmc.exchange.records import exchange_summary
 
 __all__ = ["fmt", "params_text", "summary_table", "exchange_text", "inspect_text"]
 
@@ -59,7 +58,7 @@ def exchange_text(x: dict[str, Any]) -> str:
 
 def inspect_text(d: Any) -> str:
     rows: list[tuple[str, str]] = [
-        ("file", d.path), ("format", f"{TASK_FORMAT}, version {FORMAT_VERSION}"), ("task", d.task_id),
+        ("file", d.path), ("format", f"{d.file_format}, version {d.format_version}"), ("task", d.task_id),
         ("status", d.status),
     ]
     if d.message:

@@ -27,7 +27,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 
@@ -35,12 +34,13 @@ from qmc.chain.simulation import Simulation
 from qmc.config.parser import Task, build_model
 from qmc.engine.rng import draw_doubles, stream_seed
 from qmc.errors import UserError
+from qmc.exchange.meeting import LadderError, Vote, meet, trade_configuration
 from qmc.exchange.rule import group_couplings, swap_log_ratio
 from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "chain_costs", "exchange_seed_key",
-           "GROUP_STATE_KEYS"]
+__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "check_ladders", "chain_costs",
+           "exchange_seed_key", "GROUP_STATE_KEYS"]
 
 GROUP_STATE_KEYS = ("rng", "labels", "direction", "round_trips", "attempted", "accepted",
                     "warmup_attempted", "warmup_accepted", "n_up", "n_down")
@@ -106,15 +106,21 @@ def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) 
     return np.array(out, dtype=np.float64)
 
 
+def check_ladders(tasks: Sequence[Task]) -> int:
+    """Check every exchange ladder among ``tasks`` (same terms at every point, uniform group couplings)
+    before anything runs; raises UserError.  Returns the number of ladders."""
+    groups: dict[str, list[Task]] = {}
+    for t in tasks:
+        if t.exchange_group is not None:
+            groups.setdefault(t.exchange_group, []).append(t)
+    for members in groups.values():
+        ordered = ladder_tasks(members)
+        check_ladder_models(ordered, [build_model(t) for t in ordered])
+    return len(groups)
+
+
 # ----------------------------------------------------------------------------------------------------------
 # the ladder in memory
-
-
-_ROW_HEAD = 5  # error, stop, vote error, write, cutoff; then operator counts per position and group
-
-
-class LadderError(RuntimeError):
-    """A chain of the ladder failed on some team member; raised on every member at the same step."""
 
 
 class Ladder:
@@ -129,11 +135,11 @@ class Ladder:
     :attr:`walker_rows` collects, per local chain, the configuration label at that chain when each of
     those bins closed.
 
-    Synchronisation points are the end of the warm-up and every exchange point; there the members share
-    their :attr:`vote` (set by the caller before :meth:`advance`: a dict with ``stop`` (a reason, "" for
-    none), ``error`` (a message or None) and ``write`` (bool)), and afterwards :attr:`votes` holds every
-    member's vote and :attr:`voted_at` the step.  A chain that raises makes
-    every member raise :class:`LadderError` at the next synchronisation point.
+    Synchronisation points are the end of the warm-up and every exchange point; there the members meet
+    (:func:`qmc.exchange.meeting.meet`) and share their :attr:`vote` (a :class:`~qmc.exchange.meeting.Vote`
+    set by the caller before :meth:`advance`); afterwards :attr:`votes` holds every member's vote and
+    :attr:`voted_at` the step.  A chain that raises makes every member raise :class:`LadderError` at the
+    next synchronisation point.
     """
 
     def __init__(self, tasks: Sequence[Task], models: Sequence[CompiledModel] | None = None, *,
@@ -185,8 +191,8 @@ class Ladder:
             self.state = self._check_state(group_state)
         self.walker_rows: list[list[int]] = [[] for _ in self.local]
         self._n_groups = len(self.sims[self.local.start].group_op_counts())
-        self.vote: Any = None
-        self.votes: list[Any] = []
+        self.vote: Vote | None = None
+        self.votes: list[Vote] = []
         self.voted_at = -1
         self._padded = False
 
@@ -271,39 +277,19 @@ class Ladder:
                 for i, r in zip(self.local, rows, strict=True)]
 
     def _sync(self, s: int, error: str | None) -> None:
-        """Meet the other members at step ``s``: share errors, votes, cutoffs and operator counts; pad
-        the cutoffs at the end of the warm-up; run the swap round of an exchange point.
-
-        The numbers travel in one fixed-size int64 row per member (:meth:`LadderTeam.allgather_array`:
-        flags error / stop / error-in-vote / write, the largest local cutoff, then the operator counts of
-        every position, zero where not local); texts (error messages, stop reasons) follow in a second,
-        pickled exchange only when some member raised a flag, which is rare."""
-        vote = self.vote if isinstance(self.vote, dict) else {}
-        n_groups = self._n_groups
-        row = np.zeros(_ROW_HEAD + self.m * n_groups, dtype=np.int64)
-        row[0] = error is not None
-        row[1] = bool(vote.get("stop"))
-        row[2] = bool(vote.get("error"))
-        row[3] = bool(vote.get("write"))
-        row[4] = max(sim.cutoff for sim in self.local_sims)
+        """Meet the other members at step ``s`` (:func:`qmc.exchange.meeting.meet`); pad the cutoffs at the
+        end of the warm-up; run the swap round of an exchange point."""
+        counts = np.zeros((self.m, self._n_groups), dtype=np.int64)
         if error is None:
             for i in self.local:
-                row[_ROW_HEAD + i * n_groups:_ROW_HEAD + (i + 1) * n_groups] = self.sims[i].group_op_counts()
-        got = self.team.allgather_array(row)
-        if got[:, 0:3].any():  # some member has something to say in words
-            texts = self.team.allgather((error, self.vote))
-            errors = [e for e, _ in texts if e is not None]
-            if errors:
-                raise LadderError(errors[0])
-            self.votes = [v for _, v in texts]
-        else:
-            self.votes = [{"stop": "", "error": None, "write": bool(r[3])} for r in got]
-        self.voted_at = s
+                counts[i] = self.sims[i].group_op_counts()
+        cutoff = max(sim.cutoff for sim in self.local_sims)
+        got = meet(self.team, error, self.vote, cutoff, counts)
+        self.votes, self.voted_at = got.votes, s
         if s == self.warmup_steps:
-            self._pad_cutoffs(int(got[:, 4].max()))
+            self._pad_cutoffs(got.top_cutoff)
         if s % self.every == 0 and 0 < s < self.total_steps:
-            counts = got[:, _ROW_HEAD:].sum(axis=0).reshape(self.m, n_groups)
-            self._swap_round(s, {i: counts[i] for i in range(self.m)})
+            self._swap_round(s, got.counts)
             self._walk(count=s >= self.warmup_steps)
 
     def _pad_cutoffs(self, top: int) -> None:
@@ -314,10 +300,10 @@ class Ladder:
                 conf["ops"] = np.concatenate([conf["ops"], np.full(top - sim.cutoff, -1, dtype=np.int32)])
                 sim.set_configuration(conf)
 
-    def _swap_round(self, s: int, counts: dict[int, np.ndarray]) -> None:
-        """Decide every pair of this round (identically on all members: same counts, same stream), then
-        move the configurations of the accepted pairs (across members with :meth:`LadderTeam.sendrecv`,
-        pairs in increasing order)."""
+    def _swap_round(self, s: int, counts: np.ndarray) -> None:
+        """Decide every pair of this round (identically on all members: same counts int64[M, G], same
+        stream), then move the configurations of the accepted pairs (across members with
+        :func:`qmc.exchange.meeting.trade_configuration`, pairs in increasing order)."""
         st = self.state
         measuring = s >= self.warmup_steps
         tried = st["attempted"] if measuring else st["warmup_attempted"]
@@ -339,9 +325,9 @@ class Ladder:
                 a.set_configuration(conf_b)
                 b.set_configuration(conf_a)
             elif a is not None:
-                a.set_configuration(self.team.sendrecv(a.configuration(), self.owner[i + 1]))
+                a.set_configuration(trade_configuration(self.team, a.configuration(), self.owner[i + 1]))
             elif b is not None:
-                b.set_configuration(self.team.sendrecv(b.configuration(), self.owner[i]))
+                b.set_configuration(trade_configuration(self.team, b.configuration(), self.owner[i]))
 
     def _walk(self, count: bool) -> None:
         st = self.state

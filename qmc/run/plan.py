@@ -3,7 +3,7 @@
 :func:`prepare_run` checks a configuration against a run directory (refusing a directory that holds a
 different configuration unless forced, in which case the old index and the task files of changed tasks are
 renamed aside, never deleted), writes ``config.toml`` and ``index.json``, and lists the unfinished tasks,
-largest lattices first.  Running them is :func:`qmc.run.serial.run_serial` or :mod:`qmc.mpi.farm`.
+largest lattices first.  Running them is :func:`qmc.run.serial.run_serial` or :mod:`qmc.mpi`.
 """
 
 from __future__ import annotations
@@ -17,15 +17,11 @@ from typing import Any
 
 from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
+from qmc.exchange.ladder import check_ladders
 from qmc.run.task_identity import steps_total, task_fingerprint
-from qmc.storage.task_file import (
-    atomic_write_text,
-    load_index,
-    new_index,
-    task_header,
-    task_path,
-    write_index,
-)
+from qmc.storage.atomic import atomic_write_text
+from qmc.storage.run_index import load_index, new_index, write_index
+from qmc.storage.task_file import task_header, task_path
 
 __all__ = ["RunPlan", "prepare_run"]
 
@@ -41,6 +37,11 @@ class RunPlan:
     done: list[str]
     index: dict[str, Any]
     moved: list[str] = field(default_factory=list)
+
+    def unfinished(self) -> list[str]:
+        """The selected tasks (to run, or done before) whose index entry is not ``done``."""
+        selected = [t.task_id for t in self.tasks] + self.done
+        return [tid for tid in selected if self.index["tasks"][tid]["status"] != "done"]
 
 
 def _stamp() -> str:
@@ -146,10 +147,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
         raise UserError(f"{run_dir / 'tasks'} exists and is not a directory", where)
     selected = _select(config, only)
     validate(config)
-    if any(t.exchange_group is not None for t in config.tasks()):
-        from qmc.exchange.tasks import check_ladders
-
-        check_ladders(config.tasks())
+    check_ladders(config.tasks())
     fp = config_fingerprint(config)
 
     # checks first (nothing is changed when one fails) ...

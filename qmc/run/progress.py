@@ -25,7 +25,7 @@ __all__ = ["ProgressSink", "NullProgress", "LineDisplay", "Progress", "format_du
 
 
 class ProgressSink(Protocol):
-    """What :func:`qmc.run.serial.run_task` reports to."""
+    """What a running task reports to (:mod:`qmc.run.task_run`)."""
 
     def task_started(self, task_id: str, steps_done: int, steps_total: int, bins_total: int) -> None: ...
 

@@ -1,7 +1,7 @@
 """Identity and cost of a task: the fingerprint of its Markov chain, its relative weight, its step count.
 
-Shared by the runner (:mod:`qmc.run.serial`), the run planning (:mod:`qmc.run.plan`), replica exchange
-(:mod:`qmc.exchange.tasks`) and the MPI farm, so that none of them has to import another for these.
+Shared by the task files (:mod:`qmc.run.task_book`), the run planning (:mod:`qmc.run.plan`) and the MPI
+farm's queue (:mod:`qmc.mpi.schedule`).
 """
 
 from __future__ import annotations

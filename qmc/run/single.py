@@ -1,0 +1,110 @@
+"""One task on its own: :func:`run_task`, the unit of work of every run without replica exchange.
+
+It builds the task's model, resumes from the task file's checkpoint if there is one (keeping its first
+``bins_done`` bins), and advances the chain along the shared path of :mod:`qmc.run.task_run`: every chunk
+boundary is a decision point, and chunks are shortened near a deadline.  It never touches the run index,
+so an MPI task farm may call it for different tasks on different ranks and let one rank update the index
+from the returned :class:`~qmc.run.outcome.TaskOutcome`.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+from collections.abc import Sequence
+
+import numpy as np
+
+from qmc.chain.simulation import Simulation
+from qmc.config.parser import Task, build_model
+from qmc.run.outcome import StopSignal, TaskOutcome
+from qmc.run.pacing import Pacer
+from qmc.run.progress import ProgressSink
+from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
+
+__all__ = ["SingleRun", "run_task"]
+
+
+class SingleRun(TaskRun):
+    """One chain with its task file."""
+
+    def __init__(self, task: Task, ctx: RunContext) -> None:
+        super().__init__([task], [build_model(task)], ctx)
+        self.task = task
+        self.label = f"task {task.task_id}"
+        self.sim: Simulation | None = None
+
+    def _load(self) -> bool:
+        task, s, book, model = self.task, self.task.sampling, self.books[0], self.models[0]
+        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
+        data = book.read()
+        log = self.ctx.log
+        if data is not None:
+            if data.status == "done":
+                return False
+            sim = Simulation.restore(model, task.beta, state=data.checkpoint, **kw)
+            book.resume(data, sim)
+            self.fresh = False
+            log.info("task %s: resuming at step %d of %d (%d of %d bins)", task.task_id, sim.steps_done,
+                     sim.total_steps, sim.bins_done, s.bins)
+        else:
+            sim = Simulation(model, task.beta, seed_words=book.seed_words, **kw)
+            log.info("task %s: starting (%d sites, beta %g, %d steps)", task.task_id, model.n_sites,
+                     task.beta, sim.total_steps)
+        self.sim = sim
+        book.begin_session(sim.steps_done)
+        return True
+
+    def _chains(self) -> list[Simulation]:
+        assert self.sim is not None
+        return [self.sim]
+
+    @property
+    def steps_done(self) -> int:
+        return self._chains()[0].steps_done
+
+    @property
+    def total_steps(self) -> int:
+        return self._chains()[0].total_steps
+
+    def done_text(self) -> str:
+        return f"{self._chains()[0].bins_done} bins"
+
+    def _decision(self) -> Decision:
+        """Every chunk boundary: stop now if asked or out of time, else write when due."""
+        return Decision(self.local_stop(0.0), self.write_is_due())
+
+    def _chunk(self, pacer: Pacer) -> int:
+        """The pacer's chunk, shortened so that it ends before the deadline."""
+        left = self.seconds_left()
+        if left is None or pacer.step_seconds <= 0:
+            return pacer.chunk
+        return max(1, min(pacer.chunk, int(left / pacer.step_seconds)))
+
+    def _advance(self, n: int) -> list[Sequence[np.ndarray]]:
+        return [self._chains()[0].advance(n)]
+
+
+def run_task(
+    task: Task,
+    run_dir: str | os.PathLike,
+    *,
+    stop_flag: StopSignal | None = None,
+    progress: ProgressSink | None = None,
+    logger: logging.Logger | None = None,
+    deadline: float | None = None,
+    config_text: str | None = None,
+    config_fingerprint: str = "",
+    checkpoint_seconds: float | None = None,
+) -> TaskOutcome:
+    """Run (or resume) one task until it is done, ``stop_flag.is_set()``, or ``time.time() >= deadline``.
+
+    The task file is ``RUN_DIR/tasks/<task_id>.h5`` (the ``tasks`` folder is created if needed).
+    ``config_text`` is stored in the file; by default it is read from ``RUN_DIR/config.toml`` (or the task's
+    source file).  ``checkpoint_seconds`` defaults to ``task.sampling.checkpoint_seconds``.  Never raises
+    for a problem of the task itself: that is returned as status ``failed``.
+    """
+    ctx = RunContext.of(run_dir, stop_flag=stop_flag, progress=progress, logger=logger, deadline=deadline,
+                        config_text=config_text, config_fingerprint=config_fingerprint,
+                        checkpoint_seconds=checkpoint_seconds)
+    return run_guarded(f"task {task.task_id}", lambda: SingleRun(task, ctx), lambda: [task], ctx)[0]
