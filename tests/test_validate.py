@@ -18,6 +18,7 @@ import sys
 import numpy as np
 import pytest
 
+from qmc.analysis.powerfit import fit_powers
 from qmc.errors import UserError
 from qmc.validation import references as refs
 from qmc.validation.cases import Case, build_cases, chain_energy_case, cluster_case
@@ -31,7 +32,6 @@ from qmc.validation.exact import (
     cluster_observables,
     stiffness_by_twist,
 )
-from qmc.validation.fits import fit_powers
 from qmc.validation.jobs import ExactJob
 from qmc.validation.progress import SuiteProgress
 from qmc.validation.runner import collect_jobs, run_cases

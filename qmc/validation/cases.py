@@ -28,13 +28,13 @@ from typing import Any
 import numpy as np
 
 from qmc.analysis import derived_estimates, error_estimate, find_crossing
+from qmc.analysis.powerfit import drop_smallest_shift, fit_powers
 from qmc.errors import UserError
 from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
 from .checks import Check
 from .exact.bethe import chain_ground_state_energy
 from .exact.clusters import cluster_observables
-from .fits import fit_powers
 from .jobs import ExactJob, Job, ModelSpec, SimJob, SimResult
 from .references import (
     BETHE_SOURCE,
@@ -230,10 +230,8 @@ def _extrapolate(sizes: Sequence[int], y: Sequence[float], dy: Sequence[float],
     of the limit when the smallest size is left out (stability against the neglected higher-order
     corrections, common practice, no source); 0 when too few sizes remain for a fit with dof >= 1."""
     fit = fit_powers(sizes, y, dy, powers)
-    sys = 0.0
-    if len(sizes) - 1 >= len(powers) + 2:
-        sys = abs(fit_powers(sizes[1:], y[1:], dy[1:], powers).limit - fit.limit)
-    return fit.limit, fit.limit_err, sys
+    shift = drop_smallest_shift(sizes, y, dy, powers, full=fit)
+    return fit.limit, fit.limit_err, abs(shift) if math.isfinite(shift) else 0.0
 
 
 def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measure: int = 40_000,
