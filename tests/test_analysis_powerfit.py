@@ -69,11 +69,30 @@ def test_error_of_the_limit_matches_the_spread_over_noisy_data_sets():
     assert 0.63 < np.mean(pulls < 1.0) < 0.73
 
 
+def test_error_of_the_shift_matches_its_spread_over_noisy_data_sets():
+    """var(c_0 without the smallest L - c_0 of all) = var(reduced) - var(full) for nested fits: checked
+    against 2000 noisy data sets (4-sigma tolerance 7 %, as above); the mean shift is zero when the
+    fitted form is exact."""
+    rng = np.random.default_rng(77)
+    dy = 2e-4 * (L / 8.0) ** -0.5
+    exact = -0.67 + 0.5 / L**3 - 2.0 / L**4
+    shifts, errs = [], []
+    for _ in range(2000):
+        y = exact + dy * rng.standard_normal(L.size)
+        s = drop_smallest_shift(L, y, dy, (3, 4))
+        shifts.append(s.value)
+        errs.append(s.error)
+    sigma = errs[0]
+    assert np.allclose(errs, sigma, rtol=1e-6) and sigma > 0
+    assert np.std(shifts, ddof=1) == pytest.approx(sigma, rel=0.07)
+    assert abs(np.mean(shifts)) < 4 * sigma / np.sqrt(2000)
+
+
 def test_exact_data_are_reproduced_and_the_shift_is_zero():
     y = 0.3 - 0.8 / L**2 + 3.0 / L**3
     fit = fit_powers(L, y, np.full(L.size, 1e-4), (2, 3))
     assert fit.limit == pytest.approx(0.3, abs=1e-12) and fit.chi2 < 1e-16
-    assert drop_smallest_shift(L, y, np.full(L.size, 1e-4), (2, 3)) == pytest.approx(0.0, abs=1e-12)
+    assert drop_smallest_shift(L, y, np.full(L.size, 1e-4), (2, 3)).value == pytest.approx(0.0, abs=1e-12)
 
 
 def test_drop_smallest_shift_measures_an_unfitted_correction():
@@ -82,7 +101,7 @@ def test_drop_smallest_shift_measures_an_unfitted_correction():
     y = 0.0945 + 0.2 / L - 0.3 / L**2 + 4.0 / L**3
     dy = np.full(L.size, 1e-5)
     order = np.array([3, 0, 6, 1, 5, 2, 4])
-    shift = drop_smallest_shift(L[order], y[order], dy[order], (1, 2))
+    shift = drop_smallest_shift(L[order], y[order], dy[order], (1, 2)).value
     full = np.polyfit(1.0 / L, y, 2, w=1.0 / dy)[-1]
     reduced = np.polyfit(1.0 / L[1:], y[1:], 2, w=1.0 / dy[1:])[-1]
     assert shift == pytest.approx(reduced - full, rel=1e-8)
@@ -94,8 +113,8 @@ def test_drop_smallest_shift_measures_an_unfitted_correction():
 def test_shift_needs_a_degree_of_freedom_after_dropping():
     y = 1.0 + 1.0 / L[:4]
     dy = np.full(4, 1e-3)
-    assert np.isnan(drop_smallest_shift(L[:4], y, dy, (1, 2)))  # 3 points left for 3 parameters
-    assert np.isfinite(drop_smallest_shift(L[:5], 1.0 + 1.0 / L[:5], np.full(5, 1e-3), (1, 2)))
+    assert np.all(np.isnan(drop_smallest_shift(L[:4], y, dy, (1, 2))))  # 3 points left for 3 parameters
+    assert np.all(np.isfinite(drop_smallest_shift(L[:5], 1.0 + 1.0 / L[:5], np.full(5, 1e-3), (1, 2))))
 
 
 @pytest.mark.parametrize("args, fragment", [

@@ -13,7 +13,12 @@ used unscaled.
 
 :func:`drop_smallest_shift` is the stability measure read before trusting such a fit: the change of c_0 when
 the smallest size is left out (the neglected higher-order corrections are largest there; common practice,
-no source).
+no source).  Its statistical error: the full fit is the efficient estimator and the reduced one is nested in
+it, so var(c_0,reduced - c_0,full) = var(c_0,reduced) - var(c_0,full) (the Hausman relation of nested
+least-squares estimators, from memory; the test checks it against the spread over noisy data sets).  Both
+variances are the unscaled ones implied by the error bars of the data: the error answers "is the change
+beyond the statistical noise?", and a poor chi^2 (caused, e.g., by the smallest size itself) does not
+dilute it.
 
 This is the one linear least-squares fit of the package: ``qmc analyze --extrapolate``
 (:mod:`qmc.analysis.size_extrapolation`), the fixed-exponent branch of :mod:`qmc.analysis.extrapolate` and
@@ -24,10 +29,15 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
-__all__ = ["PowerFit", "drop_smallest_shift", "fit_powers"]
+__all__ = ["PowerFit", "Shift", "drop_smallest_shift", "fit_powers"]
+
+
+def _inflation(chi2: float, dof: int) -> float:
+    return max(1.0, chi2 / dof) if dof > 0 else 1.0
 
 
 @dataclass(frozen=True)
@@ -50,6 +60,11 @@ class PowerFit:
     def limit_err(self) -> float:
         """One standard deviation of c_0."""
         return float(self.errors[0])
+
+    @property
+    def inflation(self) -> float:
+        """The factor max(1, chi^2/dof) applied to the variances (1 for an exact fit)."""
+        return _inflation(self.chi2, self.dof)
 
     @property
     def chi2_dof(self) -> float:
@@ -91,20 +106,28 @@ def fit_powers(L: Sequence[float], y: Sequence[float], dy: Sequence[float],
     cov = (Vt.T / s**2) @ Vt / np.outer(scale, scale)
     chi2 = float(np.sum((A @ coef - b) ** 2))
     dof = int(L_.size - n_par)
-    inflate = max(1.0, chi2 / dof) if dof > 0 else 1.0
-    return PowerFit(coef, np.sqrt(np.diag(cov) * inflate), powers, chi2, dof)
+    return PowerFit(coef, np.sqrt(np.diag(cov) * _inflation(chi2, dof)), powers, chi2, dof)
+
+
+class Shift(NamedTuple):
+    """Change of c_0 when the smallest size is dropped, and its statistical error (NaN when undefined)."""
+
+    value: float
+    error: float
 
 
 def drop_smallest_shift(L: Sequence[float], y: Sequence[float], dy: Sequence[float],
-                        powers: Sequence[float], full: PowerFit | None = None) -> float:
-    """c_0(fit without the smallest L) - c_0(fit of all points), signed.
+                        powers: Sequence[float], full: PowerFit | None = None) -> Shift:
+    """c_0(fit without the smallest L) - c_0(fit of all points), signed, with its error (module docstring).
 
     NaN when fewer than ``len(powers) + 2`` points remain after dropping (the reduced fit must keep at
     least one degree of freedom to mean anything).  ``full``: the fit of all points, if already done.
     """
     L_, y_, e_ = (np.asarray(a, dtype=float).ravel() for a in (L, y, dy))
     if L_.size - 1 < len(powers) + 2:
-        return float("nan")
+        return Shift(float("nan"), float("nan"))
     keep = np.argsort(L_, kind="stable")[1:]
     full = full if full is not None else fit_powers(L_, y_, e_, powers)
-    return fit_powers(L_[keep], y_[keep], e_[keep], powers).limit - full.limit
+    reduced = fit_powers(L_[keep], y_[keep], e_[keep], powers)
+    var = reduced.limit_err**2 / reduced.inflation - full.limit_err**2 / full.inflation
+    return Shift(reduced.limit - full.limit, float(np.sqrt(max(var, 0.0))))

@@ -212,6 +212,9 @@ def analyze_run(
     None.  Raises :class:`~qmc.analysis.errors.AnalysisError` for unusable input.
     """
     task_list = list(tasks)
+    for option, value in (("--powers", powers), ("--min-L", min_L)):
+        if value is not None and not extrapolate:
+            raise AnalysisError("only used with --extrapolate OBS", option)
     if not task_list:
         raise AnalysisError("the run holds no tasks", "analysis")
     out = Path(out_dir)

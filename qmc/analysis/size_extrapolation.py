@@ -6,8 +6,10 @@ or jackknife errors of :mod:`qmc.analysis.summary`; copies of a task already mer
     y(L) = c_0 + sum_k c_k L^(-p_k)          (weights 1/dy^2, :func:`qmc.analysis.powerfit.fit_powers`)
 
 and c_0 +- its error is reported with chi^2/dof, the number of sizes, and the stability column
-``drop_smallest_shift`` = c_0(without the smallest L) - c_0(all sizes) (null when that reduced fit would
-keep no degree of freedom).  ``min_L`` leaves out the sizes below it.
+``drop_smallest_shift`` = c_0(without the smallest L) - c_0(all sizes) with its statistical error
+``drop_smallest_shift_err`` (:func:`qmc.analysis.powerfit.drop_smallest_shift`; both null when the reduced
+fit would keep no degree of freedom).  A shift beyond two of its errors means the smallest size does not
+follow the fitted form.  ``min_L`` leaves out the sizes below it.
 
 The other scan parameters are all task parameters except the size, beta and the copy index
 (:data:`qmc.analysis.scan.NOT_COUPLINGS`) and except parameters that follow the size one to one.  Beta:
@@ -128,6 +130,7 @@ class SizeExtrapolation:
     chi2_dof: float
     n_sizes: int
     drop_smallest_shift: float
+    drop_smallest_shift_err: float
     sizes: tuple[float, ...]
     betas: tuple[float, ...]
     values: tuple[float, ...]
@@ -211,14 +214,16 @@ def _fit_one(observable: str, params: dict, by_size: dict[float, dict], powers: 
     elif fit.chi2_dof > 3.0:
         warnings.append(f"{where}: poor fit (chi2/dof = {fit.chi2_dof:.3g}): a correction is missing or the "
                         "smallest sizes are not yet asymptotic; try --min-L or --powers")
-    if math.isfinite(shift) and abs(shift) > 2.0 * fit.limit_err:
-        warnings.append(f"{where}: dropping the smallest size moves the limit by {shift:.3g}, more than "
-                        f"twice its error {fit.limit_err:.2g}: the fit is not stable")
+    if math.isfinite(shift.value) and shift.error > 0 and abs(shift.value) > 2.0 * shift.error:
+        warnings.append(f"{where}: dropping the smallest size moves the limit by {shift.value:.3g} +- "
+                        f"{shift.error:.2g} (more than 2 sigma): L = {min(L):g} does not follow the fitted "
+                        "form; try --min-L or --powers")
     return SizeExtrapolation(
-        observable, params, fit.limit, fit.limit_err, powers, origin, fit.chi2_dof, len(L), shift,
-        tuple(L), tuple(betas), tuple(y), tuple(dy), tuple(fit.coef.tolist()), tuple(fit.errors.tolist()),
-        _full_vector(fit.limit, fit.limit_err, shift) if full_vector and observable == FULL_VECTOR_OBSERVABLE
-        else None)
+        observable, params, fit.limit, fit.limit_err, powers, origin, fit.chi2_dof, len(L), shift.value,
+        shift.error, tuple(L), tuple(betas), tuple(y), tuple(dy), tuple(fit.coef.tolist()),
+        tuple(fit.errors.tolist()),
+        _full_vector(fit.limit, fit.limit_err, shift.value)
+        if full_vector and observable == FULL_VECTOR_OBSERVABLE else None)
 
 
 def extrapolate_sizes(points: Sequence[dict], observables: Sequence[str],
@@ -279,7 +284,7 @@ def extrapolation_table(records: Sequence[SizeExtrapolation]) -> tuple[list[str]
     ``m_s`` = sqrt(3 c_0) (full-vector staggered magnetisation) appear when an ``m_stag2`` fit is present."""
     pnames = list(dict.fromkeys(k for r in records for k in r.params))
     cols = ["observable", *pnames, "limit", "limit_err", "chi2_dof", "n_sizes", "L_min", "L_max", "powers",
-            "drop_smallest_shift"]
+            "drop_smallest_shift", "drop_smallest_shift_err"]
     full = any(r.full_vector for r in records)
     if full:
         cols += ["m_s2_full", "m_s2_full_err", "m_s", "m_s_err", "m_s_drop_smallest_shift"]
@@ -289,7 +294,8 @@ def extrapolation_table(records: Sequence[SizeExtrapolation]) -> tuple[list[str]
                                "limit_err": r.limit_err, "chi2_dof": r.chi2_dof, "n_sizes": r.n_sizes,
                                "L_min": min(r.sizes), "L_max": max(r.sizes),
                                "powers": " ".join(f"{p:g}" for p in r.powers),
-                               "drop_smallest_shift": r.drop_smallest_shift}
+                               "drop_smallest_shift": r.drop_smallest_shift,
+                               "drop_smallest_shift_err": r.drop_smallest_shift_err}
         if r.full_vector:
             fv = r.full_vector
             row.update({"m_s2_full": fv["m_s2"], "m_s2_full_err": fv["m_s2_err"], "m_s": fv["m_s"],
@@ -312,14 +318,14 @@ def format_extrapolations(records: Sequence[dict]) -> list[str]:
              "shift = change of c_0 when the smallest L is dropped"]
     for r in records:
         chi = r.get("chi2_dof")
-        shift = r.get("drop_smallest_shift")
+        shift, shift_err = r.get("drop_smallest_shift"), r.get("drop_smallest_shift_err")
         at = f" [{_params_text(r['params'])}]" if r["params"] else ""
         lines.append(f"  {r['observable']}{at}: "
                      f"c_0 = {_pm(r['limit'], r['limit_err'])}"
                      f"  chi2/dof = {'n/a' if chi is None else f'{chi:.3g}'}"
                      f"  sizes = {r['n_sizes']} (L = {min(r['sizes']):g}..{max(r['sizes']):g})"
                      f"  powers = {_powers_text(r['powers'])}"
-                     f"  shift = {'n/a' if shift is None else f'{shift:+.2g}'}")
+                     f"  shift = {'n/a' if shift is None else f'{shift:+.2g} +- {shift_err:.2g}'}")
         fv = r.get("full_vector")
         if fv:
             lines.append(f"    full-vector staggered magnetisation (SU(2) symmetry): m_s^2 = 3 c_0 = "

@@ -230,7 +230,7 @@ def _extrapolate(sizes: Sequence[int], y: Sequence[float], dy: Sequence[float],
     of the limit when the smallest size is left out (stability against the neglected higher-order
     corrections, common practice, no source); 0 when too few sizes remain for a fit with dof >= 1."""
     fit = fit_powers(sizes, y, dy, powers)
-    shift = drop_smallest_shift(sizes, y, dy, powers, full=fit)
+    shift = drop_smallest_shift(sizes, y, dy, powers, full=fit).value
     return fit.limit, fit.limit_err, abs(shift) if math.isfinite(shift) else 0.0
 
 
