@@ -58,6 +58,7 @@ __all__ = [
     "extrapolate_sizes",
     "extrapolation_table",
     "format_extrapolations",
+    "full_vector_magnetisation",
     "lattice_dimension",
     "parse_powers",
 ]
@@ -178,7 +179,9 @@ def _scan_groups(points: Sequence[dict], warnings: list[str]) -> list[tuple[dict
     return out
 
 
-def _full_vector(limit: float, err: float, shift: float) -> dict[str, float]:
+def full_vector_magnetisation(limit: float, err: float, shift: float = float("nan")) -> dict[str, float]:
+    """m_s^2 = 3 c_0, m_s = sqrt(3 c_0) (NaN unless c_0 > 0), their errors from err(c_0), and the change of
+    m_s for a change ``shift`` of c_0 (see the module docstring)."""
     m2 = 3.0 * limit
     ms = math.sqrt(m2) if m2 > 0 else float("nan")
     moved = 3.0 * (limit + shift)
@@ -222,7 +225,7 @@ def _fit_one(observable: str, params: dict, by_size: dict[float, dict], powers: 
         observable, params, fit.limit, fit.limit_err, powers, origin, fit.chi2_dof, len(L), shift.value,
         shift.error, tuple(L), tuple(betas), tuple(y), tuple(dy), tuple(fit.coef.tolist()),
         tuple(fit.errors.tolist()),
-        _full_vector(fit.limit, fit.limit_err, shift.value)
+        full_vector_magnetisation(fit.limit, fit.limit_err, shift.value)
         if full_vector and observable == FULL_VECTOR_OBSERVABLE else None)
 
 
