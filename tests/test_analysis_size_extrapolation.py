@@ -110,7 +110,9 @@ def test_files_table_and_plots(tmp_path):
     for row, rec in zip(rows, result["extrapolations"], strict=True):
         assert float(row["limit"]) == pytest.approx(rec["limit"], rel=1e-12)
         assert float(row["g"]) == rec["params"]["g"] and row["powers"] in ("1 2", "3 4")
-        assert (row["m_s"] != "") == (row["observable"] == "m_stag2")
+        assert (row["m_s=sqrt(3*limit)"] != "") == (row["observable"] == "m_stag2")
+        if row["observable"] == "m_stag2":
+            assert float(row["m_s=sqrt(3*limit)"]) == pytest.approx(math.sqrt(3 * rec["limit"]), rel=1e-12)
     saved = json.loads((tmp_path / "analysis.json").read_text())
     assert saved["extrapolations"] == result["extrapolations"]
     for name in ("m_stag2", "energy"):

@@ -282,15 +282,19 @@ def _params_text(params: dict) -> str:
     return ", ".join(f"{k}={v}" for k, v in params.items())
 
 
+_M2, _MS = "m_s2=3*limit", "m_s=sqrt(3*limit)"
+
+
 def extrapolation_table(records: Sequence[SizeExtrapolation]) -> tuple[list[str], list[dict]]:
-    """Columns and rows of ``extrapolation.csv``: one row per fit.  ``m_s2_full`` = 3 c_0 and
-    ``m_s`` = sqrt(3 c_0) (full-vector staggered magnetisation) appear when an ``m_stag2`` fit is present."""
+    """Columns and rows of ``extrapolation.csv``: one row per fit.  The full-vector staggered magnetisation
+    appears when an ``m_stag2`` fit is present, its definition in the column names: ``m_s2=3*limit``,
+    ``m_s2_err``, ``m_s=sqrt(3*limit)``, ``m_s_err``, ``m_s_drop_smallest_shift``."""
     pnames = list(dict.fromkeys(k for r in records for k in r.params))
     cols = ["observable", *pnames, "limit", "limit_err", "chi2_dof", "n_sizes", "L_min", "L_max", "powers",
             "drop_smallest_shift", "drop_smallest_shift_err"]
     full = any(r.full_vector for r in records)
     if full:
-        cols += ["m_s2_full", "m_s2_full_err", "m_s", "m_s_err", "m_s_drop_smallest_shift"]
+        cols += [_M2, "m_s2_err", _MS, "m_s_err", "m_s_drop_smallest_shift"]
     rows = []
     for r in records:
         row: dict[str, Any] = {"observable": r.observable, **r.params, "limit": r.limit,
@@ -301,7 +305,7 @@ def extrapolation_table(records: Sequence[SizeExtrapolation]) -> tuple[list[str]
                                "drop_smallest_shift_err": r.drop_smallest_shift_err}
         if r.full_vector:
             fv = r.full_vector
-            row.update({"m_s2_full": fv["m_s2"], "m_s2_full_err": fv["m_s2_err"], "m_s": fv["m_s"],
+            row.update({_M2: fv["m_s2"], "m_s2_err": fv["m_s2_err"], _MS: fv["m_s"],
                         "m_s_err": fv["m_s_err"], "m_s_drop_smallest_shift": fv["m_s_drop_smallest_shift"]})
         rows.append(row)
     return cols, rows
