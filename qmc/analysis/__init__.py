@@ -4,9 +4,12 @@ Modules (one concept each): ``binning`` (binning analysis, tau_int), ``jackknife
 estimates), ``chains`` (combining independent copies), ``derived`` (derived observables by jackknife),
 ``tasks`` (task records), ``summary`` (per-task summaries, merging copies), ``scan`` (coupling
 detection, curves per size), ``groundstate`` (beta-doubling check), ``crossings`` (crossing points,
-1/nu from slopes), ``extrapolate`` (L -> infinity fits), ``collapse`` (data collapse), ``vbs`` (VBS
-histogram anisotropy), ``tables`` (CSV/JSON), ``plots`` (matplotlib, Agg), ``report``
-(``analyze_run``).  This layer never imports the engine or storage; it reads TaskData-like objects.
+1/nu from slopes), ``extrapolate`` (L -> infinity fits of crossings with a fitted exponent),
+``powerfit`` (the weighted fit y(L) = c_0 + sum_k c_k L^-p_k with fixed powers), ``size_extrapolation``
+(observables of a run extrapolated to L -> infinity per scan point), ``collapse`` (data collapse), ``vbs``
+(VBS histogram anisotropy), ``tables`` (CSV/JSON), ``labels`` (plot labels of the observables), ``plots``
+(matplotlib, Agg), ``report`` (``analyze_run``).  This layer never imports the engine or storage; it reads
+TaskData-like objects.
 """
 
 from .binning import BinningLevels, ErrorEstimate, binning_levels, error_estimate, halves_consistent, rebin
@@ -28,8 +31,10 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import beta_doubling_check
 from .jackknife import JackknifeResult, jackknife, jackknife_pseudovalues
+from .powerfit import PowerFit, drop_smallest_shift, fit_powers
 from .report import CROSSING_QUANTITIES, analyze_run, format_result
 from .scan import detect_coupling
+from .size_extrapolation import SizeExtrapolation, extrapolate_sizes
 from .summary import group_copies, summarize_task
 from .tasks import AnalysisTask
 from .vbs import cos4_from_histogram, plot_vbs_histogram, vbs_anisotropy
@@ -44,6 +49,8 @@ __all__ = [
     "ErrorEstimate",
     "Extrapolation",
     "JackknifeResult",
+    "PowerFit",
+    "SizeExtrapolation",
     "AnalysisTask",
     "analyze_run",
     "beta_doubling_check",
@@ -57,10 +64,13 @@ __all__ = [
     "derived_estimates",
     "derived_observables",
     "detect_coupling",
+    "drop_smallest_shift",
     "error_estimate",
     "extrapolate",
+    "extrapolate_sizes",
     "find_crossing",
     "find_crossings",
+    "fit_powers",
     "format_result",
     "group_copies",
     "halves_consistent",

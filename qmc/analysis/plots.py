@@ -18,6 +18,7 @@ __all__ = [
     "new_figure",
     "plot_collapse",
     "plot_crossing_drift",
+    "plot_size_extrapolation",
     "plot_vbs_histograms",
     "plot_vs_coupling",
     "save_figure",
@@ -181,4 +182,42 @@ def plot_vbs_histograms(
             draw_vbs_histogram(ax, hist, r, title)
         else:
             ax.set_axis_off()
+    return save_figure(fig, base)
+
+
+def plot_size_extrapolation(records: Sequence[dict], ylabel: str, base: str | Path) -> list[Path]:
+    """y(L) of one observable against 1/L, one colour per scan point: the data with error bars, the fitted
+    c_0 + sum_k c_k L^-p_k from 1/L = 0 to the smallest size, and the limit c_0 +- error at 1/L = 0.
+
+    ``records``: fits as dicts (:class:`qmc.analysis.size_extrapolation.SizeExtrapolation` fields).  For
+    ``m_stag2`` with a full-vector entry the legend also gives m_s = sqrt(3 c_0).
+    """
+    import textwrap
+
+    fig, ax = new_figure(size=(6.4, 4.6))
+    fig.subplots_adjust(left=0.16)  # room for a two-line axis label
+    ax = ax[0, 0]
+    x_max = 0.0
+    for r in records:
+        L = np.asarray(r["sizes"], dtype=float)
+        x_max = max(x_max, 1.0 / L.min())
+        params = ", ".join(f"{k}={v}" for k, v in r["params"].items())
+        bar = ax.errorbar(1.0 / L, r["values"], yerr=r["errors"], marker="o", ms=3, ls="none", capsize=2,
+                          label=params or "per-size mean +- error")
+        colour = bar[0].get_color()
+        xs = np.linspace(0.0, 1.0 / L.min(), 200)[1:]
+        ys = r["coef"][0] + sum(c * xs**p for c, p in zip(r["coef"][1:], r["powers"], strict=True))
+        ax.plot(np.concatenate([[0.0], xs]), np.concatenate([[r["coef"][0]], ys]), color=colour, lw=1)
+        text = f"c_0 (L = inf) = {r['limit']:.6g} +- {r['limit_err']:.2g}"
+        fv = r.get("full_vector")
+        if fv and fv.get("m_s") is not None and np.isfinite(fv["m_s"]):
+            text += f", m_s = sqrt(3 c_0) = {fv['m_s']:.5g} +- {fv['m_s_err']:.2g}"
+        ax.errorbar([0.0], [r["limit"]], yerr=[r["limit_err"]], marker="s", ms=5, color=colour, capsize=3,
+                    mfc="white", label=text)
+    powers = ", ".join("1/L" if p == 1 else f"1/L^{p:g}" for p in records[0]["powers"]) if records else ""
+    ax.set_title(f"fit c_0 + corrections in {powers}; squares: c_0 at L = infinity", fontsize="small")
+    ax.set_xlabel("1/L  (L = linear system size in lattice spacings)")
+    ax.set_ylabel("\n".join(textwrap.wrap(ylabel, 48)), fontsize="small")
+    ax.set_xlim(-0.02 * x_max, 1.05 * x_max)
+    ax.legend(fontsize="x-small")
     return save_figure(fig, base)

@@ -9,6 +9,8 @@
     plots/crossings_<quantity>.{png,pdf} crossing drift with its extrapolation, 1/nu(L)
     plots/collapse_<quantity>.{png,pdf}  data collapse
     plots/vbs_L<L>.{png,pdf}             VBS histograms (largest beta per coupling)
+    extrapolation.csv                    L -> infinity fits of the observables in ``extrapolate``
+    plots/extrapolation_<obs>.{png,pdf}  y(L) against 1/L with the fits and the limits  (plot=True)
 
 Steps: independent copies are merged (:func:`qmc.analysis.summary.group_copies`), every point is
 summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
@@ -21,12 +23,16 @@ using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max`` at the
 Here ``L`` is the smaller size of each pair, and both fits share ``omega_fixed`` when too few
 pairs exist to fit the exponent.  The crossing analysis and the plots versus the coupling use the
 largest beta available at each (L, g).
+
+With ``extrapolate`` (observable names), every named observable is also extrapolated to L -> infinity at
+every point of the other scan parameters (:mod:`qmc.analysis.size_extrapolation`); a failed automatic
+detection of the coupling then only skips the crossing analysis (with a warning).
 """
 
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import asdict
 from pathlib import Path
 from typing import Any
@@ -39,6 +45,7 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
 from .scan import curves_for, detect_coupling, other_varying, scan_points
+from .size_extrapolation import as_dicts, extrapolate_sizes, extrapolation_table, format_extrapolations
 from .summary import group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
 
@@ -164,6 +171,18 @@ def _make_plots(
     return files
 
 
+def _extrapolation_plots(extrapolations: list[dict], out: Path) -> list[Path]:
+    from .labels import axis_label
+    from .plots import plot_size_extrapolation
+
+    files: list[Path] = []
+    for name in dict.fromkeys(r["observable"] for r in extrapolations):
+        records = [r for r in extrapolations if r["observable"] == name]
+        base = out / "plots" / f"extrapolation_{_safe(name)}"
+        files += plot_size_extrapolation(records, axis_label(name), base)
+    return files
+
+
 def analyze_run(
     tasks: Iterable[Any],
     out_dir: str | Path,
@@ -178,15 +197,24 @@ def analyze_run(
     collapse: bool = True,
     collapse_degree: int = 3,
     collapse_x_max: float = 2.0,
+    extrapolate: Sequence[str] = (),
+    powers: Sequence[float] | None = None,
+    min_L: float | None = None,
+    full_vector: bool = True,
 ) -> dict[str, Any]:
     """Analyse all tasks of a run and write tables (and plots); returns a JSON-ready result dict.
 
     Result keys: ``out_dir, n_tasks, n_points, coupling, sizes, betas, observables, quantity,
     crossings`` (None when not possible; else ``pairs``, ``g_c``, ``inv_nu``, ``nu``, ``collapse``),
+    ``extrapolations`` (one dict per fit, see :class:`~qmc.analysis.size_extrapolation.SizeExtrapolation`;
+    ``powers``, ``min_L``, ``full_vector`` as in :func:`~qmc.analysis.size_extrapolation.extrapolate_sizes`),
     ``ground_state`` (``pairs_checked``, ``flags``), ``warnings``, ``files``.  NaN values appear as
     None.  Raises :class:`~qmc.analysis.errors.AnalysisError` for unusable input.
     """
     task_list = list(tasks)
+    for option, value in (("--powers", powers), ("--min-L", min_L)):
+        if value is not None and not extrapolate:
+            raise AnalysisError("only used with --extrapolate OBS", option)
     if not task_list:
         raise AnalysisError("the run holds no tasks", "analysis")
     out = Path(out_dir)
@@ -196,20 +224,31 @@ def analyze_run(
         raise AnalysisError(f"cannot create the output directory ({exc.strerror})", str(out)) from None
     merged = group_copies(task_list)
     summaries = [summarize_task(m) for m in merged]
-    coupling = detect_coupling(summaries, coupling)
+    warnings = [w for s in summaries for w in s["warnings"]]
+    try:
+        coupling = detect_coupling(summaries, coupling)
+    except AnalysisError as exc:
+        if coupling is not None or not extrapolate:
+            raise
+        warnings.append(f"crossing analysis skipped: {exc}")
     extra = other_varying(summaries, coupling)
     points = scan_points(summaries, coupling)
     hist_of = {m.task_id: (m.vbs_histogram, m.vbs_hist_range) for m in merged}
     names = observable_names(points)
     if quantity not in names and quantity not in CROSSING_QUANTITIES:
         raise AnalysisError(f"unknown quantity {quantity!r}; available: {', '.join(names)}", "quantity")
-    warnings = [w for s in summaries for w in s["warnings"]]
+    fits, fit_warnings = extrapolate_sizes(points, extrapolate, powers, min_L, full_vector) if extrapolate \
+        else ([], [])
+    warnings += fit_warnings
+    extrapolations = as_dicts(fits)
 
     cols, rows = table_rows(points, coupling, extra)
     files = [write_csv(out / "observables.csv", cols, rows)]
     files.append(
         write_json(out / "observables.json", {"coupling": coupling, "varying": extra, "points": points})
     )
+    if fits:
+        files.append(write_csv(out / "extrapolation.csv", *extrapolation_table(fits)))
 
     gs_obs = tuple(GROUND_STATE_OBSERVABLES) + (() if quantity in GROUND_STATE_OBSERVABLES else (quantity,))
     ground = beta_doubling_check(points, gs_obs, extra=extra)
@@ -235,6 +274,7 @@ def analyze_run(
 
     if plot:
         files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of)
+        files += _extrapolation_plots(extrapolations, out)
 
     result = {
         "out_dir": str(out),
@@ -247,6 +287,7 @@ def analyze_run(
         "observables": names,
         "quantity": quantity,
         "crossings": crossings,
+        "extrapolations": extrapolations,
         "ground_state": ground,
         "warnings": warnings,
         "files": [str(f) for f in files] + [str(out / "analysis.json")],
@@ -283,6 +324,7 @@ def format_result(result: dict[str, Any]) -> str:
         if cr.get("collapse"):
             c = cr["collapse"]
             lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
+    lines += format_extrapolations(result.get("extrapolations") or [])
     gs = result["ground_state"]
     lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")
     lines += [f"warning: {w}" for w in result["warnings"]]

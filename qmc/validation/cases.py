@@ -28,13 +28,14 @@ from typing import Any
 import numpy as np
 
 from qmc.analysis import derived_estimates, error_estimate, find_crossing
+from qmc.analysis.powerfit import drop_smallest_shift, fit_powers
+from qmc.analysis.size_extrapolation import default_powers, full_vector_magnetisation
 from qmc.errors import UserError
 from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
 from .checks import Check
 from .exact.bethe import chain_ground_state_energy
 from .exact.clusters import cluster_observables
-from .fits import fit_powers
 from .jobs import ExactJob, Job, ModelSpec, SimJob, SimResult
 from .references import (
     BETHE_SOURCE,
@@ -230,10 +231,8 @@ def _extrapolate(sizes: Sequence[int], y: Sequence[float], dy: Sequence[float],
     of the limit when the smallest size is left out (stability against the neglected higher-order
     corrections, common practice, no source); 0 when too few sizes remain for a fit with dof >= 1."""
     fit = fit_powers(sizes, y, dy, powers)
-    sys = 0.0
-    if len(sizes) - 1 >= len(powers) + 2:
-        sys = abs(fit_powers(sizes[1:], y[1:], dy[1:], powers).limit - fit.limit)
-    return fit.limit, fit.limit_err, sys
+    shift = drop_smallest_shift(sizes, y, dy, powers, full=fit).value
+    return fit.limit, fit.limit_err, abs(shift) if math.isfinite(shift) else 0.0
 
 
 def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measure: int = 40_000,
@@ -245,7 +244,8 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
     Phys. Rev. B 39, 2608 (1989), from memory).  m_s^2(L) = 3 m_stag2(L) (rotational average of the
     singlet ground state: the z component carries 1/3 of <M_s.M_s>), fitted with
     m_s^2(L) = m_s^2 + a/L + b/L^2; m_s = sqrt(m_s^2).  Systematic allowance of both: the change of the
-    limit when the smallest size is left out (see :func:`_extrapolate`)."""
+    limit when the smallest size is left out (see :func:`_extrapolate`).  Powers and m_s are those of
+    ``qmc analyze --extrapolate`` (:mod:`qmc.analysis.size_extrapolation`)."""
     sizes = sorted(int(L) for L in sizes)
     jobs = {}
     for L in sizes:
@@ -264,16 +264,16 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
 
     def evaluate_energy(results: Mapping[str, Any]) -> list[Check]:
         e, de = series(results, "energy")
-        value, err, sys = _extrapolate(sizes, e, de, (3.0, 4.0))
+        value, err, sys = _extrapolate(sizes, e, de, default_powers("energy", 2)[0])
         return [Check(f"square e0 ({span})", value, err, SQUARE_GROUND_STATE_ENERGY, sys, e_note)]
 
     def evaluate_ms(results: Mapping[str, Any]) -> list[Check]:
         m2, dm2 = series(results, "m_stag2")
-        y, dy = [3.0 * v for v in m2], [3.0 * v for v in dm2]
-        value, err, sys = _extrapolate(sizes, y, dy, (1.0, 2.0))
-        ms = math.sqrt(value) if value > 0 else float("nan")
-        return [Check(f"square m_s ({span})", ms, err / (2 * ms), SQUARE_STAGGERED_MAGNETIZATION,
-                      sys / (2 * ms), m_note)]
+        value, err, sys = _extrapolate(sizes, m2, dm2, default_powers("m_stag2", 2)[0])
+        fv = full_vector_magnetisation(value, err, sys)
+        sys_ms = abs(fv["m_s_drop_smallest_shift"]) if math.isfinite(fv["m_s_drop_smallest_shift"]) else 0.0
+        return [Check(f"square m_s ({span})", fv["m_s"], fv["m_s_err"], SQUARE_STAGGERED_MAGNETIZATION,
+                      sys_ms, m_note)]
 
     all_jobs = sum(jobs.values(), ())
     return [Case("square e0", all_jobs, evaluate_energy, SQUARE_GROUND_STATE_ENERGY),
