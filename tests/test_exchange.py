@@ -389,7 +389,13 @@ def test_json_helpers_are_plain(tmp_path):
     config, unit = ladder_of(write_config(tmp_path, measure=200, bins=10))
     run_group(unit, tmp_path / "run", config_text=config.text)
     d = read_task(task_path(tmp_path / "run", unit[1].task_id))
-    json.dumps(exchange_summary(d.exchange))  # every value is a plain number, list or text
+    summary = exchange_summary(d.exchange)
+    assert summary is not None and summary["parameter"] == "Q" and len(summary["values"]) == len(unit)
+    pairs = zip(summary["accepted"], summary["attempted"], strict=True)
+    assert sum(summary["attempted"]) > 0 and all(0 <= a <= n for a, n in pairs)
+    finite = {k: v for k, v in summary.items() if k not in ("acceptance_up", "acceptance_down")}
+    json.dumps(finite, allow_nan=False)  # plain numbers, lists and text only (NaN only at the ladder's ends)
+    assert json.loads(json.dumps(summary)).keys() == summary.keys()
 
 
 # ------------------------------------------------------------------------------------------- command line

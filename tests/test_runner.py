@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import inspect
 import io
 import threading
 import time
@@ -335,9 +336,35 @@ def test_format_duration():
     assert format_duration(None) == format_duration(float("nan")) == "--:--:--"
 
 
+def _hdf5_writers() -> list[str]:
+    """Every place in the installed qmc package that opens an HDF5 file in a mode other than "r"."""
+    import ast
+
+    import qmc
+
+    root = Path(qmc.__file__).parent
+    found = []
+    for path in sorted(root.rglob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text(), str(path))):
+            if not (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+                    and node.func.attr == "File" and getattr(node.func.value, "id", "") == "h5py"):
+                continue
+            mode = node.args[1] if len(node.args) > 1 else next(
+                (k.value for k in node.keywords if k.arg == "mode"), None)
+            if not (isinstance(mode, ast.Constant) and mode.value == "r"):
+                found.append(f"{path.relative_to(root)}:{node.lineno}")
+    return found
+
+
 def test_write_task_is_the_only_writer_of_task_files(tmp_path):
-    """run_task never leaves a temporary file behind after a normal stop."""
+    """Only write_task opens HDF5 files for writing, and a normal run leaves no temporary file behind."""
+    writers = _hdf5_writers()
+    assert len(writers) == 1 and writers[0].startswith("storage/task_file.py:"), writers
+    line = int(writers[0].split(":")[1])
+    source = inspect.getsource(write_task)
+    first = inspect.getsourcelines(write_task)[1]
+    assert first <= line < first + len(source.splitlines()), "the writer is not write_task"
     cfg = load_config(config_file(tmp_path))
     run_task(cfg.tasks()[0], tmp_path / "run")
-    assert not list((tmp_path / "run" / "tasks").glob("*.tmp"))
-    assert callable(write_task)
+    tasks = tmp_path / "run" / "tasks"
+    assert list(tasks.glob("*.h5")) and not list(tasks.glob("*.tmp"))
