@@ -35,10 +35,11 @@ import qmc
 #   7  analysis     error analysis and finite-size scaling of stored bins
 #   8  validation   reference checks (may use anything below cli)
 #   9  cli          the command line
+#   9  api          the Python interface (qmc/api.py), beside the command line
 #  10  qmc, __main__  the package itself and ``python -m qmc``
 LAYERS = {
     "errors": 0, "models": 1, "config": 2, "engine": 2, "chain": 3, "storage": 4, "exchange": 4, "run": 5,
-    "mpi": 6, "analysis": 7, "validation": 8, "cli": 9, "qmc": 10, "__main__": 10,
+    "mpi": 6, "analysis": 7, "validation": 8, "cli": 9, "api": 9, "qmc": 10, "__main__": 10,
 }
 SIZE_CHECKED = ("run", "exchange", "mpi", "storage")
 MAX_LINES = 400
