@@ -31,13 +31,14 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import beta_doubling_check
 from .jackknife import JackknifeResult, jackknife, jackknife_pseudovalues
+from .plots import plot_vbs_histogram
 from .powerfit import PowerFit, drop_smallest_shift, fit_powers
 from .report import CROSSING_QUANTITIES, analyze_run, format_result
 from .scan import detect_coupling
 from .size_extrapolation import SizeExtrapolation, extrapolate_sizes
 from .summary import group_copies, summarize_task
 from .tasks import AnalysisTask
-from .vbs import cos4_from_histogram, plot_vbs_histogram, vbs_anisotropy
+from .vbs import cos4_from_histogram, vbs_anisotropy
 
 __all__ = [
     "CROSSING_QUANTITIES",

@@ -7,7 +7,7 @@ least four points ``omega`` is fitted too (bounded to ``omega_bounds``); with tw
 or when the three-parameter fit fails or leaves ``omega`` undetermined, ``omega`` is fixed to
 ``omega_fixed`` and only ``(y_inf, a)`` are fitted (linear: :func:`qmc.analysis.powerfit.fit_powers`).
 When chi^2/dof > 1 the parameter errors are scaled by sqrt(chi^2/dof) (common practice, no source).
-A single point is returned as it is.
+A single point cannot be extrapolated: its limit is NaN (``n_points = 1``).
 """
 
 from __future__ import annotations
@@ -81,9 +81,8 @@ def extrapolate(
         nan = float("nan")
         return Extrapolation(nan, nan, nan, nan, nan, nan, False, nan, 0, 0)
     if n == 1:
-        return Extrapolation(
-            float(y_[0]), float(e_[0]), 0.0, float("nan"), float(omega_fixed), float("nan"), False, 0.0, 0, 1
-        )
+        nan = float("nan")
+        return Extrapolation(nan, nan, nan, nan, float(omega_fixed), nan, False, nan, 0, 1)
     fixed = _fixed(L_, y_, e_, omega_fixed)
     if n < 4:
         return fixed

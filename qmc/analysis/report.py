@@ -43,11 +43,15 @@ from .collapse import data_collapse
 from .crossings import find_crossings
 from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
+from .fit_quality import crossing_caveats, fit_quality
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
+from .labels import axis_label, coupling_label, observable_note
+from .run_text import RunText, run_text
 from .scan import curves_for, detect_coupling, other_varying, scan_points
 from .size_extrapolation import as_dicts, extrapolate_sizes, extrapolation_table, format_extrapolations
 from .summary import group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
+from .vbs import task_value_grid
 
 __all__ = ["CROSSING_QUANTITIES", "analyze_run", "format_result"]
 
@@ -57,6 +61,13 @@ CROSSING_QUANTITIES = ("binder_stag", "stiffness_L", "xi_over_L", "binder_vbs")
 
 def _safe(name: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", name)
+
+
+def _symbol(name: str) -> str:
+    from .labels import describe
+
+    t = describe(name)
+    return f"{t.symbol} ({name})" if t else name
 
 
 def _extrap_dict(ex: Extrapolation) -> dict[str, Any]:
@@ -98,9 +109,14 @@ def _crossing_analysis(
     result: dict[str, Any] = {
         "quantity": quantity,
         "pairs": [dict(asdict(c), ok=c.ok) for c in crossings],
-        "g_c": _extrap_dict(ext),
-        "inv_nu": _extrap_dict(inv),
+        "g_c": dict(_extrap_dict(ext), quality=fit_quality(ext.chi2, ext.dof)),
+        "inv_nu": dict(_extrap_dict(inv), quality=fit_quality(inv.chi2, inv.dof)),
+        "caveats": crossing_caveats([(c.L1, c.L2) for c in good], ext.omega_fitted, ext.omega),
     }
+    for what, fit in (("g_c", ext), ("1/nu", inv)):
+        if fit_quality(fit.chi2, fit.dof)["reliable"] is False:
+            warnings.append(f"{quantity}: the extrapolation of {what} is unreliable "
+                            f"({fit_quality(fit.chi2, fit.dof)['summary']})")
     if np.isfinite(inv.limit) and inv.limit > 0:
         result["nu"] = {"value": 1.0 / inv.limit, "error": inv.limit_err / inv.limit**2}
     plot_data: dict[str, Any] = {"curves": curves, "crossings": good, "ext": ext, "inv": inv}
@@ -120,8 +136,11 @@ def _crossing_analysis(
         if col is not None and not col.success:
             warnings.append(f"{quantity}: the data-collapse fit did not converge")
         if col is not None:
-            result["collapse"] = {k: v for k, v in asdict(col).items()}
+            result["collapse"] = dict(asdict(col), quality=fit_quality(col.chi2, col.dof))
             plot_data["collapse"] = col
+            if result["collapse"]["quality"]["reliable"] is False:
+                warnings.append(f"{quantity}: the data collapse is unreliable "
+                                f"({result['collapse']['quality']['summary']})")
     return result, plot_data
 
 
@@ -134,27 +153,37 @@ def _make_plots(
     out: Path,
     extra: list[str],
     hist_of: dict[str, tuple],
+    text: RunText,
+    caveats: Sequence[str] = (),
 ) -> list[Path]:
     from .plots import plot_collapse, plot_crossing_drift, plot_vbs_histograms, plot_vs_coupling
 
     pdir = out / "plots"
+    title = text.title()
     files: list[Path] = []
+    xlabel = coupling_label(coupling, text.couplings.get(coupling or "", ""))
     if coupling is not None:
         for name in names:
             curves = curves_for(points, name, extra)
             if curves:
-                files += plot_vs_coupling(curves, name, coupling, pdir / f"obs_{_safe(name)}")
+                files += plot_vs_coupling(curves, axis_label(name), xlabel, pdir / f"obs_{_safe(name)}",
+                                          title=title, note=observable_note(name))
     if plot_data.get("crossings"):
         files += plot_crossing_drift(
             plot_data["crossings"],
             plot_data["ext"],
             plot_data["inv"],
-            quantity,
+            _symbol(quantity),
             pdir / f"crossings_{_safe(quantity)}",
+            coupling=coupling or "g",
+            title=title,
+            note="Caveats: " + "; ".join(caveats) if caveats else "",
         )
     if plot_data.get("collapse") is not None:
         files += plot_collapse(
-            plot_data["curves"], plot_data["collapse"], quantity, pdir / f"collapse_{_safe(quantity)}"
+            plot_data["curves"], plot_data["collapse"], axis_label(quantity),
+            pdir / f"collapse_{_safe(quantity)}", coupling=coupling or "g", title=title,
+            note=observable_note(quantity),
         )
     best: dict[tuple, dict] = {}
     for p in points:
@@ -163,23 +192,27 @@ def _make_plots(
             best[key] = p
     by_size: dict[float, list] = {}
     for (L, g), p in sorted(best.items(), key=lambda kv: (kv[0][0], kv[0][1] if kv[0][1] is not None else 0)):
-        hist, r = hist_of[p["task"]]
-        title = f"L={L:g}" + (f", {coupling}={g:g}" if coupling else "") + f", beta={p['beta']:g}"
-        by_size.setdefault(L, []).append((title, hist, r))
+        hist, r, grid = hist_of[p["task"]]
+        panel = f"L={L:g}" + (f", {coupling}={g:g}" if coupling else "") + f", beta={p['beta']:g}"
+        cos4 = p["vbs"].get("cos4")
+        if cos4 is not None and np.isfinite(cos4):
+            panel += f"\n<cos 4theta> = {cos4:.3f} +- {p['vbs'].get('cos4_err', float('nan')):.2g}"
+        by_size.setdefault(L, []).append((panel, hist, r, grid))
     for L, items in by_size.items():
-        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}")
+        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}", title=title,
+                                     note=observable_note("vbs_cos4"))
     return files
 
 
-def _extrapolation_plots(extrapolations: list[dict], out: Path) -> list[Path]:
-    from .labels import axis_label
+def _extrapolation_plots(extrapolations: list[dict], out: Path, text: RunText) -> list[Path]:
     from .plots import plot_size_extrapolation
 
     files: list[Path] = []
     for name in dict.fromkeys(r["observable"] for r in extrapolations):
         records = [r for r in extrapolations if r["observable"] == name]
         base = out / "plots" / f"extrapolation_{_safe(name)}"
-        files += plot_size_extrapolation(records, axis_label(name), base)
+        files += plot_size_extrapolation(records, axis_label(name), base, title=text.title(),
+                                         note=observable_note(name))
     return files
 
 
@@ -233,7 +266,10 @@ def analyze_run(
         warnings.append(f"crossing analysis skipped: {exc}")
     extra = other_varying(summaries, coupling)
     points = scan_points(summaries, coupling)
-    hist_of = {m.task_id: (m.vbs_histogram, m.vbs_hist_range) for m in merged}
+    grid_of = {str(t.task_id): task_value_grid(t) for t in task_list}
+    hist_of = {m.task_id: (m.vbs_histogram, m.vbs_hist_range, grid_of.get((m.copies or (m.task_id,))[0]))
+               for m in merged}
+    text = run_text(getattr(task_list[0], "config_text", ""))
     names = observable_names(points)
     if quantity not in names and quantity not in CROSSING_QUANTITIES:
         raise AnalysisError(f"unknown quantity {quantity!r}; available: {', '.join(names)}", "quantity")
@@ -273,8 +309,9 @@ def analyze_run(
         warnings.append(f"{quantity}: not available in these tasks: crossing analysis skipped")
 
     if plot:
-        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of)
-        files += _extrapolation_plots(extrapolations, out)
+        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of, text,
+                             (crossings or {}).get("caveats", ()))
+        files += _extrapolation_plots(extrapolations, out, text)
 
     result = {
         "out_dir": str(out),
@@ -321,9 +358,15 @@ def format_result(result: dict[str, Any]) -> str:
                 f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
             )
         lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
+        for key, what in (("g_c", "g_c fit"), ("inv_nu", "1/nu fit")):
+            q = (cr.get(key) or {}).get("quality")
+            if q and q.get("chi2_dof") is not None:
+                lines.append(f"  {what}: {q['text']}")
         if cr.get("collapse"):
             c = cr["collapse"]
-            lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
+            lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}"
+                         + (f"  ({c['quality']['text']})" if c.get("quality") else ""))
+        lines += [f"  caveat: {text}" for text in cr.get("caveats", [])]
     lines += format_extrapolations(result.get("extrapolations") or [])
     gs = result["ground_state"]
     lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")

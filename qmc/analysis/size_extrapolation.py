@@ -47,6 +47,7 @@ from typing import Any
 import numpy as np
 
 from .errors import AnalysisError
+from .fit_quality import fit_quality
 from .powerfit import drop_smallest_shift, fit_powers
 from .scan import NOT_COUPLINGS
 
@@ -214,9 +215,10 @@ def _fit_one(observable: str, params: dict, by_size: dict[float, dict], powers: 
     shift = drop_smallest_shift(L, y, dy, powers, full=fit)
     if fit.dof == 0:
         warnings.append(f"{where}: as many sizes as parameters: exact fit, chi2/dof undefined")
-    elif fit.chi2_dof > 3.0:
-        warnings.append(f"{where}: poor fit (chi2/dof = {fit.chi2_dof:.3g}): a correction is missing or the "
-                        "smallest sizes are not yet asymptotic; try --min-L or --powers")
+    elif fit_quality(fit.chi2, fit.dof)["reliable"] is False:
+        warnings.append(f"{where}: unreliable fit ({fit_quality(fit.chi2, fit.dof)['summary']}): a "
+                        "correction is missing or the smallest sizes are not yet asymptotic; try --min-L or "
+                        "--powers")
     if math.isfinite(shift.value) and shift.error > 0 and abs(shift.value) > 2.0 * shift.error:
         warnings.append(f"{where}: dropping the smallest size moves the limit by {shift.value:.3g} +- "
                         f"{shift.error:.2g} (more than 2 sigma): L = {min(L):g} does not follow the fitted "

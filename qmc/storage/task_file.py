@@ -289,6 +289,9 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
         for key in ("n_sites", "linear_size", "lattice_kind", "group_names", "dir_names"):
             if key in f["model"]:
                 model_info[key] = plain(f["model"][key][()])
+        for key in ("vbs_bonds", "vbs_dir", "vbs_phase"):  # the dimer order parameter's bonds, as arrays
+            if key in f["model"]:
+                model_info[key] = np.asarray(f["model"][key][()])
         if "term_coupling" in f["model"]:
             model_info["n_terms"] = int(f["model"]["term_coupling"].shape[0])
     ba = bg.attrs
