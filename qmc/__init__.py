@@ -15,7 +15,8 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["__version__", "load_config", "run_config", "load_run", "load_task", "load_bins", "analyze"]
+__all__ = ["__version__", "load_config", "run_config", "load_run", "load_task", "load_bins", "analyze",
+           "report"]
 
 _API = frozenset(__all__) - {"__version__"}
 

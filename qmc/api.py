@@ -6,6 +6,7 @@
     df = qmc.load_run(run_dir)                             # tidy pandas DataFrame, one row per (task, obs.)
     bins = qmc.load_bins(run_dir, "L8_c0")                 # raw per-bin values of one task (numpy)
     result = qmc.analyze(run_dir)                          # the finite-size analysis of ``qmc analyze``
+    qmc.report(run_dir)                                    # the HTML page of ``qmc report``
 
 Everything here is what the command line does too; the files are the same, so a run started with
 ``qmc run`` (or under MPI) is read here, and a run started here is resumed by ``qmc run`` and the other
@@ -27,7 +28,7 @@ import numpy as np
 
 from qmc.errors import UserError
 
-__all__ = ["load_config", "run_config", "load_run", "load_task", "load_bins", "analyze"]
+__all__ = ["load_config", "run_config", "load_run", "load_task", "load_bins", "analyze", "report"]
 
 PathLike = str | os.PathLike
 
@@ -151,3 +152,18 @@ def analyze(path: PathLike, out: PathLike | None = None, **options: Any) -> dict
     target = Path(out) if out is not None else (path if path.is_dir() else path.parent) / "analysis"
     return analyze_run(read_run(path), target, **options)
 
+
+def report(path: PathLike, out: PathLike | None = None, **options: Any) -> Path:
+    """Write the self-contained HTML page of ``qmc report`` (default ``RUN_DIR/report.html``); returns its
+    path.  ``options``: ``quantities``, ``coupling``, ``extrapolate`` and the other options of
+    :func:`qmc.analysis.analyze_run`."""
+    from importlib.metadata import version
+
+    from qmc.analysis.html_report import write_report
+    from qmc.storage.run_index import load_index
+    from qmc.storage.task_file import read_run
+
+    path = Path(path)
+    target = Path(out) if out is not None else (path if path.is_dir() else path.parent) / "report.html"
+    index = load_index(path) if path.is_dir() else None
+    return write_report(read_run(path), target, index=index, version=version("seriesloop"), **options)

@@ -109,3 +109,10 @@ def test_version_and_a_light_import():
     assert set(qmc.__all__) <= set(dir(qmc))
     with pytest.raises(AttributeError):
         qmc.no_such_name  # noqa: B018
+
+
+def test_the_report_from_python(example, tmp_path):
+    path = qmc.report(example["run_dir"], tmp_path / "page.html")
+    text = path.read_text(encoding="utf-8")
+    assert path == tmp_path / "page.html" and text.startswith("<!DOCTYPE html>")
+    assert "<h1>quickstart: simulation report</h1>" in text and "No coupling varies" in text

@@ -155,6 +155,7 @@ def _make_plots(
     hist_of: dict[str, tuple],
     text: RunText,
     caveats: Sequence[str] = (),
+    observables: bool = True,
 ) -> list[Path]:
     from .plots import plot_collapse, plot_crossing_drift, plot_vbs_histograms, plot_vs_coupling
 
@@ -162,7 +163,7 @@ def _make_plots(
     title = text.title()
     files: list[Path] = []
     xlabel = coupling_label(coupling, text.couplings.get(coupling or "", ""))
-    if coupling is not None:
+    if coupling is not None and observables:
         for name in names:
             curves = curves_for(points, name, extra)
             if curves:
@@ -198,7 +199,7 @@ def _make_plots(
         if cos4 is not None and np.isfinite(cos4):
             panel += f"\n<cos 4theta> = {cos4:.3f} +- {p['vbs'].get('cos4_err', float('nan')):.2g}"
         by_size.setdefault(L, []).append((panel, hist, r, grid))
-    for L, items in by_size.items():
+    for L, items in by_size.items() if observables else ():
         files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}", title=title,
                                      note=observable_note("vbs_cos4"))
     return files
@@ -234,15 +235,19 @@ def analyze_run(
     powers: Sequence[float] | None = None,
     min_L: float | None = None,
     full_vector: bool = True,
+    plot_observables: bool = True,
 ) -> dict[str, Any]:
     """Analyse all tasks of a run and write tables (and plots); returns a JSON-ready result dict.
 
     Result keys: ``out_dir, n_tasks, n_points, coupling, sizes, betas, observables, quantity,
-    crossings`` (None when not possible; else ``pairs``, ``g_c``, ``inv_nu``, ``nu``, ``collapse``),
+    crossings`` (None when not possible; else ``pairs``, ``g_c`` and ``inv_nu`` with their fit ``quality``,
+    ``nu``, ``collapse`` with its ``quality``, ``caveats``),
     ``extrapolations`` (one dict per fit, see :class:`~qmc.analysis.size_extrapolation.SizeExtrapolation`;
     ``powers``, ``min_L``, ``full_vector`` as in :func:`~qmc.analysis.size_extrapolation.extrapolate_sizes`),
     ``ground_state`` (``pairs_checked``, ``flags``), ``warnings``, ``files``.  NaN values appear as
-    None.  Raises :class:`~qmc.analysis.errors.AnalysisError` for unusable input.
+    None.  ``plot_observables=False`` leaves out the plots versus the coupling and the VBS histograms
+    (only the crossing, collapse and extrapolation plots of ``plot``).  Raises
+    :class:`~qmc.analysis.errors.AnalysisError` for unusable input.
     """
     task_list = list(tasks)
     for option, value in (("--powers", powers), ("--min-L", min_L)):
@@ -310,7 +315,7 @@ def analyze_run(
 
     if plot:
         files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of, text,
-                             (crossings or {}).get("caveats", ()))
+                             (crossings or {}).get("caveats", ()), plot_observables)
         files += _extrapolation_plots(extrapolations, out, text)
 
     result = {
