@@ -7,9 +7,11 @@ detection, curves per size), ``groundstate`` (beta-doubling check), ``crossings`
 1/nu from slopes), ``extrapolate`` (L -> infinity fits of crossings with a fitted exponent),
 ``powerfit`` (the weighted fit y(L) = c_0 + sum_k c_k L^-p_k with fixed powers), ``size_extrapolation``
 (observables of a run extrapolated to L -> infinity per scan point), ``collapse`` (data collapse), ``vbs``
-(VBS histogram anisotropy), ``tables`` (CSV/JSON), ``labels`` (plot labels of the observables), ``plots``
-(matplotlib, Agg), ``report`` (``analyze_run``).  This layer never imports the engine or storage; it reads
-TaskData-like objects.
+(VBS histogram anisotropy, allowed-value grid), ``tables`` (CSV/JSON), ``labels`` (symbol, definition,
+units, limits of the observables), ``run_text`` (model, lattice, beta rule in words), ``fit_quality``
+(chi^2/dof, p-value, caveats of crossing fits), ``plots`` (matplotlib, Agg), ``report`` (``analyze_run``),
+``html_report`` (the page of ``qmc report``), ``tidy`` (one row per task and observable).  This layer
+never imports the engine or storage; it reads TaskData-like objects.
 """
 
 from .binning import BinningLevels, ErrorEstimate, binning_levels, error_estimate, halves_consistent, rebin

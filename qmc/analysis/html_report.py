@@ -187,8 +187,7 @@ def _observables_section(names: Sequence[str], images: Mapping[str, str], coupli
     out.append(f"<p>One curve per size L; at every (L, {_e(coupling)}) the largest beta; error bars are one "
                "standard error (binning analysis; jackknife for derived quantities).</p>")
     for name in _observable_order(names):
-        caption = f"{axis_label(name)}. {observable_note(name)}"
-        out.append(_figure(images, f"obs_{name.replace('/', '_')}", caption))
+        out.append(_figure(images, f"obs_{name.replace('/', '_')}", observable_note(name) or name))
     return "\n".join(out)
 
 
