@@ -45,7 +45,7 @@ from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .fit_quality import crossing_caveats, fit_quality
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
-from .labels import axis_label, coupling_label, observable_note
+from .labels import axis_label, coupling_label, describe, observable_note
 from .run_text import RunText, run_text
 from .scan import curves_for, detect_coupling, other_varying, scan_points
 from .size_extrapolation import as_dicts, extrapolate_sizes, extrapolation_table, format_extrapolations
@@ -64,8 +64,6 @@ def _safe(name: str) -> str:
 
 
 def _symbol(name: str) -> str:
-    from .labels import describe
-
     t = describe(name)
     return f"{t.symbol} ({name})" if t else name
 
