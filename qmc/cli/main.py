@@ -2,10 +2,11 @@
 
 Bad input of any kind (configuration, run directory, task file, option) prints one line
 ``error: <where>: <what>`` on standard error and exits with status 2, without a traceback.  Exit status of
-``qmc run``: 0 when every selected task is done or the run stopped cleanly (SIGTERM, ``--max-time``),
-1 when a task failed (recorded in the index and the log; the other tasks went on), 130 after Ctrl-C
-(a checkpoint is written first).  The commands live in :mod:`qmc.cli.run` (run), :mod:`qmc.cli.results`
-(summary, inspect, analyze) and :mod:`qmc.cli.setup` (new, validate).
+``qmc run``: 0 when every selected task is done, 75 (:data:`qmc.cli.run.EXIT_UNFINISHED`) when the run
+stopped before the end (SIGTERM, Ctrl-C, ``--max-time``; checkpoints are written first, rerun to
+continue), 1 when a task failed (recorded in the index and the log; the other tasks went on).  The
+commands live in :mod:`qmc.cli.run` (run), :mod:`qmc.cli.results` (summary, inspect, analyze),
+:mod:`qmc.cli.status` (status) and :mod:`qmc.cli.setup` (new, validate).
 """
 
 from __future__ import annotations

@@ -22,7 +22,7 @@ from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
 from qmc.models.compiled import CompiledModel
 from qmc.run.outcome import TaskOutcome
-from qmc.run.task_identity import steps_total, task_fingerprint
+from qmc.run.task_identity import LENGTH, SAME, mismatch_text, steps_total, stored_relation, task_fingerprint
 from qmc.storage.provenance import now_iso, session_entry, task_provenance
 from qmc.storage.task_file import TaskData, TaskRecord, read_task, task_path, write_task
 
@@ -71,13 +71,16 @@ class TaskBook:
     # -------------------------------------------------------------------------------------------- reading
     def read(self) -> TaskData | None:
         """The task file with its checkpoint, None if there is none; UserError if it was written for another
-        chain (model, beta, sampling or seed)."""
+        chain (model, beta, seed, warm-up or bin length; a file of the same chain with another number of
+        bins is continued or already done, :func:`~qmc.run.task_identity.stored_relation`)."""
         if not self.path.exists():
             return None
         data = read_task(self.path, with_checkpoint=True)
-        if data.task_fingerprint != self.fingerprint:
-            raise UserError("was written for a different model, beta, sampling or seed than this task; "
-                            "move it away (or run with --force, which renames it aside)", str(self.path))
+        stored = (data.task_fingerprint, data.steps_per_bin, data.bins_total, data.steps_total)
+        relation = stored_relation(self.task, *stored)
+        if relation not in (SAME, LENGTH):
+            raise UserError(f"{mismatch_text(relation, self.task, *stored[1:])}; move it away (or run with "
+                            "--force, which renames it aside)", str(self.path))
         self.bins_done, self.steps_done = data.bins_done, data.steps_done
         return data
 
