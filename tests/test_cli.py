@@ -172,7 +172,8 @@ def test_other_physics_refused_then_forced(tmp_path, done_run):
     assert sum(n.startswith("L4_J1_beta1_c0.h5.") and n.endswith(".old") for n in names) == 1
     notes = [line for line in result.stderr.splitlines() if line.startswith("note: --force")]
     assert len(notes) == 1, result.stderr  # even with --quiet: what was set aside, and why
-    assert "renamed aside (never deleted) 4 file(s), because the master seed, lattice or terms differ" in notes[0]
+    assert "renamed aside (never deleted) 4 file(s), because the master seed, lattice or terms differ" \
+        in notes[0]
     assert "L4_J1_beta1_c0.h5 -> L4_J1_beta1_c0.h5." in notes[0] and "index.json -> index.json." in notes[0]
     index = load_index(run)
     assert set(index["tasks"]) == {"L4_J0.5_beta1_c0", "L4_J1_beta1_c0", "L6_J0.5_beta1_c0", "L6_J1_beta1_c0"}
@@ -192,7 +193,8 @@ def test_force_says_what_it_keeps(tmp_path):
     kept = task_path(run, "L4_J1_c0")
     result = invoke("run", other, "--out", run, "--force")
     assert result.exit_code == 0, result.output
-    assert "note: --force: renamed aside (never deleted) 1 file(s), because written for another" in result.stderr
+    assert "note: --force: renamed aside (never deleted) 1 file(s), because written for another" \
+        in result.stderr
     assert "L6_J1_c0.h5 -> L6_J1_c0.h5." in result.stderr
     assert "note: --force: kept 1 task file(s) whose chains are unchanged: L4_J1_c0" in result.stderr
     assert read_task(kept).status == "done" and len(read_task(kept).provenance["sessions"]) == 1

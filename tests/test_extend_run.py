@@ -175,7 +175,8 @@ def test_cli_grows_a_run_and_says_so(tmp_path):
     result = runner.invoke(cli, ["run", str(long), "--out", str(tmp_path / "run")])
     assert result.exit_code == 0, result.output
     err = result.stderr
-    assert "note: 1 finished task(s) continue from their checkpoints to 9 bins of 100 steps: L4_Q0.5_beta2_c0" in err
+    assert ("note: 1 finished task(s) continue from their checkpoints to 9 bins of 100 steps: "
+            "L4_Q0.5_beta2_c0") in err
     assert "resuming task L4_Q0.5_beta2_c0 at step 700 of 1000 (6 of 9 bins)" in err
     assert "done: all 2 task(s) finished" in err
     # another bin length: refused, nothing changed
@@ -187,7 +188,8 @@ def test_cli_grows_a_run_and_says_so(tmp_path):
     assert (tmp_path / "run" / "index.json").read_bytes() == index
 
 
-@pytest.mark.parametrize("measure, bins", [(600, 6), (590, 59)])  # the old end 700 = 100 * 7: an exchange point
+# (600, 6): the old end 700 = 100 * 7 is an exchange point; (590, 59): 690 is none
+@pytest.mark.parametrize("measure, bins", [(600, 6), (590, 59)])
 def test_an_exchange_ladder_grows_bit_identically(tmp_path, measure, bins):
     """The ladder's last step is no exchange point: continued from there, the swap round of that step is
     held first, so bins, walks and swap counts equal those of the longer run."""

@@ -10,8 +10,8 @@ at most every :data:`INDEX_INTERVAL` seconds while running, and at the end.
 Stopping: SIGTERM (or SIGINT) on any rank, a worker's unit stopped by the ``--max-time`` budget, or rank
 0's own stop flag puts rank 0 into stop mode: it sends :class:`~qmc.mpi.protocol.Stop` to every worker,
 each running unit writes its checkpoint at its next chunk boundary, prefetched units not yet started are
-handed back; the workers exit 0 and rank 0 with the status of an unfinished run (``qmc run``).  A failed task is recorded (status ``failed`` and its message) and the
-others go on.
+handed back; the workers exit 0 and rank 0 with the status of an unfinished run (``qmc run``).  A failed
+task is recorded (status ``failed`` and its message) and the others go on.
 """
 
 from __future__ import annotations

@@ -53,11 +53,12 @@ class Survey:
     """The run directory against a configuration.
 
     ``index``: the run index to keep (None: a new one is written); ``index_aside``: why the old one is set
-    aside, a reason key or text for :meth:`reason` ("" when it is kept or there is none); ``status``: per task of the configuration with a kept
-    file, ``(status, failure message, header)`` with the status as the new configuration sees it
-    (``done`` only when the file has all the steps asked for); ``aside``: files to rename aside with the
-    reason (for :meth:`reason`); ``kept``: ids of the tasks whose files are kept; ``grown``: those of
-    them that were finished and now continue; ``others``: ids in the old index that the configuration no
+    aside, a reason key or text for :meth:`reason` ("" when it is kept or there is none); ``status``: per
+    task of the configuration with a kept file, ``(status, failure message, header)`` with the status as
+    the new configuration sees it (``done`` only when the file has all the steps asked for); ``aside``:
+    files to rename aside with the reason (for :meth:`reason`); ``kept``: ids of the tasks whose files are
+    kept; ``grown``: those of them that were finished and now continue; ``others``: ids in the old index
+    that the configuration no
     longer has (their files stay in the run)."""
 
     index: dict[str, Any] | None
