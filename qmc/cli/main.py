@@ -1,4 +1,4 @@
-"""Command line: ``qmc run | summary | inspect | analyze | new | validate``.
+"""Command line: ``qmc run | status | summary | inspect | analyze | new | validate``.
 
 Bad input of any kind (configuration, run directory, task file, option) prints one line
 ``error: <where>: <what>`` on standard error and exits with status 2, without a traceback.  Exit status of
@@ -19,6 +19,7 @@ import click
 from qmc.cli.results import analyze_cmd, inspect_cmd, summary_cmd
 from qmc.cli.run import run_cmd
 from qmc.cli.setup import new_cmd, validate_cmd
+from qmc.cli.status import status_cmd
 from qmc.errors import UserError
 
 __all__ = ["cli", "main"]
@@ -53,12 +54,13 @@ class _Cli(click.Group):
 def cli() -> None:
     """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 spin models.
 
-    Write a configuration (`qmc new`), run it (`qmc run`, serially or under mpiexec; rerun to resume),
-    then read the results (`qmc summary`, `qmc analyze`, `qmc inspect`).
+    Write a configuration (`qmc new`), run it (`qmc run`, serially or under mpiexec; rerun to resume,
+    edit and rerun to grow it), watch it (`qmc status`), then read the results (`qmc summary`,
+    `qmc analyze`, `qmc inspect`).
     """
 
 
-for _command in (run_cmd, summary_cmd, inspect_cmd, analyze_cmd, new_cmd, validate_cmd):
+for _command in (run_cmd, status_cmd, summary_cmd, inspect_cmd, analyze_cmd, new_cmd, validate_cmd):
     cli.add_command(_command)
 
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import logging
 import os
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -64,6 +65,7 @@ class TaskBook:
         self.rows: list[np.ndarray] = []
         self.sessions: list[dict[str, Any]] = []
         self.session: dict[str, Any] = {}
+        self.session_start = time.time()
         self.last: TaskRecord | None = None
         self.bins_done = 0
         self.steps_done = 0
@@ -101,9 +103,11 @@ class TaskBook:
         self.keep_sessions(data)
 
     def begin_session(self, steps: int) -> None:
-        """Start the record of this process's session (from step ``steps``)."""
+        """Start the record of this process's session (from step ``steps``); its ``seconds`` are the wall
+        time from here to the last write."""
         self.session = session_entry(now_iso(), steps)
         self.sessions.append(self.session)
+        self.session_start = time.time()
 
     # -------------------------------------------------------------------------------------------- writing
     def record(self, sim: Simulation, model: CompiledModel, status: str, source: ConfigSource, t: float, *,
@@ -113,7 +117,8 @@ class TaskBook:
         """The file content now (time ``t``): the chain's bins and state, ``checkpoint`` arrays instead of
         ``sim.state()`` and extra ``checkpoint_attrs`` if given, an ``/exchange`` group if given."""
         task = self.task
-        self.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status)
+        self.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status,
+                            seconds=round(t - self.session_start, 3))
         params = dict(task.params)
         for k, v in (("lattice", task.lattice_kind), ("size", list(task.size)), ("boundary", task.boundary)):
             params.setdefault(k, v)

@@ -223,8 +223,9 @@ def _check_root(f: Any, path: Path) -> None:
 
 
 def task_header(path: str | os.PathLike) -> dict[str, Any]:
-    """Root attributes, checkpoint counters (``checkpoint_<attr>``) and bin attributes (``bins_<attr>``,
-    e.g. ``bins_steps_per_bin``) of a task file (cheap); UserError if it is not one."""
+    """Root attributes, checkpoint counters (``checkpoint_<attr>``), bin attributes (``bins_<attr>``, e.g.
+    ``bins_steps_per_bin``) and ``sessions`` (the list of provenance) of a task file (cheap); UserError if
+    it is not one."""
     path = Path(path)
     f = _open(path)
     try:
@@ -235,6 +236,9 @@ def task_header(path: str | os.PathLike) -> dict[str, Any]:
                 g = f.get(group)
                 items = g.attrs.items() if g is not None else ()
                 head.update({f"{group}_{k}": plain(v) for k, v in items if k != "names"})
+            prov = f.get("provenance")
+            sessions = plain(prov.attrs.get("sessions", "[]")) if prov is not None else "[]"
+            head["sessions"] = json.loads(sessions) if isinstance(sessions, str) else []
             return head
     except UserError:
         raise
