@@ -14,12 +14,13 @@
 
 Steps: independent copies are merged (:func:`qmc.analysis.summary.group_copies`), every point is
 summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
-(:mod:`qmc.analysis.groundstate`), and for the chosen dimensionless ``quantity`` the crossings of
-size pairs are located (:mod:`qmc.analysis.crossings`), extrapolated as
-``g*(L) = g_c + a L^(-omega)`` and ``1/nu(L) = 1/nu + b L^(-omega')``
-(:mod:`qmc.analysis.extrapolate`) and a data collapse is fitted (:mod:`qmc.analysis.collapse`)
-using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max`` at the starting values
-(the crossing and 1/nu of the largest size pair).
+(:mod:`qmc.analysis.groundstate`), the points are split by the values of other parameters that vary at
+fixed L, coupling and beta (``crossing_groups``; e.g. two values of J, or none), and in each group, for
+the chosen dimensionless ``quantity``, the crossings of size pairs are located
+(:mod:`qmc.analysis.crossings`), extrapolated as ``g*(L) = g_c + a L^(-omega)`` and
+``1/nu(L) = 1/nu + b L^(-omega')`` (:mod:`qmc.analysis.extrapolate`) and a data collapse is fitted
+(:mod:`qmc.analysis.collapse`) using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max``
+at the starting values (the crossing and 1/nu of the largest size pair).
 Here ``L`` is the smaller size of each pair, and both fits share ``omega_fixed`` when too few
 pairs exist to fit the exponent.  The crossing analysis and the plots versus the coupling use the
 largest beta available at each (L, g).
@@ -44,9 +45,9 @@ from .crossings import find_crossings
 from .errors import AnalysisError
 from .extrapolate import Extrapolation, extrapolate
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
-from .scan import curves_for, detect_coupling, other_varying, scan_points
+from .scan import curves_for, detect_coupling, group_points, grouping_params, other_varying, scan_points
 from .size_extrapolation import as_dicts, extrapolate_sizes, extrapolation_table, format_extrapolations
-from .summary import group_copies, summarize_task
+from .summary import few_bins_warning, group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
 
 __all__ = ["CROSSING_QUANTITIES", "analyze_run", "format_result"]
@@ -134,27 +135,30 @@ def _make_plots(
     out: Path,
     extra: list[str],
     hist_of: dict[str, tuple],
+    group: str = "",
 ) -> list[Path]:
+    """The plots of one group of points (file names end in ``_<group>`` when given)."""
     from .plots import plot_collapse, plot_crossing_drift, plot_vbs_histograms, plot_vs_coupling
 
     pdir = out / "plots"
+    tail = f"_{group}" if group else ""
     files: list[Path] = []
     if coupling is not None:
         for name in names:
             curves = curves_for(points, name, extra)
             if curves:
-                files += plot_vs_coupling(curves, name, coupling, pdir / f"obs_{_safe(name)}")
+                files += plot_vs_coupling(curves, name, coupling, pdir / f"obs_{_safe(name)}{tail}")
     if plot_data.get("crossings"):
         files += plot_crossing_drift(
             plot_data["crossings"],
             plot_data["ext"],
             plot_data["inv"],
             quantity,
-            pdir / f"crossings_{_safe(quantity)}",
+            pdir / f"crossings_{_safe(quantity)}{tail}",
         )
     if plot_data.get("collapse") is not None:
         files += plot_collapse(
-            plot_data["curves"], plot_data["collapse"], quantity, pdir / f"collapse_{_safe(quantity)}"
+            plot_data["curves"], plot_data["collapse"], quantity, pdir / f"collapse_{_safe(quantity)}{tail}"
         )
     best: dict[tuple, dict] = {}
     for p in points:
@@ -167,7 +171,7 @@ def _make_plots(
         title = f"L={L:g}" + (f", {coupling}={g:g}" if coupling else "") + f", beta={p['beta']:g}"
         by_size.setdefault(L, []).append((title, hist, r))
     for L, items in by_size.items():
-        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}")
+        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}{tail}")
     return files
 
 
@@ -205,7 +209,9 @@ def analyze_run(
     """Analyse all tasks of a run and write tables (and plots); returns a JSON-ready result dict.
 
     Result keys: ``out_dir, n_tasks, n_points, coupling, sizes, betas, observables, quantity,
-    crossings`` (None when not possible; else ``pairs``, ``g_c``, ``inv_nu``, ``nu``, ``collapse``),
+    crossings`` (None when not possible, or with several groups; else ``pairs``, ``g_c``, ``inv_nu``, ``nu``,
+    ``collapse``), ``crossing_groups`` (one ``{"group": {name: value}, "crossings": ...}`` per value of the
+    other parameters that vary at fixed L, coupling and beta; one group ``{}`` when none do),
     ``extrapolations`` (one dict per fit, see :class:`~qmc.analysis.size_extrapolation.SizeExtrapolation`;
     ``powers``, ``min_L``, ``full_vector`` as in :func:`~qmc.analysis.size_extrapolation.extrapolate_sizes`),
     ``ground_state`` (``pairs_checked``, ``flags``), ``warnings``, ``files``.  NaN values appear as
@@ -225,6 +231,9 @@ def analyze_run(
     merged = group_copies(task_list)
     summaries = [summarize_task(m) for m in merged]
     warnings = [w for s in summaries for w in s["warnings"]]
+    few = few_bins_warning(summaries)
+    if few:
+        warnings.insert(0, few)
     try:
         coupling = detect_coupling(summaries, coupling)
     except AnalysisError as exc:
@@ -266,14 +275,28 @@ def analyze_run(
         collapse_degree=collapse_degree,
         collapse_x_max=collapse_x_max,
     )
-    if quantity in names:
-        crossings, plot_data = _crossing_analysis(points, quantity, coupling, extra, opts, warnings)
-    else:
-        crossings, plot_data = None, {}
+    by = grouping_params(points, extra)
+    groups = group_points(points, by)  # the crossing analysis and the plots per value of the others
+    if by:
+        warnings.append(f"coupling {coupling}; {', '.join(by)} also var{'ies' if len(by) == 1 else 'y'}: "
+                        f"crossings and plots are made for each of the {len(groups)} value(s) separately "
+                        "(--coupling chooses another coupling)")
+    crossing_groups = []
+    for values, members in groups:
+        label = ", ".join(f"{k}={v}" for k, v in values.items())
+        if quantity in names:
+            said: list[str] = []
+            crossings, plot_data = _crossing_analysis(members, quantity, coupling, [], opts, said)
+            warnings += [f"{label}: {w}" if label else w for w in said]
+        else:
+            crossings, plot_data = None, {}
+        crossing_groups.append({"group": values, "crossings": crossings})
+        if plot:
+            files += _make_plots(members, names, coupling, quantity, plot_data, out, [], hist_of,
+                                 _safe(label.replace(", ", "_")))
+    if quantity not in names:
         warnings.append(f"{quantity}: not available in these tasks: crossing analysis skipped")
-
     if plot:
-        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of)
         files += _extrapolation_plots(extrapolations, out)
 
     result = {
@@ -286,7 +309,8 @@ def analyze_run(
         "betas": sorted({p["beta"] for p in points}),
         "observables": names,
         "quantity": quantity,
-        "crossings": crossings,
+        "crossings": crossing_groups[0]["crossings"] if len(crossing_groups) == 1 else None,
+        "crossing_groups": crossing_groups,
         "extrapolations": extrapolations,
         "ground_state": ground,
         "warnings": warnings,
@@ -310,20 +334,24 @@ def format_result(result: dict[str, Any]) -> str:
         f"tasks: {result['n_tasks']}  points: {result['n_points']}  coupling: {result['coupling']}",
         f"sizes: {', '.join(f'{L:g}' for L in result['sizes'])}",
     ]
-    cr = result.get("crossings")
-    if cr and not cr["pairs"]:
-        lines.append(f"crossings of {cr['quantity']}: none found")
-    elif cr:
-        lines.append(f"crossings of {cr['quantity']}:")
-        for p in cr["pairs"]:
-            lines.append(
-                f"  L={p['L1']:g},{p['L2']:g}: g*={_pm(p, 'g', 'g_err')}"
-                f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
-            )
-        lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
-        if cr.get("collapse"):
-            c = cr["collapse"]
-            lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
+    groups = result.get("crossing_groups") or [{"group": {}, "crossings": result.get("crossings")}]
+    for entry in groups:
+        cr = entry["crossings"]
+        label = ", ".join(f"{k}={v}" for k, v in (entry.get("group") or {}).items())
+        at = f" at {label}" if label else ""
+        if cr and not cr["pairs"]:
+            lines.append(f"crossings of {cr['quantity']}{at}: none found")
+        elif cr:
+            lines.append(f"crossings of {cr['quantity']}{at}:")
+            for p in cr["pairs"]:
+                lines.append(
+                    f"  L={p['L1']:g},{p['L2']:g}: g*={_pm(p, 'g', 'g_err')}"
+                    f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
+                )
+            lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
+            if cr.get("collapse"):
+                c = cr["collapse"]
+                lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}")
     lines += format_extrapolations(result.get("extrapolations") or [])
     gs = result["ground_state"]
     lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")

@@ -28,6 +28,14 @@ def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...])
     }
 
 
+def _scan_value(e: ScanEntry) -> str | list:
+    if e.derived:
+        return e.expression.canonical
+    if e.choices:  # a list of expressions (entries of the other kinds keep their fingerprints)
+        return ["choices", [c.canonical for c in e.choices]]
+    return [canonical_number(v) for v in e.values]
+
+
 def _hash(content: dict) -> str:
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
@@ -50,8 +58,7 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
     s = sampling
     content = {
         **_physics(run, lattice, terms),
-        "scan": [[e.name, e.expression.canonical if e.derived else [canonical_number(v) for v in e.values]]
-                 for e in scan],
+        "scan": [[e.name, _scan_value(e)] for e in scan],
         "sampling": {"warmup_steps": s.warmup_steps, "measure_steps": s.measure_steps, "bins": s.bins,
                      "copies": s.copies, "exchange": s.exchange},
     }
