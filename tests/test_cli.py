@@ -391,3 +391,14 @@ def test_serial_run_of_an_exchange_ladder(tmp_path):
     result = invoke("inspect", task_path(tmp_path / "run", "L4_J1_beta1_c0"))
     assert result.exit_code == 0 and "exchange" in result.stdout
     assert invoke("summary", tmp_path / "run").exit_code == 0
+
+
+def test_run_help_documents_the_exit_status():
+    from qmc.cli.run import EXIT_UNFINISHED
+
+    text = invoke("run", "--help").stdout
+    assert f"{EXIT_UNFINISHED}  stopped before the end (SIGTERM, Ctrl-C, --max-time)" in text
+    assert "run the same command again to continue" in text and "2   bad input" in text
+    assert f"exit status {EXIT_UNFINISHED}" in " ".join(text.split())  # --max-time
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    assert f"**{EXIT_UNFINISHED} when it stopped before the end**" in readme

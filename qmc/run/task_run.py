@@ -202,7 +202,7 @@ class TaskRun:
                 ctx.log.info("%s: already done", self.label)
             return "done"
         say = getattr(ctx.sink, "message", None)  # sinks that show text lines (the terminal's)
-        if not self.fresh and self.speaks and say is not None:
+        if not self.fresh and self.steps_done > 0 and self.speaks and say is not None:
             say(f"resuming {self.label} at step {self.steps_done} of {self.total_steps} "
                 f"({self._chains()[0].bins_done} of {bins_total} bins)")
         ctx.sink.task_started(first.task.task_id, m * self.steps_done, m * self.total_steps, bins_total)
