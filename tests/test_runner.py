@@ -282,8 +282,9 @@ def test_foreign_task_file_in_run_is_reported_by_run_task(tmp_path):
     assert path.read_text() == "not ours"
 
 
-@pytest.mark.parametrize("other, says", [(dict(seed=12), "different model, lattice, beta or seed"),
-                                         (dict(measure=4000), "cannot change its bin length")])
+@pytest.mark.parametrize("other, says", [
+    (dict(seed=12), "different model, lattice, beta, seed or exchange ladder"),
+    (dict(measure=4000), "cannot change its bin length")])
 def test_mismatched_task_file_is_not_resumed(tmp_path, other, says):
     cfg = load_config(config_file(tmp_path))
     written = load_config(config_file(tmp_path, name="o.toml", **other))

@@ -42,7 +42,7 @@ PHYSICS = "physics"
 
 _REASONS = {
     PHYSICS: "the master seed, lattice or terms differ from those of the run",
-    CHAIN: "written for another model, lattice, beta or seed than the task of the same name",
+    CHAIN: "written for another model, lattice, beta, seed or exchange ladder than the task of the same name",
     WARMUP: "measured after another number of warm-up steps",
     BIN_LENGTH: "bins of another length (measure_steps / bins)",
 }

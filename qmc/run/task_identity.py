@@ -4,7 +4,8 @@ and how a stored task file relates to a task of the configuration (:func:`stored
 A task's chain is one endless stream of Monte Carlo steps: the warm-up, then bins of ``measure_steps /
 bins`` steps each.  ``measure_steps`` only says where the stream stops, so a file of the same chain with a
 different number of bins *of the same length* is the same stream cut elsewhere: it continues (more bins)
-or is already done (fewer asked).  A different bin length, warm-up, model, beta or seed is another chain.
+or is already done (fewer asked).  A different bin length, warm-up, model, beta, seed or exchange ladder
+is another chain.
 
 Shared by the task files (:mod:`qmc.run.task_book`), the run planning (:mod:`qmc.run.plan`) and the MPI
 farm's queue (:mod:`qmc.mpi.schedule`).
@@ -105,4 +106,4 @@ def mismatch_text(relation: str, task: Task, stored_steps_per_bin: int, stored_b
         warmup = stored_steps_total - stored_steps_per_bin * stored_bins
         return (f"was measured after {warmup} warm-up steps, this configuration asks for {s.warmup_steps}; "
                 "its bins cannot count as measured after another warm-up")
-    return "was written for a different model, lattice, beta or seed than this task"
+    return "was written for a different model, lattice, beta, seed or exchange ladder than this task"
