@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from stop_sink import StopAfter
 
 from qmc.cli.main import cli
 from qmc.config.parser import load_config
@@ -106,22 +107,7 @@ def test_a_grown_run_stopped_and_resumed_is_still_bit_identical(tmp_path):
     run(short, tmp_path / "grown")
     plan = prepare_run(load_config(long), tmp_path / "grown")
     flag = StopFlag()
-
-    class StopSoon:
-        def task_started(self, *a):
-            pass
-
-        def task_advanced(self, steps_done, bins_done):
-            if steps_done > 800:
-                flag.set("test stop")
-
-        def task_finished(self, status):
-            pass
-
-        def outcome(self, o, rank=None):
-            pass
-
-    report = run_serial(plan, stop_flag=flag, progress=StopSoon())
+    report = run_serial(plan, stop_flag=flag, progress=StopAfter(flag, 801))
     assert report.unfinished and read_task(task_path(plan.run_dir, "L6_Q0.5_beta2_c0")).status == "stopped"
     run(long, tmp_path / "grown")
     run(long, tmp_path / "direct")

@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from stop_sink import StopAfter
 
 import qmc.run.pacing as pacing
 import qmc.run.single as single
@@ -69,24 +70,6 @@ def direct_bins(task) -> np.ndarray:
 def stored_rows(path: Path, names) -> np.ndarray:
     d = read_task(path)
     return np.column_stack([d.bins[n] for n in names])
-
-
-class StopAfter:
-    """Progress sink that sets a stop flag once a number of steps is done."""
-
-    def __init__(self, flag: StopFlag, steps: int) -> None:
-        self.flag, self.steps, self.calls = flag, steps, 0
-
-    def task_started(self, *a):
-        pass
-
-    def task_advanced(self, steps_done, bins_done):
-        self.calls += 1
-        if steps_done >= self.steps:
-            self.flag.set("test stop")
-
-    def task_finished(self, status):
-        pass
 
 
 def test_run_task_matches_an_unchunked_simulation(tmp_path):

@@ -9,6 +9,7 @@ from pathlib import Path
 import h5py
 import pytest
 from click.testing import CliRunner
+from stop_sink import StopAfter
 
 from qmc.cli.main import cli
 from qmc.cli.status import status_text
@@ -55,19 +56,7 @@ def mixed_run(tmp_path_factory) -> Path:
     cfg = load_config(config)
     task = next(t for t in cfg.tasks() if t.task_id == "L6_J1_beta1_c0")
     flag = StopFlag()
-
-    class StopHalfway:
-        def task_started(self, *a):
-            pass
-
-        def task_advanced(self, steps_done, bins_done):
-            if bins_done >= 10:
-                flag.set("test")
-
-        def task_finished(self, status):
-            pass
-
-    run_task(task, tmp / "run", stop_flag=flag, progress=StopHalfway())
+    run_task(task, tmp / "run", stop_flag=flag, progress=StopAfter(flag, bins=10))
     mp = pytest.MonkeyPatch()
     import qmc.run.single as single
 
