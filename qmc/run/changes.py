@@ -23,15 +23,7 @@ from typing import Any
 
 from qmc.config.parser import RunConfig, Task, load_config
 from qmc.errors import UserError
-from qmc.run.task_identity import (
-    BIN_LENGTH,
-    CHAIN,
-    LENGTH,
-    WARMUP,
-    mismatch_text,
-    steps_total,
-    stored_relation,
-)
+from qmc.run.task_identity import BIN_LENGTH, CHAIN, LENGTH, WARMUP, finished, mismatch_text, stored_relation
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import task_header, task_path
 
@@ -102,7 +94,7 @@ def _status(head: dict[str, Any], task: Task) -> tuple[str, str]:
     status = head.get("status", "")
     if status == "failed":
         return status, head.get("message", "")
-    if status == "done" and int(head.get("checkpoint_steps_done", 0)) >= steps_total(task):
+    if finished(task, status, int(head.get("checkpoint_steps_done", 0))):
         return "done", ""
     return "stopped", ""
 

@@ -45,7 +45,7 @@ from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
 from qmc.run.outcome import StopSignal, TaskOutcome, failure_message
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
-from qmc.run.task_identity import steps_total
+from qmc.run.task_identity import finished
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
 from qmc.storage.task_file import TaskData
 
@@ -107,7 +107,7 @@ class LadderRun(TaskRun):
                 group[step] = cands[0][step][1]
                 if not all(_same_state(c[step][1], group[step]) for c in cands[1:]):
                     group[step] = None
-            done = all(f is not None and f[0].status == "done" and f[0].steps_done >= steps_total(book.task)
+            done = all(f is not None and finished(book.task, f[0].status, f[0].steps_done)
                        for f, book in zip(found, self.books, strict=True))
             ended = {f[0].steps_done for f in found if f is not None and f[0].steps_done == f[0].steps_total}
             return {"done": done, "steps": local, "group": group, "ended": ended}

@@ -30,15 +30,14 @@ __all__ = ["RunPlan", "prepare_run"]
 @dataclass
 class RunPlan:
     """What ``qmc run`` will do: ``tasks`` to run in order (unfinished, largest first), ``done`` ids that are
-    finished already, the ``index`` (already written), the paths of the files renamed aside by ``--force``
-    (``moved``), and what became of the directory's contents (:mod:`qmc.run.changes`)."""
+    finished already, the ``index`` (already written), and what became of the directory's contents
+    (:mod:`qmc.run.changes`)."""
 
     run_dir: Path
     config: RunConfig
     tasks: list[Task]
     done: list[str]
     index: dict[str, Any]
-    moved: list[str] = field(default_factory=list)
     set_aside: list[tuple[str, str, str]] = field(default_factory=list)
     """``(path, renamed to, why)`` of every file renamed aside by ``--force``."""
     kept: list[str] = field(default_factory=list)
@@ -164,5 +163,4 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
     todo = [t for t in selected if index["tasks"][t.task_id]["status"] != "done"]
     todo.sort(key=lambda t: (-math.prod(t.size), -t.beta, order[t.task_id]))
     done = [t.task_id for t in selected if index["tasks"][t.task_id]["status"] == "done"]
-    return RunPlan(run_dir, config, todo, done, index, [m[1] for m in moved], moved, found.kept, found.grown,
-                   found.others)
+    return RunPlan(run_dir, config, todo, done, index, moved, found.kept, found.grown, found.others)

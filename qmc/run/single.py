@@ -21,7 +21,7 @@ from qmc.config.parser import Task, build_model
 from qmc.run.outcome import StopSignal, TaskOutcome
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
-from qmc.run.task_identity import steps_total
+from qmc.run.task_identity import finished
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
 
 __all__ = ["SingleRun", "run_task"]
@@ -42,7 +42,7 @@ class SingleRun(TaskRun):
         data = book.read()
         log = self.ctx.log
         if data is not None:
-            if data.status == "done" and data.steps_done >= steps_total(task):
+            if finished(task, data.status, data.steps_done):
                 return False
             sim = Simulation.restore(model, task.beta, state=data.checkpoint, **kw)
             book.resume(data, sim)

@@ -21,7 +21,7 @@ import math
 from qmc.config.parser import Task
 
 __all__ = ["task_fingerprint", "task_weight", "steps_total", "steps_per_bin", "SAME", "LENGTH",
-           "BIN_LENGTH", "WARMUP", "CHAIN", "stored_relation", "with_length", "mismatch_text"]
+           "BIN_LENGTH", "WARMUP", "CHAIN", "finished", "stored_relation", "with_length", "mismatch_text"]
 
 SAME = "same"
 """The file was written for exactly this task."""
@@ -62,6 +62,12 @@ def steps_total(task: Task) -> int:
 def steps_per_bin(task: Task) -> int:
     """Monte Carlo steps averaged in one bin: ``measure_steps / bins``."""
     return task.sampling.measure_steps // max(task.sampling.bins, 1)
+
+
+def finished(task: Task, status: str, steps_done: int) -> bool:
+    """Whether a file of ``task`` (status and checkpoint step as stored) has all the steps the task asks
+    for: a file finished for fewer steps continues."""
+    return status == "done" and steps_done >= steps_total(task)
 
 
 def with_length(task: Task, *, bins: int, measure_steps: int, warmup_steps: int | None = None) -> Task:
