@@ -348,6 +348,22 @@ def test_progress_counts_tasks_done_on_any_rank():
     assert out.getvalue().count("\n") == 4  # start a, b's line, done a, c's line
 
 
+def test_progress_of_a_ladder_counts_its_work_once():
+    """A ladder of three chains reports the steps of all its chains under its first task; the outcomes
+    of its three tasks then count them as done without counting their work again."""
+    from qmc.run.outcome import TaskOutcome
+
+    p = Progress(io.StringIO(), clock=Clock(), tty=False, plain_interval=1e9)
+    p.plan([(f"x{i}", 2.0, 100, 0) for i in range(3)])
+    p.task_started("x0", 0, 300, 10)
+    p.task_advanced(300, 10)
+    p.task_finished("done")
+    for i in range(3):
+        p.outcome(TaskOutcome(f"x{i}", "done", steps_done=100))
+    assert p.work_done == pytest.approx(p.work_total) == pytest.approx(600.0)
+    assert p.count() == "[3/3 done]"
+
+
 def test_progress_terminal_redraws_in_place():
     clock = Clock()
     out = io.StringIO()

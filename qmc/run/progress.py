@@ -210,12 +210,14 @@ class Progress(LineDisplay):
         self.current = None
 
     def outcome(self, outcome: Any, rank: int | None = None) -> None:
-        """A task ended (``outcome`` is a :class:`~qmc.run.outcome.TaskOutcome`), here or on ``rank``: count
-        it, and its work; a line is printed for tasks of other ranks."""
-        self._credit(outcome.task_id, int(outcome.steps_done))
+        """A task ended (``outcome`` is a :class:`~qmc.run.outcome.TaskOutcome`), here (``rank`` None or 0)
+        or on another rank: count it if done; the work of another rank's task counts now (that of this
+        process's was counted as it went: a ladder reports all its local chains' steps under its first
+        task), with a line on it."""
         if outcome.status == "done":
             self.done_ids.add(outcome.task_id)
         if rank is not None and rank != 0:
+            self._credit(outcome.task_id, int(outcome.steps_done))
             extra = f": {outcome.message}" if outcome.message and outcome.status != "done" else ""
             self.message(f"{outcome.status} {outcome.task_id} on rank {rank} ({outcome.bins_done}/"
                          f"{outcome.bins_total} bins, {outcome.seconds:.1f} s) {self.count()}{extra}")
