@@ -150,15 +150,16 @@ def test_default_powers_follow_the_dimension_and_the_observable(tmp_path):
     assert default_powers("m_stag2", 3)[1].endswith("(common practice, no source)")
 
 
-def test_two_independent_couplings_skip_only_the_crossings(tmp_path):
+def test_two_independent_couplings_are_analysed_for_each_value_of_the_other(tmp_path):
     tasks = [task(L, 2 * L, {"g": g, "h": h}, seed=L + 10 * k) for L in SIZES
              for k, (g, h) in enumerate([(0.5, 0.1), (0.5, 0.2), (1.0, 0.1), (1.0, 0.2)])]
-    with pytest.raises(AnalysisError, match="several parameters vary"):
-        analyze_run(tasks, tmp_path)
+    result = analyze_run(tasks, tmp_path)
+    assert result["coupling"] == "g" and [c["group"] for c in result["crossing_groups"]] == [{"h": 0.1},
+                                                                                            {"h": 0.2}]
+    assert any(w.startswith("coupling g; h also varies") for w in result["warnings"])
     result = analyze_run(tasks, tmp_path, extrapolate=("m_stag2",))
     assert sorted((r["params"]["g"], r["params"]["h"]) for r in result["extrapolations"]) == [
         (0.5, 0.1), (0.5, 0.2), (1.0, 0.1), (1.0, 0.2)]
-    assert any(w.startswith("crossing analysis skipped") for w in result["warnings"])
 
 
 def test_a_smallest_size_off_the_fitted_form_is_flagged(tmp_path):

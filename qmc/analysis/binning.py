@@ -49,6 +49,7 @@ import numpy as np
 
 __all__ = [
     "MIN_BINS",
+    "MIN_SERIES",
     "MIN_HALF",
     "BLOCK_FACTOR",
     "BinningLevels",
@@ -62,6 +63,9 @@ __all__ = [
 
 MIN_BINS = 32
 """The plateau level must keep at least this many blocks."""
+MIN_SERIES = 2 * MIN_BINS
+"""The fewest bins with which the plateau rule can work (two usable levels of MIN_BINS blocks); with fewer,
+the error is the naive one, a lower bound."""
 MIN_HALF = 8
 """The warm-up (halves) check needs at least this many values in each half."""
 BLOCK_FACTOR = 24.0

@@ -14,12 +14,13 @@
 
 Steps: independent copies are merged (:func:`qmc.analysis.summary.group_copies`), every point is
 summarised, the coupling is detected (:mod:`qmc.analysis.scan`), beta/2 beta pairs are compared
-(:mod:`qmc.analysis.groundstate`), and for the chosen dimensionless ``quantity`` the crossings of
-size pairs are located (:mod:`qmc.analysis.crossings`), extrapolated as
-``g*(L) = g_c + a L^(-omega)`` and ``1/nu(L) = 1/nu + b L^(-omega')``
-(:mod:`qmc.analysis.extrapolate`) and a data collapse is fitted (:mod:`qmc.analysis.collapse`)
-using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max`` at the starting values
-(the crossing and 1/nu of the largest size pair).
+(:mod:`qmc.analysis.groundstate`), the points are split by the values of other parameters that vary at
+fixed L, coupling and beta (``crossing_groups``; e.g. two values of J, or none), and in each group, for
+the chosen dimensionless ``quantity``, the crossings of size pairs are located
+(:mod:`qmc.analysis.crossings`), extrapolated as ``g*(L) = g_c + a L^(-omega)`` and
+``1/nu(L) = 1/nu + b L^(-omega')`` (:mod:`qmc.analysis.extrapolate`) and a data collapse is fitted
+(:mod:`qmc.analysis.collapse`) using, per size, the points with ``|g - g_c| L^(1/nu) <= collapse_x_max``
+at the starting values (the crossing and 1/nu of the largest size pair).
 Here ``L`` is the smaller size of each pair, and both fits share ``omega_fixed`` when too few
 pairs exist to fit the exponent.  The crossing analysis and the plots versus the coupling use the
 largest beta available at each (L, g).
@@ -47,9 +48,9 @@ from .fit_quality import crossing_caveats, fit_quality
 from .groundstate import GROUND_STATE_OBSERVABLES, beta_doubling_check
 from .labels import axis_label, coupling_label, describe, observable_note
 from .run_text import RunText, run_text
-from .scan import curves_for, detect_coupling, other_varying, scan_points
+from .scan import curves_for, detect_coupling, group_points, grouping_params, other_varying, scan_points
 from .size_extrapolation import as_dicts, extrapolate_sizes, extrapolation_table, format_extrapolations
-from .summary import group_copies, summarize_task
+from .summary import few_bins_warning, group_copies, summarize_task
 from .tables import observable_names, table_rows, to_jsonable, write_csv, write_json
 from .vbs import task_value_grid
 
@@ -154,18 +155,21 @@ def _make_plots(
     text: RunText,
     caveats: Sequence[str] = (),
     observables: bool = True,
+    group: str = "",
 ) -> list[Path]:
+    """The plots of one group of points (file names end in ``_<group>`` when given)."""
     from .plots import plot_collapse, plot_crossing_drift, plot_vbs_histograms, plot_vs_coupling
 
     pdir = out / "plots"
     title = text.title()
+    tail = f"_{group}" if group else ""
     files: list[Path] = []
     xlabel = coupling_label(coupling, text.couplings.get(coupling or "", ""))
     if coupling is not None and observables:
         for name in names:
             curves = curves_for(points, name, extra)
             if curves:
-                files += plot_vs_coupling(curves, axis_label(name), xlabel, pdir / f"obs_{_safe(name)}",
+                files += plot_vs_coupling(curves, axis_label(name), xlabel, pdir / f"obs_{_safe(name)}{tail}",
                                           title=title, note=observable_note(name))
     if plot_data.get("crossings"):
         files += plot_crossing_drift(
@@ -173,7 +177,7 @@ def _make_plots(
             plot_data["ext"],
             plot_data["inv"],
             _symbol(quantity),
-            pdir / f"crossings_{_safe(quantity)}",
+            pdir / f"crossings_{_safe(quantity)}{tail}",
             coupling=coupling or "g",
             title=title,
             note="Caveats: " + "; ".join(caveats) if caveats else "",
@@ -181,7 +185,7 @@ def _make_plots(
     if plot_data.get("collapse") is not None:
         files += plot_collapse(
             plot_data["curves"], plot_data["collapse"], axis_label(quantity),
-            pdir / f"collapse_{_safe(quantity)}", coupling=coupling or "g", title=title,
+            pdir / f"collapse_{_safe(quantity)}{tail}", coupling=coupling or "g", title=title,
             note=observable_note(quantity),
         )
     best: dict[tuple, dict] = {}
@@ -198,7 +202,7 @@ def _make_plots(
             panel += f"\n<cos 4theta> = {cos4:.3f} +- {p['vbs'].get('cos4_err', float('nan')):.2g}"
         by_size.setdefault(L, []).append((panel, hist, r, grid))
     for L, items in by_size.items() if observables else ():
-        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}", title=title,
+        files += plot_vbs_histograms(items, pdir / f"vbs_L{_safe(f'{L:g}')}{tail}", title=title,
                                      note=observable_note("vbs_cos4"))
     return files
 
@@ -238,8 +242,10 @@ def analyze_run(
     """Analyse all tasks of a run and write tables (and plots); returns a JSON-ready result dict.
 
     Result keys: ``out_dir, n_tasks, n_points, coupling, sizes, betas, observables, quantity,
-    crossings`` (None when not possible; else ``pairs``, ``g_c`` and ``inv_nu`` with their fit ``quality``,
-    ``nu``, ``collapse`` with its ``quality``, ``caveats``),
+    crossings`` (None when not possible, or with several groups; else ``pairs``, ``g_c`` and ``inv_nu`` with
+    their fit ``quality``, ``nu``, ``collapse`` with its ``quality``, ``caveats``), ``crossing_groups`` (one
+    ``{"group": {name: value}, "crossings": ...}`` per value of the other parameters that vary at fixed L,
+    coupling and beta; one group ``{}`` when none do),
     ``extrapolations`` (one dict per fit, see :class:`~qmc.analysis.size_extrapolation.SizeExtrapolation`;
     ``powers``, ``min_L``, ``full_vector`` as in :func:`~qmc.analysis.size_extrapolation.extrapolate_sizes`),
     ``ground_state`` (``pairs_checked``, ``flags``), ``warnings``, ``files``.  NaN values appear as
@@ -261,6 +267,9 @@ def analyze_run(
     merged = group_copies(task_list)
     summaries = [summarize_task(m) for m in merged]
     warnings = [w for s in summaries for w in s["warnings"]]
+    few = few_bins_warning(summaries)
+    if few:
+        warnings.insert(0, few)
     try:
         coupling = detect_coupling(summaries, coupling)
     except AnalysisError as exc:
@@ -305,15 +314,29 @@ def analyze_run(
         collapse_degree=collapse_degree,
         collapse_x_max=collapse_x_max,
     )
-    if quantity in names:
-        crossings, plot_data = _crossing_analysis(points, quantity, coupling, extra, opts, warnings)
-    else:
-        crossings, plot_data = None, {}
+    by = grouping_params(points, extra)
+    groups = group_points(points, by)  # the crossing analysis and the plots per value of the others
+    if by:
+        warnings.append(f"coupling {coupling}; {', '.join(by)} also var{'ies' if len(by) == 1 else 'y'}: "
+                        f"crossings and plots are made for each of the {len(groups)} value(s) separately "
+                        "(--coupling chooses another coupling)")
+    crossing_groups = []
+    for values, members in groups:
+        label = ", ".join(f"{k}={v}" for k, v in values.items())
+        if quantity in names:
+            said: list[str] = []
+            crossings, plot_data = _crossing_analysis(members, quantity, coupling, [], opts, said)
+            warnings += [f"{label}: {w}" if label else w for w in said]
+        else:
+            crossings, plot_data = None, {}
+        crossing_groups.append({"group": values, "crossings": crossings})
+        if plot:
+            files += _make_plots(members, names, coupling, quantity, plot_data, out, [], hist_of, text,
+                                 (crossings or {}).get("caveats", ()), plot_observables,
+                                 _safe(label.replace(", ", "_")))
+    if quantity not in names:
         warnings.append(f"{quantity}: not available in these tasks: crossing analysis skipped")
-
     if plot:
-        files += _make_plots(points, names, coupling, quantity, plot_data, out, extra, hist_of, text,
-                             (crossings or {}).get("caveats", ()), plot_observables)
         files += _extrapolation_plots(extrapolations, out, text)
 
     result = {
@@ -326,7 +349,8 @@ def analyze_run(
         "betas": sorted({p["beta"] for p in points}),
         "observables": names,
         "quantity": quantity,
-        "crossings": crossings,
+        "crossings": crossing_groups[0]["crossings"] if len(crossing_groups) == 1 else None,
+        "crossing_groups": crossing_groups,
         "extrapolations": extrapolations,
         "ground_state": ground,
         "warnings": warnings,
@@ -350,26 +374,30 @@ def format_result(result: dict[str, Any]) -> str:
         f"tasks: {result['n_tasks']}  points: {result['n_points']}  coupling: {result['coupling']}",
         f"sizes: {', '.join(f'{L:g}' for L in result['sizes'])}",
     ]
-    cr = result.get("crossings")
-    if cr and not cr["pairs"]:
-        lines.append(f"crossings of {cr['quantity']}: none found")
-    elif cr:
-        lines.append(f"crossings of {cr['quantity']}:")
-        for p in cr["pairs"]:
-            lines.append(
-                f"  L={p['L1']:g},{p['L2']:g}: g*={_pm(p, 'g', 'g_err')}"
-                f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
-            )
-        lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
-        for key, what in (("g_c", "g_c fit"), ("inv_nu", "1/nu fit")):
-            q = (cr.get(key) or {}).get("quality")
-            if q and q.get("chi2_dof") is not None:
-                lines.append(f"  {what}: {q['text']}")
-        if cr.get("collapse"):
-            c = cr["collapse"]
-            lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}"
-                         + (f"  ({c['quality']['text']})" if c.get("quality") else ""))
-        lines += [f"  caveat: {text}" for text in cr.get("caveats", [])]
+    groups = result.get("crossing_groups") or [{"group": {}, "crossings": result.get("crossings")}]
+    for entry in groups:
+        cr = entry["crossings"]
+        label = ", ".join(f"{k}={v}" for k, v in (entry.get("group") or {}).items())
+        at = f" at {label}" if label else ""
+        if cr and not cr["pairs"]:
+            lines.append(f"crossings of {cr['quantity']}{at}: none found")
+        elif cr:
+            lines.append(f"crossings of {cr['quantity']}{at}:")
+            for p in cr["pairs"]:
+                lines.append(
+                    f"  L={p['L1']:g},{p['L2']:g}: g*={_pm(p, 'g', 'g_err')}"
+                    f"  1/nu={_pm(p, 'inv_nu', 'inv_nu_err')}"
+                )
+            lines.append(f"  g_c = {_pm(cr['g_c'])}   1/nu = {_pm(cr['inv_nu'])}")
+            for key, what in (("g_c", "g_c fit"), ("inv_nu", "1/nu fit")):
+                q = (cr.get(key) or {}).get("quality")
+                if q and q.get("chi2_dof") is not None:
+                    lines.append(f"  {what}: {q['text']}")
+            if cr.get("collapse"):
+                c = cr["collapse"]
+                lines.append(f"  collapse: g_c = {_pm(c, 'g_c', 'g_c_err')}  nu = {_pm(c, 'nu', 'nu_err')}"
+                             + (f"  ({c['quality']['text']})" if c.get("quality") else ""))
+            lines += [f"  caveat: {text}" for text in cr.get("caveats", [])]
     lines += format_extrapolations(result.get("extrapolations") or [])
     gs = result["ground_state"]
     lines.append(f"ground-state check: {gs['pairs_checked']} beta/2beta pair(s), {len(gs['flags'])} flag(s)")

@@ -24,13 +24,13 @@ from typing import Any
 
 import numpy as np
 
-from .binning import error_estimate
+from .binning import MIN_SERIES, error_estimate
 from .chains import bins_compatible, merge_bin_dicts, weighted_mean
 from .derived import derived_estimates
 from .tasks import COPY_PARAMS, AnalysisTask, as_record, canonical_params, params_key
 from .vbs import vbs_anisotropy
 
-__all__ = ["group_copies", "summarize_task"]
+__all__ = ["group_copies", "summarize_task", "few_bins_warning"]
 
 
 def _sum_histograms(records: list[AnalysisTask]) -> tuple[np.ndarray | None, float | None]:
@@ -120,6 +120,30 @@ def _weighted(parts: list[dict[str, dict[str, float]]]) -> dict[str, dict[str, f
     return obs
 
 
+def few_bins_warning(summaries: Iterable[dict[str, Any]]) -> str | None:
+    """One line for all the tasks with fewer than MIN_SERIES bins (``info["few_bins"]``), saying how many
+    bins to ask for; None when there are none.
+
+    Their error bars are the naive ones, lower bounds: the binning analysis needs at least MIN_SERIES bins
+    to see whether the error has converged (:mod:`qmc.analysis.binning`).  The advice keeps the bin
+    length, so that a finished run grows instead of starting over."""
+    summaries = list(summaries)
+    few = [s for s in summaries if s["info"].get("few_bins")]
+    if not few:
+        return None
+    least = min(s["info"]["n_bins"] for s in few)
+    lengths = sorted({int(s["info"]["steps_per_bin"]) for s in few})
+    if len(lengths) == 1:
+        ask = (f"bins = {MIN_SERIES} with measure_steps = {MIN_SERIES * lengths[0]} keeps the bin length of "
+               f"{lengths[0]} steps")
+    else:
+        ask = (f"bins = {MIN_SERIES} with measure_steps = {MIN_SERIES} x (steps per bin) keeps the bin "
+               "lengths")
+    return (f"{len(few)} of {len(summaries)} task(s) have fewer than {MIN_SERIES} bins (the fewest: "
+            f"{least}): their error bars are naive lower bounds, as the binning analysis needs at least "
+            f"{MIN_SERIES} bins; ask for more ({ask}, and qmc run continues the finished tasks)")
+
+
 def summarize_task(task_data: Any) -> dict[str, Any]:
     """Summary dict of one task or of merged copies (see module docstring)."""
     rec = as_record(task_data)
@@ -135,7 +159,8 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
     if n_bins == 0:
         warnings.append(f"{tid}: no bins stored yet")
         warn = {k: [] for k in warn}
-    if warn["plateau"]:
+    few = 0 < n_bins < MIN_SERIES  # said once per run by few_bins_warning, not per observable
+    if warn["plateau"] and not few:
         names = ", ".join(sorted(set(warn["plateau"])))
         warnings.append(
             f"{tid}: error not converged in the binning analysis (too few independent bins): {names}"
@@ -157,6 +182,7 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
             "beta": rec.beta,
             "steps_per_bin": rec.steps_per_bin,
             "n_bins": n_bins,
+            "few_bins": few,
             "status": rec.status,
             "copies": list(rec.copies) or [tid],
         },

@@ -27,6 +27,7 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
     replica exchange also show their acceptance rates.  RUN_DIR may also be a single task file.
     """
     from qmc.analysis import group_copies, summarize_task
+    from qmc.analysis.summary import few_bins_warning
     from qmc.analysis.tables import to_jsonable
     from qmc.cli.text import summary_table
     from qmc.exchange.records import exchange_summary
@@ -52,6 +53,9 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
     if not summaries:
         click.echo(f"{run_dir}: no task files yet")
     click.echo("\n\n".join(summary_table(s) for s in summaries))
+    few = few_bins_warning(summaries)
+    if few:
+        click.echo(f"\nwarning: {few}")
 
 
 @click.command("inspect")

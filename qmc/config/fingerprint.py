@@ -1,7 +1,9 @@
 """The fingerprint of a configuration: a hash of everything that changes a task's id, model or stream.
 
-A run directory remembers the fingerprint of the configuration it was made with; a different one means
-that the configuration changed in substance, and the run refuses to mix the two (unless forced).
+A run directory remembers the fingerprint of the configuration it was made with, and its *physics
+fingerprint* (:func:`physics_fingerprint`: seed, lattice and terms, not the scan or the sampling).  A
+configuration with other scan points or more steps grows the same run; one with other physics does not
+mix with it (unless forced, :mod:`qmc.run.plan`).
 """
 
 from __future__ import annotations
@@ -12,7 +14,37 @@ import json
 from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import canonical_number
 
-__all__ = ["fingerprint"]
+__all__ = ["fingerprint", "physics_fingerprint"]
+
+
+def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...]) -> dict:
+    return {
+        "seed": run.seed,
+        "lattice": {"kind": lattice.kind, "size": [e.canonical for e in lattice.size],
+                    "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
+                    "classes": lattice.classes},
+        "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
+                   "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
+    }
+
+
+def _scan_value(e: ScanEntry) -> str | list:
+    if e.derived:
+        return e.expression.canonical
+    if e.choices:  # a list of expressions (entries of the other kinds keep their fingerprints)
+        return ["choices", [c.canonical for c in e.choices]]
+    return [canonical_number(v) for v in e.values]
+
+
+def _hash(content: dict) -> str:
+    text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def physics_fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...]) -> str:
+    """SHA-256 (hex) of the master seed, the lattice and the terms: what two configurations must share for
+    their tasks to belong to one run (comments, layout, names and the scan do not enter)."""
+    return _hash(_physics(run, lattice, terms))
 
 
 def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
@@ -25,18 +57,11 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
     """
     s = sampling
     content = {
-        "seed": run.seed,
-        "lattice": {"kind": lattice.kind, "size": [e.canonical for e in lattice.size],
-                    "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
-                    "classes": lattice.classes},
-        "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
-                   "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
-        "scan": [[e.name, e.expression.canonical if e.derived else [canonical_number(v) for v in e.values]]
-                 for e in scan],
+        **_physics(run, lattice, terms),
+        "scan": [[e.name, _scan_value(e)] for e in scan],
         "sampling": {"warmup_steps": s.warmup_steps, "measure_steps": s.measure_steps, "bins": s.bins,
                      "copies": s.copies, "exchange": s.exchange},
     }
     if s.exchange is not None:
         content["sampling"]["exchange_every"] = s.exchange_every
-    text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
-    return hashlib.sha256(text.encode()).hexdigest()
+    return _hash(content)

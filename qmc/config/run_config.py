@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from qmc.config.fingerprint import fingerprint
+from qmc.config.fingerprint import fingerprint, physics_fingerprint
 from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import Task, expand_tasks
 
@@ -51,6 +51,10 @@ class RunConfig:
     def fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.fingerprint`."""
         return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling)
+
+    def physics_fingerprint(self) -> str:
+        """See :func:`qmc.config.fingerprint.physics_fingerprint`."""
+        return physics_fingerprint(self.run, self.lattice, self.terms)
 
 
 def config_fingerprint(config: RunConfig) -> str:

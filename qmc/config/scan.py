@@ -1,5 +1,7 @@
-"""The [scan] section: scanned values, ranges and derived expressions, and the checks that tie scan names
-to the rest of the configuration (every name used exists and is used; the exchanged coupling is valid).
+"""The [scan] section: scanned values, ranges, derived expressions and lists of expressions (e.g.
+``beta = ["L", "2*L"]``: every point twice, at beta = L and at beta = 2L), and the checks that tie scan
+names to the rest of the configuration (every name used exists and is used; the exchanged coupling is
+valid).
 """
 
 from __future__ import annotations
@@ -40,6 +42,9 @@ def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
         if isinstance(value, str):
             entries.append(ScanEntry(name=name, expression=r.expression(key, value)))
             continue
+        if isinstance(value, list) and any(isinstance(v, str) for v in value):
+            entries.append(_choices(r, key, name, value))
+            continue
         if isinstance(value, bool) or not isinstance(value, int | float | list | dict):
             raise r.fail(key, "must be a number, a list of numbers, a range {start, stop, num} or an "
                               f'expression such as "2*L", got {describe_value(value)}')
@@ -59,21 +64,32 @@ def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
                                   f"(entries {seen[v]} and {i})")
             seen[v] = i
         entries.append(ScanEntry(name=name, values=tuple(values)))
-    base = {e.name for e in entries if not e.derived}
+    base = {e.name for e in entries if not e.derived and not e.choices}
     for e in entries:
-        if e.derived:
-            for ref in e.expression.names:
+        for i, expr in enumerate((e.expression,) if e.derived else e.choices):
+            key = f"scan.{e.name}" if e.derived else f"scan.{e.name}[{i}]"
+            for ref in expr.names:
                 if ref not in t:
-                    raise r.fail(f"scan.{e.name}", e.expression.unknown_name_message(ref)
-                                 + did_you_mean(ref, base))
+                    raise r.fail(key, expr.unknown_name_message(ref) + did_you_mean(ref, base))
                 if ref not in base:
-                    raise r.fail(f"scan.{e.name}", f"{e.expression.text!r} uses '{ref}', which is "
-                                                   "itself an expression; use scanned values only")
-    count = math.prod(len(e.values) for e in entries if not e.derived)
+                    raise r.fail(key, f"{expr.text!r} uses '{ref}', which is itself an expression; use "
+                                      "scanned values only")
+    count = math.prod(e.count for e in entries)
     if count > MAX_TASKS:
         raise r.fail("scan", f"the scan has {count} parameter points; more than {MAX_TASKS} is "
                              "surely a mistake")
     return tuple(entries)
+
+
+def _choices(r: TableReader, key: str, name: str, value: list[Any]) -> ScanEntry:
+    """A list with expressions of other entries: one task per item at every point of the others."""
+    exprs = tuple(r.expression(f"{key}[{i}]", v) for i, v in enumerate(value))
+    seen: dict[str, int] = {}
+    for i, e in enumerate(exprs):
+        if e.canonical in seen:
+            raise r.fail(key, f"the value {e.text!r} appears twice (entries {seen[e.canonical]} and {i})")
+        seen[e.canonical] = i
+    return ScanEntry(name=name, choices=exprs)
 
 
 def _range(r: TableReader, key: str, value: dict[str, Any]) -> list[Number]:
@@ -108,8 +124,8 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     for _, expr in uses:
         used.update(expr.names)
     for name in list(used):
-        if name in entries and entries[name].derived:
-            used.update(entries[name].expression.names)
+        if name in entries:
+            used.update(entries[name].needs)
     for e in scan:
         if e.name not in used:
             raise r.fail(f"scan.{e.name}", f"scan.{e.name} is never used: refer to it in "
@@ -127,12 +143,12 @@ def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms
     if name not in entries:
         raise r.fail(key, f"'{name}' is not a scan name{did_you_mean(name, entries)}")
     entry = entries[name]
-    if entry.derived:
+    if entry.derived or entry.choices:
         raise r.fail(key, f"'{name}' is an expression; replica exchange needs a scanned coupling")
     if not any(name in t.coupling.names for t in terms):
         raise r.fail(key, f"'{name}' is not a scanned coupling: replica exchange needs a scan name used "
                           "as a [[terms]] coupling")
-    affected = {name} | {e.name for e in entries.values() if e.derived and name in e.expression.names}
+    affected = {name} | {e.name for e in entries.values() if name in e.needs}
     for i, expr in enumerate(lattice.size):
         if affected & set(expr.names):
             raise r.fail(key, f"'{name}' changes {lattice.size_key(i)}; configurations can only be "

@@ -140,15 +140,29 @@ class TermSpec:
 
 @dataclass(frozen=True)
 class ScanEntry:
-    """One ``[scan]`` entry: its ``values`` (one or more), or a derived ``expression`` of other entries."""
+    """One ``[scan]`` entry: its ``values`` (one or more), a derived ``expression`` of other entries, or
+    ``choices``, a list of expressions of other entries (e.g. ``beta = ["L", "2*L"]``): one task for each
+    of them at every point of the other entries."""
 
     name: str
     values: tuple[Number, ...] = ()
     expression: Expression | None = None
+    choices: tuple[Expression, ...] = ()
 
     @property
     def derived(self) -> bool:
         return self.expression is not None
+
+    @property
+    def needs(self) -> tuple[str, ...]:
+        """The scan names its expression or choices use."""
+        exprs = (self.expression,) if self.expression is not None else self.choices
+        return tuple(dict.fromkeys(n for e in exprs for n in e.names))
+
+    @property
+    def count(self) -> int:
+        """Tasks it multiplies the scan by: its number of values or choices (1 when derived)."""
+        return len(self.choices) if self.choices else (1 if self.derived else len(self.values))
 
 
 @dataclass(frozen=True)

@@ -1,6 +1,8 @@
 """Scan expansion: every point of the scan times every independent copy is one :class:`Task`.
 
-Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``.
+Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``; an
+entry that lists expressions enters with its value at the point (``beta = ["L", "2*L"]`` gives
+``L8_beta8_c0`` and ``L8_beta16_c0``).
 The random stream of a task is ``stream_seed(seed, seed_key)`` with ``seed_key`` built from the sorted
 parameter values and the copy index only, so it depends neither on the order of the scan, nor on the
 task id's text, nor on where the task runs.
@@ -75,14 +77,19 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
     """
     base = [e for e in scan if not e.derived]
     derived = [e for e in scan if e.derived]
+    plain = [e for e in base if not e.choices]
     exchange = sampling.exchange
     explicit = None
     if lattice.kind == EXPLICIT:
         explicit = {"sites": lattice.sites, "bonds": lattice.bonds, "classes": lattice.classes}
     tasks: list[Task] = []
-    for combo in itertools.product(*(e.values for e in base)):
-        values: dict[str, Number] = dict(zip((e.name for e in base), combo, strict=True))
+    for combo in itertools.product(*(e.choices or e.values for e in base)):
+        picked = dict(zip((e.name for e in base), combo, strict=True))
+        values: dict[str, Number] = {e.name: picked[e.name] for e in plain}
         context = " (for " + ", ".join(f"{k}={format_number(v)}" for k, v in values.items()) + ")"
+        for e in base:
+            if e.choices:
+                values[e.name] = _choice(source, e, picked[e.name], values, context)
         for e in derived:
             values[e.name] = e.expression.evaluate(values, f"{source}: scan.{e.name}")
         params = {e.name: values[e.name] for e in scan}
@@ -107,6 +114,18 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
                 copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
                 exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source))
     return tasks
+
+
+def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], context: str) -> Number:
+    """The value of one choice of a list of expressions; two choices of equal value at one point would
+    make two equal tasks, and are refused."""
+    where = f"{source}: scan.{e.name}"
+    value = expr.evaluate(values, where)
+    others = [c for c in e.choices if c is not expr and c.evaluate(values, where) == value]
+    if others:
+        raise UserError(f"{expr.text!r} and {others[0].text!r} are both {format_number(value)}{context}: one "
+                        "task would be run twice", where)
+    return value
 
 
 def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],

@@ -70,7 +70,9 @@ checkpoint_seconds = 300
 
 _SCAN_HELP = '''\
 # Every entry is a number (fixed), a list of values, a range {start, stop, num} (num evenly spaced
-# values, both ends included), or a text expression of other entries such as "2*L", "L/2" or "0.5*g".
+# values, both ends included), a text expression of other entries such as "2*L", "L/2" or "0.5*g", or a
+# list of such expressions: beta = ["L", "2*L"] runs every point at beta = L and at beta = 2L (the
+# ground-state check of `qmc analyze` compares such pairs).
 # Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
 # temperature, in inverse units of the couplings) is required.  Every entry must be used somewhere.
 '''

@@ -240,6 +240,16 @@ class Ladder:
         """Whether the members meet at step ``s`` (end of the warm-up, or an exchange point)."""
         return s == self.warmup_steps or (s % self.every == 0 and 0 < s < self.total_steps)
 
+    def rejoin(self) -> None:
+        """Hold the meeting of the current step if it is a synchronisation point before the end.
+
+        A run's last step is no exchange point, so a ladder restored from the end of a finished, shorter
+        run (the configuration now asks for more steps) has missed the meeting, and swap round, that a run
+        of the new length holds there; held now, the continued run is bit-identical to that run."""
+        s = self.steps_done
+        if s < self.total_steps and self.is_sync_point(s):
+            self._sync(s, None)
+
     def group_state(self) -> dict[str, np.ndarray]:
         """Copy of the ladder state (:data:`GROUP_STATE_KEYS`)."""
         return {k: self.state[k].copy() for k in GROUP_STATE_KEYS}

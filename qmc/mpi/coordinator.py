@@ -10,8 +10,8 @@ at most every :data:`INDEX_INTERVAL` seconds while running, and at the end.
 Stopping: SIGTERM (or SIGINT) on any rank, a worker's unit stopped by the ``--max-time`` budget, or rank
 0's own stop flag puts rank 0 into stop mode: it sends :class:`~qmc.mpi.protocol.Stop` to every worker,
 each running unit writes its checkpoint at its next chunk boundary, prefetched units not yet started are
-handed back, and all ranks exit 0.  A failed task is recorded (status ``failed`` and its message) and the
-others go on.
+handed back; the workers exit 0 and rank 0 with the status of an unfinished run (``qmc run``).  A failed
+task is recorded (status ``failed`` and its message) and the others go on.
 """
 
 from __future__ import annotations
@@ -98,7 +98,6 @@ class Coordinator:
         self.index_interval = INDEX_INTERVAL
         n_tasks = sum(len(u) for u in self.schedule.units)
         self.stats = FarmStats(ranks=world.size, units=len(self.schedule.units), tasks=n_tasks)
-        self.n_reported = 0
 
     def _members(self, unit: list[Any]) -> int:
         """Ranks a unit runs on: 1 for a single task, :func:`qmc.exchange.team.team_size` for a ladder."""
@@ -135,6 +134,12 @@ class Coordinator:
         """Send a placement to its workers (rank 0, if in it, runs its part itself)."""
         self._started(p)
         tasks = self.schedule.units[p.unit]
+        steps = self.plan.index["tasks"][tasks[0].task_id].get("steps_done", 0)
+        if steps and p.ranks[0] != 0:  # rank 0 says it for its own units when it starts them
+            t = tasks[0]
+            what = f"task {t.task_id}" if len(tasks) == 1 else f"exchange group {t.exchange_group}"
+            ranks = ", ".join(map(str, p.ranks))
+            self.progress.message(f"resuming {what} at step {steps} on rank(s) {ranks}")
         for r in p.ranks:
             if r != 0:
                 msg = Assign(p.unit, tasks) if len(p.ranks) == 1 else JoinTeam(p.unit, tasks, list(p.ranks))
@@ -144,10 +149,7 @@ class Coordinator:
         for o in outcomes:
             self.outcomes.append(o)
             record_outcome(self.plan.index, o)
-            self.n_reported += 1
-            self.progress.message(f"{o.status} {o.task_id} on rank {rank} ({o.bins_done}/{o.bins_total} "
-                                  f"bins, {o.seconds:.1f} s) [{self.n_reported}/{self.stats.tasks}]"
-                                  + (f": {o.message}" if o.message and o.status != "done" else ""))
+            self.progress.outcome(o, rank)  # one count of the tasks done, on every rank
             if o.status == "stopped":
                 self._stop(o.message or "stopped")
         self.dirty = True
@@ -276,3 +278,6 @@ class _CoordinatorSink:
 
     def task_finished(self, status: str) -> None:
         self.progress.task_finished(status)
+
+    def message(self, text: str) -> None:
+        self.progress.message(text)

@@ -7,7 +7,8 @@ contiguous block of the chains and writing their task files through the shared p
 
 * resuming: the members read their files and agree (:func:`qmc.exchange.meeting.agree`) on the newest step
   that every file of the ladder holds, current or previous checkpoint (:mod:`qmc.exchange.records`), or
-  start over when there is none;
+  start over when there is none; files that end where a finished, shorter run ended (the configuration now
+  asks for more bins) first hold the meeting that run had no reason to hold (:meth:`Ladder.rejoin`);
 * decision points are the meetings: before each chunk a member casts its vote (stop if its stop flag is
   set or its time budget would not cover the rest of the interval and the next one; a failed write;
   a checkpoint due by its clock), and at the meeting all members act on all votes: stop if any member
@@ -44,6 +45,7 @@ from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
 from qmc.run.outcome import StopSignal, TaskOutcome, failure_message
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
+from qmc.run.task_identity import finished
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
 from qmc.storage.task_file import TaskData
 
@@ -105,8 +107,10 @@ class LadderRun(TaskRun):
                 group[step] = cands[0][step][1]
                 if not all(_same_state(c[step][1], group[step]) for c in cands[1:]):
                     group[step] = None
-            return {"done": all(f is not None and f[0].status == "done" for f in found), "steps": local,
-                    "group": group}
+            done = all(f is not None and finished(book.task, f[0].status, f[0].steps_done)
+                       for f, book in zip(found, self.books, strict=True))
+            ended = {f[0].steps_done for f in found if f is not None and f[0].steps_done == f[0].steps_total}
+            return {"done": done, "steps": local, "group": group, "ended": ended}
 
         scans = agree(self.team, scan)
         if all(x["done"] for x in scans):
@@ -119,6 +123,12 @@ class LadderRun(TaskRun):
                             f"the ladder state at step {step}; move them away to start over",
                             str(self.books[0].path.parent))
         agree(self.team, lambda: self._start(found, cands, step))
+        if step is not None:
+            if any(step in x["ended"] for x in scans):  # the files end where a shorter run ended
+                assert self.ladder is not None
+                self.ladder.rejoin()
+            for j, sim in enumerate(self._chains()):
+                self.previous[j] = (sim.steps_done, ladder_checkpoint(sim.state(), self.ladder.group_state()))
         for book in self.books:
             book.begin_session(self.steps_done)
         return True
@@ -148,7 +158,6 @@ class LadderRun(TaskRun):
                 raise UserError("damaged task file: the exchange walk is shorter than the bins",
                                 str(book.path))
             self.walkers[j] = [int(x) for x in walker[:sim.bins_done]]
-            self.previous[j] = (sim.steps_done, ladder_checkpoint(sim.state(), lad.group_state()))
         spread = self._spread()
         if self.speaks:
             log.info("%s: resuming %d chains at step %d of %d%s", self.label, len(tasks), step,

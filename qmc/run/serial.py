@@ -14,14 +14,14 @@ import time
 from qmc.config.parser import config_fingerprint
 from qmc.run.outcome import RunReport, StopSignal, TaskOutcome, mark_running, record_outcome
 from qmc.run.plan import RunPlan
-from qmc.run.progress import ProgressSink
+from qmc.run.progress import RunDisplay
 from qmc.run.units import run_unit, work_units
 from qmc.storage.run_index import write_index
 
 __all__ = ["run_serial"]
 
 
-def run_serial(plan: RunPlan, *, stop_flag: StopSignal | None = None, progress: ProgressSink | None = None,
+def run_serial(plan: RunPlan, *, stop_flag: StopSignal | None = None, progress: RunDisplay | None = None,
                logger: logging.Logger | None = None, deadline: float | None = None) -> RunReport:
     """Run the plan's work in this process, one unit after the other, updating ``index.json`` after each;
     stop after a unit that was stopped (signal, ``deadline``)."""
@@ -43,6 +43,8 @@ def run_serial(plan: RunPlan, *, stop_flag: StopSignal | None = None, progress: 
         for outcome in results:
             outcomes.append(outcome)
             record_outcome(plan.index, outcome)
+            if progress is not None:
+                progress.outcome(outcome)
         write_index(plan.run_dir, plan.index)
         stopped = [o for o in results if o.status == "stopped"]
         if stopped:

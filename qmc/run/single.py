@@ -1,7 +1,8 @@
 """One task on its own: :func:`run_task`, the unit of work of every run without replica exchange.
 
 It builds the task's model, resumes from the task file's checkpoint if there is one (keeping its first
-``bins_done`` bins), and advances the chain along the shared path of :mod:`qmc.run.task_run`: every chunk
+``bins_done`` bins; a finished file continues when the configuration now asks for more bins of the same
+length), and advances the chain along the shared path of :mod:`qmc.run.task_run`: every chunk
 boundary is a decision point, and chunks are shortened near a deadline.  It never touches the run index,
 so an MPI task farm may call it for different tasks on different ranks and let one rank update the index
 from the returned :class:`~qmc.run.outcome.TaskOutcome`.
@@ -20,6 +21,7 @@ from qmc.config.parser import Task, build_model
 from qmc.run.outcome import StopSignal, TaskOutcome
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
+from qmc.run.task_identity import finished
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
 
 __all__ = ["SingleRun", "run_task"]
@@ -40,13 +42,14 @@ class SingleRun(TaskRun):
         data = book.read()
         log = self.ctx.log
         if data is not None:
-            if data.status == "done":
+            if finished(task, data.status, data.steps_done):
                 return False
             sim = Simulation.restore(model, task.beta, state=data.checkpoint, **kw)
             book.resume(data, sim)
             self.fresh = False
-            log.info("task %s: resuming at step %d of %d (%d of %d bins)", task.task_id, sim.steps_done,
-                     sim.total_steps, sim.bins_done, s.bins)
+            grown = " (more steps asked for than before)" if data.status == "done" else ""
+            log.info("task %s: resuming at step %d of %d (%d of %d bins)%s", task.task_id, sim.steps_done,
+                     sim.total_steps, sim.bins_done, s.bins, grown)
         else:
             sim = Simulation(model, task.beta, seed_words=book.seed_words, **kw)
             log.info("task %s: starting (%d sites, beta %g, %d steps)", task.task_id, model.n_sites,

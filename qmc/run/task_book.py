@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import logging
 import os
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -22,7 +23,7 @@ from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
 from qmc.models.compiled import CompiledModel
 from qmc.run.outcome import TaskOutcome
-from qmc.run.task_identity import steps_total, task_fingerprint
+from qmc.run.task_identity import LENGTH, SAME, mismatch_text, steps_total, stored_relation, task_fingerprint
 from qmc.storage.provenance import now_iso, session_entry, task_provenance
 from qmc.storage.task_file import TaskData, TaskRecord, read_task, task_path, write_task
 
@@ -64,6 +65,7 @@ class TaskBook:
         self.rows: list[np.ndarray] = []
         self.sessions: list[dict[str, Any]] = []
         self.session: dict[str, Any] = {}
+        self.session_start = time.time()
         self.last: TaskRecord | None = None
         self.bins_done = 0
         self.steps_done = 0
@@ -71,13 +73,16 @@ class TaskBook:
     # -------------------------------------------------------------------------------------------- reading
     def read(self) -> TaskData | None:
         """The task file with its checkpoint, None if there is none; UserError if it was written for another
-        chain (model, beta, sampling or seed)."""
+        chain (model, beta, seed, warm-up or bin length; a file of the same chain with another number of
+        bins is continued or already done, :func:`~qmc.run.task_identity.stored_relation`)."""
         if not self.path.exists():
             return None
         data = read_task(self.path, with_checkpoint=True)
-        if data.task_fingerprint != self.fingerprint:
-            raise UserError("was written for a different model, beta, sampling or seed than this task; "
-                            "move it away (or run with --force, which renames it aside)", str(self.path))
+        stored = (data.task_fingerprint, data.steps_per_bin, data.bins_total, data.steps_total)
+        relation = stored_relation(self.task, *stored)
+        if relation not in (SAME, LENGTH):
+            raise UserError(f"{mismatch_text(relation, self.task, *stored[1:])}; move it away (or run with "
+                            "--force, which renames it aside)", str(self.path))
         self.bins_done, self.steps_done = data.bins_done, data.steps_done
         return data
 
@@ -98,9 +103,11 @@ class TaskBook:
         self.keep_sessions(data)
 
     def begin_session(self, steps: int) -> None:
-        """Start the record of this process's session (from step ``steps``)."""
+        """Start the record of this process's session (from step ``steps``); its ``seconds`` are the wall
+        time from here to the last write."""
         self.session = session_entry(now_iso(), steps)
         self.sessions.append(self.session)
+        self.session_start = time.time()
 
     # -------------------------------------------------------------------------------------------- writing
     def record(self, sim: Simulation, model: CompiledModel, status: str, source: ConfigSource, t: float, *,
@@ -110,7 +117,8 @@ class TaskBook:
         """The file content now (time ``t``): the chain's bins and state, ``checkpoint`` arrays instead of
         ``sim.state()`` and extra ``checkpoint_attrs`` if given, an ``/exchange`` group if given."""
         task = self.task
-        self.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status)
+        self.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status,
+                            seconds=round(t - self.session_start, 3))
         params = dict(task.params)
         for k, v in (("lattice", task.lattice_kind), ("size", list(task.size)), ("boundary", task.boundary)):
             params.setdefault(k, v)

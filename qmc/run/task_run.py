@@ -201,6 +201,10 @@ class TaskRun:
             if self.speaks:
                 ctx.log.info("%s: already done", self.label)
             return "done"
+        say = getattr(ctx.sink, "message", None)  # sinks that show text lines (the terminal's)
+        if not self.fresh and self.steps_done > 0 and self.speaks and say is not None:
+            say(f"resuming {self.label} at step {self.steps_done} of {self.total_steps} "
+                f"({self._chains()[0].bins_done} of {bins_total} bins)")
         ctx.sink.task_started(first.task.task_id, m * self.steps_done, m * self.total_steps, bins_total)
         if self.fresh:  # the files exist from the first step on
             self._write("running")

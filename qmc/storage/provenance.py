@@ -105,6 +105,7 @@ def task_provenance(master_seed: int, seed_key: str, seed_words: np.ndarray) -> 
 
 
 def session_entry(start_iso: str, steps_start: int) -> dict[str, Any]:
-    """A new session record; the runner updates ``stop``, ``steps_stop`` and ``ended`` as it goes."""
+    """A new session record; the runner updates ``stop``, ``steps_stop``, ``ended`` and ``seconds`` (wall
+    time since the start, to the millisecond) as it goes."""
     return {"start": start_iso, "stop": start_iso, "host": socket.gethostname(), "pid": os.getpid(),
             "steps_start": int(steps_start), "steps_stop": int(steps_start), "ended": "running"}

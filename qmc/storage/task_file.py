@@ -223,16 +223,22 @@ def _check_root(f: Any, path: Path) -> None:
 
 
 def task_header(path: str | os.PathLike) -> dict[str, Any]:
-    """Root attributes and checkpoint counters of a task file (cheap); UserError if it is not one."""
+    """Root attributes, checkpoint counters (``checkpoint_<attr>``), bin attributes (``bins_<attr>``, e.g.
+    ``bins_steps_per_bin``) and ``sessions`` (the list of provenance) of a task file (cheap); UserError if
+    it is not one."""
     path = Path(path)
     f = _open(path)
     try:
         with f:
             _check_root(f, path)
             head = {k: plain(v) for k, v in f.attrs.items()}
-            cp = f.get("checkpoint")
-            counters = cp.attrs.items() if cp is not None else ()
-            head.update({f"checkpoint_{k}": plain(v) for k, v in counters})
+            for group in ("checkpoint", "bins"):
+                g = f.get(group)
+                items = g.attrs.items() if g is not None else ()
+                head.update({f"{group}_{k}": plain(v) for k, v in items if k != "names"})
+            prov = f.get("provenance")
+            sessions = plain(prov.attrs.get("sessions", "[]")) if prov is not None else "[]"
+            head["sessions"] = json.loads(sessions) if isinstance(sessions, str) else []
             return head
     except UserError:
         raise
