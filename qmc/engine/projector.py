@@ -13,6 +13,10 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
   each loop is flipped with probability 1/2.  All loops are constructed (each leg visited exactly once);
   legs are marked -1 (visited, kept) or -2 (visited, flipped) in ``links``.  Sites without any operator are
   flipped with probability 1/2; the other sites follow the loop through their first leg.
+- The state is S^z_i = spins[i] / 2 (``spins`` +-1); a flipped loop toggles the diagonal/off-diagonal bit of
+  each bond side it passes (``vflip``), which the next sweep xors into ``ops`` (:func:`apply_changes`); an
+  off-diagonal bond flips both spins (:func:`hop`).  Per-site and per-bond values of the estimators
+  (:func:`site_value`, :func:`bond_value`) are 2 S^z_i and 4 S^z_i S^z_j.
 
 The kind needs no tables of its own: its record :class:`ProjectorKind` is empty.  It is the fast path
 (benchmarks/c_compare.py) and must stay bit-identical (tests/test_stored_bins.py).
@@ -28,9 +32,12 @@ from numba import njit
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
-__all__ = ["ProjectorKind", "record", "insertion_allowed", "loop_update"]
+__all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
+           "apply_changes", "hop", "site_value", "bond_value"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
+SLOT_COLOURS = False
+"""The projector kind keeps no per-slot colours (``Chain.above`` is empty)."""
 
 
 class ProjectorKind(NamedTuple):
@@ -40,6 +47,11 @@ class ProjectorKind(NamedTuple):
 def record(model: object) -> ProjectorKind:
     """The kind's record for a compiled model (the same for every model)."""
     return ProjectorKind()
+
+
+def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:
+    """Spins +-1, each up with probability 1/2 (u < 1/2)."""
+    return np.where(u < 0.5, 1, -1).astype(np.int8)
 
 
 @njit(inline="always")
@@ -101,3 +113,34 @@ def loop_update(kind, chain, vertices, n_vertices):
     rng[2] = s2
     rng[3] = s3
     return n_loops
+
+
+@njit(inline="always")
+def apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
+    """The operator word with the pending loop flips of bond vertices v .. v+k-1 xored in (and cleared)."""
+    for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
+        op ^= np.int32(vflip[U(v + a)]) << a
+        vflip[U(v + a)] = 0
+    return op
+
+
+@njit(inline="always")
+def hop(kind, spins, phase, above, p, a, i, j):
+    """Flip the antiparallel pair (i, j); returns (2 S^z_i before the flip, change of ms = 2 M_s)."""
+    si = spins[U(i)]
+    d_ms = -(2 * phase[U(i)] * si + 2 * phase[U(j)] * spins[U(j)])
+    spins[U(i)] = -si
+    spins[U(j)] = -spins[U(j)]
+    return si, d_ms
+
+
+@njit(inline="always")
+def site_value(kind, spins, i):
+    """2 S^z_i."""
+    return spins[i]
+
+
+@njit(inline="always")
+def bond_value(kind, spins, i, j):
+    """4 S^z_i S^z_j."""
+    return spins[i] * spins[j]
