@@ -48,8 +48,8 @@ import numpy as np
 from numba.core import types
 from numba.extending import overload
 
-from qmc.engine import projector
-from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
+from qmc.engine import colour, projector
+from qmc.models.compiled import KIND_COLOUR, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
 __all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
            "kind_record", "register_kind", "initial_spins", "slot_colours"]
@@ -161,3 +161,4 @@ def _bond_value(kind, spins, i, j):
 
 
 register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))
+register_kind(colour.ColourKind, colour, frozenset({KIND_COLOUR}))
