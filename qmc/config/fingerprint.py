@@ -9,19 +9,20 @@ from __future__ import annotations
 import hashlib
 import json
 
-from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import LatticeSpec, ModelSection, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import canonical_number
 
 __all__ = ["fingerprint"]
 
 
 def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling) -> str:
+                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None) -> str:
     """SHA-256 (hex) of the semantic content of a configuration.
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output``,
     ``sampling.checkpoint_seconds`` and ``exchange.max_ranks`` do not enter; numbers enter by value (1 and
-    1.0 are the same).  ``exchange.every`` enters only with replica exchange.
+    1.0 are the same).  ``exchange.every`` enters only with replica exchange; ``model.colors`` only when it
+    is not the default 2 (so configurations written before [model] existed keep their fingerprint).
     """
     s = sampling
     content = {
@@ -38,5 +39,7 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
     }
     if s.exchange is not None:
         content["sampling"]["exchange_every"] = s.exchange_every
+    if model is not None and model.colors is not None and model.colors.canonical != "2":
+        content["model"] = {"colors": model.colors.canonical}
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
