@@ -7,6 +7,8 @@
 - The SU(N) exact reference (qmc/validation/exact/colours.py) reproduces the S = 1/2 one at N = 2.
 - A chain of the colour kind continues bit-identically from a checkpoint (pending loop colours folded into
   the operator string and Chain.above) and through a configuration swap; models refuse bad input.
+- Replica exchange along Q of an SU(3) J-Q chain run from a configuration file (`qmc run`) gives the exact
+  energies of both couplings (qmc/validation/exact/colours.py) within 4 error bars.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ import dataclasses
 
 import numpy as np
 import pytest
+from click.testing import CliRunner
 from qmc.models import (
     HeisenbergTerm,
     ModelError,
@@ -26,11 +29,13 @@ from qmc.models import (
 from qmc.models.compiled import KIND_COLOUR, KIND_PROJECTOR
 
 from qmc.chain.simulation import Simulation
+from qmc.cli.main import cli
 from qmc.engine.colour import ColourKind
 from qmc.engine.projector import ProjectorKind
 from qmc.engine.rng import stream_seed
+from qmc.storage.task_file import read_task
 from qmc.validation.exact import chain_bonds, cluster_observables, q2_plaquette_pairs, square_bonds
-from qmc.validation.exact.colours import ColourSpectrum
+from qmc.validation.exact.colours import ColourSpectrum, chain_pair_products
 
 J, Q, BETA = 1.0, 0.5, 1.0
 
@@ -142,3 +147,48 @@ def test_colour_models_compile_and_refuse_bad_input():
     assert type(two).from_arrays(stored).n_colours == 2
     with pytest.raises(ValueError, match="n_colours"):
         dataclasses.replace(two, n_colours=3)  # projector groups need two colours
+
+
+EXCHANGE = """
+[run]
+seed = 12
+output = "run"
+[model]
+colors = 3
+[lattice]
+kind = "chain"
+size = [8]
+[[terms]]
+type = "projector"
+bonds = "nn"
+coupling = 1.0
+[[terms]]
+type = "projector-product"
+shape = [[[0], [1]], [[2], [3]]]
+coupling = "Q"
+[scan]
+Q = [0.5, 1.0]
+beta = 2
+[sampling]
+warmup_steps = 2000
+measure_steps = 150000
+bins = 100
+[exchange]
+along = "Q"
+every = 5
+"""
+
+
+def test_exchange_of_su3_configurations_samples_both_couplings(tmp_path):
+    (tmp_path / "x.toml").write_text(EXCHANGE)
+    result = CliRunner().invoke(cli, ["run", str(tmp_path / "x.toml"), "--quiet"])
+    assert result.exit_code == 0, result.output
+    bonds = chain_bonds(8)
+    for Q in (0.5, 1.0):
+        task = read_task(tmp_path / "run" / "tasks" / f"Q{Q:g}_beta2_c0.h5")
+        e = task.bins["energy"]
+        mean, err = e.mean(), e.std(ddof=1) / np.sqrt(e.size)
+        sp = ColourSpectrum(3, [1 - 2 * (x % 2) for x in range(8)],
+                            [(1.0, [b]) for b in bonds] + [(Q, p) for p in chain_pair_products(8)])
+        exact = sp.energy(2.0)
+        assert abs(mean - exact) < 4 * err and err < 0.01 * abs(exact), (Q, mean, err, exact)

@@ -284,10 +284,15 @@ class Simulation:
                 "above": self.chain.above.copy()}
 
     def set_configuration(self, conf: dict[str, np.ndarray]) -> None:
-        """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice."""
+        """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice.  An
+        operator string padded with empty slots (a larger cutoff) may come with ``above`` of the old length:
+        it is padded likewise."""
         spins = np.array(conf["spins"], dtype=np.int8)
         ops = np.array(conf["ops"], dtype=np.int32)
         above = np.array(conf["above"], dtype=np.int32).reshape(-1)
+        want = self._above_length(ops.shape[0])
+        if 0 < above.shape[0] < want and np.all(ops[above.shape[0]:] < 0):
+            above = np.concatenate([above, np.zeros(want - above.shape[0], dtype=np.int32)])
         if (spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << OP_TERM_SHIFT))
                 or above.shape[0] != self._above_length(ops.shape[0])):
             raise ValueError("configuration does not fit this model")
