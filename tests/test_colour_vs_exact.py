@@ -16,10 +16,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from qmc.models import ProjectorProductTerm, ProjectorTerm, build_lattice, compile_model
+from test_engine_vs_exact import SIGMAS, _mean_err, run_qmc
 
 from qmc.analysis.jackknife import jackknife
-from qmc.chain.simulation import Simulation
-from qmc.engine.rng import stream_seed
 from qmc.validation.exact import chain_bonds
 from qmc.validation.exact.colours import (
     ColourSpectrum,
@@ -27,8 +26,6 @@ from qmc.validation.exact.colours import (
     open_square_bonds,
     open_square_plaquette_pairs,
 )
-
-SIGMAS = 4.0
 
 
 class ExactColour:
@@ -109,17 +106,6 @@ def _exact(name):
     if name not in _exact_cache:
         _exact_cache[name] = CASES[name][1]()
     return _exact_cache[name]
-
-
-def run_qmc(model, beta, steps, seed_key, bins=100):
-    sim = Simulation(model, beta, warmup_steps=5000, measure_steps=steps, bins=bins,
-                     seed_words=stream_seed(20261202, seed_key))
-    rows = sim.advance(10**12)
-    return {name: rows[:, k] for k, name in enumerate(sim.bin_names)}
-
-
-def _mean_err(x):
-    return float(np.mean(x)), float(np.std(x, ddof=1) / np.sqrt(len(x)))
 
 
 @pytest.mark.parametrize(("name", "beta"), [pytest.param(n, b, id=f"{n}-beta{b}") for n, c in CASES.items()

@@ -67,6 +67,7 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
+from qmc.engine.projector import bonds_blocked, mark_loop
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
@@ -102,11 +103,7 @@ def initial_spins(kind: ColourKind, u: np.ndarray) -> np.ndarray:
 def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
     """(allowed, rng words): an operator of term t (k bonds) may be inserted when every bond has equal
     colours on its two sites."""
-    blocked = False
-    for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
-        col = TT_BOND + TT_BOND_WIDTH * a
-        blocked |= spins[U(table[U(t), col])] != spins[U(table[U(t), col + 1])]
-    return not blocked, s0, s1, s2, s3
+    return not bonds_blocked(table, t, k, spins, False), s0, s1, s2, s3
 
 
 @njit(cache=True, boundscheck=False)
@@ -126,16 +123,7 @@ def loop_update(kind, chain, vertices, n_vertices):
             continue
         n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-        mark = np.int32(-1 - int(u * n_colours))
-        leg = l0
-        while True:
-            partner = leg ^ 1
-            nxt = links[U(partner)]
-            links[U(leg)] = mark
-            links[U(partner)] = mark
-            leg = nxt
-            if leg == l0:
-                break
+        mark_loop(links, l0, np.int32(-1 - int(u * n_colours)))
     for v in range(n_vertices):  # the new colour above every bond vertex, plus one
         vflip[U(v)] = np.uint8(-links[U(4 * v + 2)])
     for i in range(spins.shape[0]):

@@ -33,7 +33,7 @@ from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
-           "apply_changes", "hop", "site_value", "bond_value"]
+           "apply_changes", "hop", "site_value", "bond_value", "bonds_blocked", "mark_loop"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
@@ -49,6 +49,33 @@ def record(model: object) -> ProjectorKind:
     return ProjectorKind()
 
 
+@njit(inline="always")
+def bonds_blocked(table, t, k, spins, blocked_if_equal):
+    """Whether a bond of term t (k bonds) blocks an insertion: one whose two site states are equal
+    (``blocked_if_equal``, S = 1/2 spins: a parallel pair) or differ (colours).  Shared with the colour
+    kind; the flag is a constant in each caller, so it folds away when inlined."""
+    blocked = False
+    for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
+        col = TT_BOND + TT_BOND_WIDTH * a
+        blocked |= (spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]) == blocked_if_equal
+    return blocked
+
+
+@njit(inline="always")
+def mark_loop(links, l0, mark):
+    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set every leg it
+    visits to ``mark`` (< 0: visited).  Shared with the colour kind."""
+    leg = l0
+    while True:
+        partner = leg ^ 1
+        nxt = links[U(partner)]
+        links[U(leg)] = mark
+        links[U(partner)] = mark
+        leg = nxt
+        if leg == l0:
+            break
+
+
 def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:
     """Spins +-1, each up with probability 1/2 (u < 1/2)."""
     return np.where(u < 0.5, 1, -1).astype(np.int8)
@@ -57,11 +84,7 @@ def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:
 @njit(inline="always")
 def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
     """(allowed, rng words): may an operator of term t (k bonds, row ``table[t]``) be inserted now?"""
-    blocked = False
-    for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
-        col = TT_BOND + TT_BOND_WIDTH * a
-        blocked |= spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]
-    return not blocked, s0, s1, s2, s3
+    return not bonds_blocked(table, t, k, spins, True), s0, s1, s2, s3
 
 
 @njit(cache=True, boundscheck=False)
@@ -92,14 +115,7 @@ def loop_update(kind, chain, vertices, n_vertices):
                 if leg == l0:
                     break
         else:
-            while True:
-                partner = leg ^ 1
-                nxt = links[U(partner)]
-                links[U(leg)] = -1
-                links[U(partner)] = -1
-                leg = nxt
-                if leg == l0:
-                    break
+            mark_loop(links, l0, -1)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
