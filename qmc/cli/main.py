@@ -54,7 +54,7 @@ class _Cli(click.Group):
 @click.group(name="qmc", cls=_Cli, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(package_name="seriesloop", prog_name="qmc")
 def cli() -> None:
-    """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 spin models.
+    """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 and SU(N) spin models.
 
     Write a configuration (`qmc new`), run it (`qmc run`, serially or under mpiexec; rerun to resume,
     edit and rerun to grow it), watch it (`qmc status`), then read the results (`qmc summary`,
