@@ -220,9 +220,6 @@ def _report(plan: Any, report: Any, quiet: bool, logger: logging.Logger) -> int:
         logger.error(fault_text(report.fault))
         click.echo(f"error: {fault_text(report.fault)}", err=True)
         return WRITE_FAULT_EXIT
-    if report.elsewhere:
-        click.echo(f"note: {len(report.elsewhere)} task(s) are being run by other processes sharing "
-                   f"{plan.run_dir}: {_listing(report.elsewhere)}", err=True)
     for o in report.failed:
         click.echo(f"error: task {o.task_id} failed: {o.message} (details in {plan.run_dir / 'run.log'})",
                    err=True)
@@ -233,6 +230,11 @@ def _report(plan: Any, report: Any, quiet: bool, logger: logging.Logger) -> int:
         logger.info(text)
         if not report.failed or report.stop_reason:
             click.echo(text, err=True)
+    elif report.elsewhere:  # a job array: this process has done its share
+        text = (f"note: {len(report.elsewhere)} of {n_sel} task(s) are being run by other processes sharing "
+                f"{plan.run_dir}: {_listing(report.elsewhere)}; the rest is done")
+        logger.info(text)
+        click.echo(text, err=True)
     else:
         text = f"done: all {n_sel} task(s) finished in {plan.run_dir}"
         logger.info(text)

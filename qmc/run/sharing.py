@@ -46,7 +46,10 @@ class SharedRun:
 
     def claim(self, unit: Sequence[Task]) -> bool:
         """Claim every task of ``unit`` (in order) for this process; False, holding none of them, if a live
-        process holds one."""
+        process holds one, or if the index (as last read) says another process has finished them all."""
+        entries = self.plan.index["tasks"]
+        if all(entries[t.task_id].get("status") == "done" for t in unit):
+            return False
         taken: list[str] = []
         for t in unit:
             if not self.book.claim(t.task_id):
