@@ -127,25 +127,22 @@ def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
 def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
     """Write the whole task file atomically; refuses to replace a file that is not this task's file.
 
-    Raises :class:`~qmc.storage.faults.WriteFault` when the machine refuses the write (the previous file
-    stays, no temporary file is left)."""
+    The file is built in memory (HDF5 core driver without backing store) and its bytes are written with
+    plain system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
+    :class:`~qmc.storage.faults.WriteFault`, the previous file stays, no temporary file is left."""
+    import h5py
+
     path = Path(path)
     if path.exists():
         head = task_header(path)  # raises UserError if the file is not a task file
         if head["task_id"] != record.task_id:
             raise UserError(f"holds task {head['task_id']!r}, not {record.task_id!r}; not overwriting it",
                             str(path))
-    atomic_write_bytes(path, _image(record))
-
-
-def _image(record: TaskRecord) -> bytes:
-    """The bytes of the task file of ``record``, built in memory (HDF5 core driver, no backing store)."""
-    import h5py
-
     with h5py.File(f"{record.task_id}.h5", "w", driver="core", backing_store=False) as f:
         _fill(f, record)
         f.flush()
-        return f.id.get_file_image()
+        image = f.id.get_file_image()
+    atomic_write_bytes(path, image)
 
 
 def _fill(f: Any, rec: TaskRecord) -> None:
