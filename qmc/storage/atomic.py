@@ -52,9 +52,12 @@ def _fsync_directory(path: Path) -> None:
         os.close(fd)
 
 
-def atomic_write_bytes(path: str | os.PathLike, data: bytes | bytearray | memoryview) -> None:
+def atomic_write_bytes(path: str | os.PathLike, data: bytes | bytearray | memoryview, durable: bool = True
+                       ) -> None:
     """Replace ``path`` by ``data`` atomically; WriteFault (temporary file removed, ``path`` unchanged) when
-    the machine refuses the write."""
+    the machine refuses the write.  ``durable=False`` skips the fsync calls (the replacement is still
+    atomic for every reader, but a crash of the machine may lose it): for files rewritten every few
+    seconds whose loss does not matter, such as heartbeats."""
     path = Path(path)
     tmp = temporary_path(path)
     try:
@@ -63,7 +66,8 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes | bytearray | memory
             view = memoryview(data).cast("B")
             while view:
                 view = view[os.write(fd, view):]
-            os.fsync(fd)
+            if durable:
+                os.fsync(fd)
         finally:
             os.close(fd)
         os.replace(tmp, path)
@@ -75,12 +79,13 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes | bytearray | memory
         if isinstance(exc, OSError):
             raise write_fault(path, exc) from None
         raise
-    _fsync_directory(path.parent)
+    if durable:
+        _fsync_directory(path.parent)
 
 
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
+def atomic_write_text(path: str | os.PathLike, text: str, durable: bool = True) -> None:
     """Write ``text`` (UTF-8) to ``path`` atomically (see :func:`atomic_write_bytes`)."""
-    atomic_write_bytes(path, text.encode("utf-8"))
+    atomic_write_bytes(path, text.encode("utf-8"), durable)
 
 
 def remove_leftovers(directory: str | os.PathLike, older_than: float = LEFTOVER_SECONDS) -> list[Path]:

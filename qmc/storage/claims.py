@@ -8,10 +8,8 @@ Files, in ``RUN_DIR/claims/``:
 
 ``<key>.<generation>.claim``
     One claim, JSON ``{"key", "host", "pid", "owner", "claimed", "heartbeat"}`` (times in seconds since
-    1970).  It appears complete or not at all: written to a temporary file and hard-linked to its name,
-    which fails if the name exists (or, where links are not supported, created with ``O_EXCL``), so of
-    two processes creating the same name exactly one succeeds.  The claim in force is the one of the
-    highest generation.
+    1970), created exclusively (``O_CREAT | O_EXCL``), so of two processes creating the same name exactly
+    one succeeds.  The claim in force is the one of the highest generation.
 ``<owner>.alive``
     The heartbeat of a claiming process, JSON ``{"host", "pid", "owner", "heartbeat"}``, rewritten at most
     every :data:`HEARTBEAT_SECONDS` while it works (one file per process, however many claims it holds:
@@ -36,7 +34,7 @@ import time
 from pathlib import Path
 from typing import Any
 
-from qmc.storage.atomic import atomic_write_text, remove_leftovers, temporary_path
+from qmc.storage.atomic import atomic_write_text, remove_leftovers
 from qmc.storage.faults import write_fault
 from qmc.storage.processes import pid_alive, this_host
 
@@ -68,12 +66,22 @@ class ClaimBook:
         self.owner = f"{self.host}-{self.pid}-{secrets.token_hex(4)}"
         self.held: dict[str, int] = {}  # key -> generation of our claim
         self.last_beat = 0.0
+        self._base = str(self.dir) + os.sep  # paths as strings: a claim costs a few system calls
+        self._made = False
+
+    def _path(self, key: str, gen: int) -> str:
+        return f"{self._base}{key}.{gen}.claim"
+
+    def _sure(self) -> bool:
+        """Whether no process can have taken our claims: our last heartbeat is younger than half the stale
+        limit (and we are alive), so none of them looks stale to anybody."""
+        return time.time() - self.last_beat < 0.5 * self.stale_seconds
 
     # ------------------------------------------------------------------------------------------ reading
     def _generations(self, key: str) -> list[tuple[int, Path]]:
-        found = []
-        while (p := self.dir / f"{key}.{len(found)}.claim").exists():
-            found.append((len(found), p))
+        found: list[tuple[int, Path]] = []
+        while os.path.exists(p := self._path(key, len(found))):
+            found.append((len(found), Path(p)))
         return found
 
     @staticmethod
@@ -115,33 +123,27 @@ class ClaimBook:
 
     # ------------------------------------------------------------------------------------------ claiming
     def _create(self, key: str, gen: int) -> bool:
-        """Create claim file ``gen`` of ``key``; False if it exists already (another process was first)."""
+        """Create claim file ``gen`` of ``key`` exclusively (``O_CREAT | O_EXCL``: of several processes
+        exactly one succeeds, also on NFS from version 3 on and on parallel file systems); False if it exists
+        already.  A reader that finds it before its content is in takes it as held (:meth:`holder`)."""
         now = time.time()
-        record = {"key": key, "host": self.host, "pid": self.pid, "owner": self.owner, "claimed": now,
-                  "heartbeat": now}
-        path = self.dir / f"{key}.{gen}.claim"
-        tmp = temporary_path(path)
+        record = json.dumps({"key": key, "host": self.host, "pid": self.pid, "owner": self.owner,
+                             "claimed": now, "heartbeat": now}).encode()
+        path = self._path(key, gen)
         try:
-            self.dir.mkdir(parents=True, exist_ok=True)
-            tmp.write_text(json.dumps(record), encoding="utf-8")
+            if not self._made:
+                self.dir.mkdir(parents=True, exist_ok=True)
+                self._made = True
             try:
-                os.link(tmp, path)
+                fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
             except FileExistsError:
                 return False
-            except OSError:  # no hard links here: exclusive creation instead
-                try:
-                    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-                except FileExistsError:
-                    return False
-                with os.fdopen(fd, "w", encoding="utf-8") as fh:
-                    fh.write(json.dumps(record))
+            try:
+                os.write(fd, record)
+            finally:
+                os.close(fd)
         except OSError as exc:
             raise write_fault(path, exc) from None
-        finally:
-            try:
-                tmp.unlink(missing_ok=True)
-            except OSError:
-                pass
         return True
 
     def claim(self, key: str) -> bool:
@@ -169,8 +171,10 @@ class ClaimBook:
     def still_held(self, key: str) -> bool:
         """Whether our claim on ``key`` is still the one in force (no other process took it over)."""
         gen = self.held.get(key)
-        if gen is None:
-            return False
+        return gen is not None and self.still_held_at(key, gen)
+
+    def still_held_at(self, key: str, gen: int) -> bool:
+        """Whether generation ``gen`` of ``key``, ours, is still the claim in force."""
         gens = self._generations(key)
         if not gens or gens[-1][0] != gen:
             return False
@@ -182,13 +186,13 @@ class ClaimBook:
         it are removed, lowest first (a process looking meanwhile sees the unit free, or held by us)."""
         if key not in self.held:
             return
-        if self.still_held(key):
-            for _, path in self._generations(key)[:self.held[key] + 1]:
+        gen = self.held.pop(key)
+        if self._sure() or self.still_held_at(key, gen):
+            for g in range(gen + 1):
                 try:
-                    path.unlink(missing_ok=True)
+                    os.unlink(self._path(key, g))
                 except OSError:
                     pass
-        del self.held[key]
 
     def beat(self, force: bool = False) -> list[str]:
         """Rewrite this process's heartbeat if due (or ``force``); returns the keys of claims lost to other
@@ -208,7 +212,7 @@ class ClaimBook:
         except OSError as exc:
             raise write_fault(path, exc) from None
         atomic_write_text(path, json.dumps({"host": self.host, "pid": self.pid, "owner": self.owner,
-                                            "heartbeat": now}))
+                                            "heartbeat": now}), durable=False)
         self.last_beat = now
         return lost
 
