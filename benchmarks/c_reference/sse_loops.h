@@ -1,0 +1,228 @@
+/*
+ * Loop update of the C reference (included by sse_ref.c): every deterministic singlet-projector loop of the
+ * linked vertex list is built and flipped with probability 1/2.  Two ways to build them, the same Markov
+ * chain step in distribution (each loop flipped independently with probability 1/2; which random number
+ * goes to which loop differs):
+ *
+ *   loops_single       one tracer follows one loop at a time (a chain of dependent loads);
+ *   loops_interleaved  K tracers advance round-robin, one leg pair per turn, each prefetching the leg group
+ *                      it visits next, so that up to K cache misses are in flight.
+ *
+ * Leg layout (see sse_ref.c): leg 4v + l of bond vertex v, l = 0/1 site i/j below, 2/3 site i/j above.
+ * A loop enters a vertex at leg l and leaves at l ^ 1, so the legs come in pairs {2q, 2q + 1} (pair q:
+ * q = 2v the lower pair, 2v + 1 the upper pair) and every pair lies on exactly one loop.  links[leg] is the
+ * leg the world line continues to.  Both variants leave one byte per pair, pflip[q] = 1 if the loop
+ * through pair q was flipped, which the next diagonal sweep applies to the operator string (vertex v
+ * changes between diagonal and off-diagonal iff pflip[2v] ^ pflip[2v + 1]) and which decides the spins of
+ * the sites that carry operators (free sites are flipped with probability 1/2).  links is consumed: the
+ * even leg of every pair is overwritten by a negative mark.
+ *
+ * Interleaved construction, orientation-free (no assumption on how loops run through a vertex beyond the
+ * fixed pairing):
+ *   - a scan over the pairs starts a tracer at the next unmarked pair q: it takes a new fragment id f,
+ *     marks q with -1 - f and remembers both exits of q (forward through leg 2q + 1, backward through 2q);
+ *   - a turn of a tracer looks at the pair its current leg belongs to: unmarked -> mark it with the
+ *     tracer's id and step to the world-line partner of the exit leg (prefetching its group of legs);
+ *     marked (by anyone, itself included) -> this end of the fragment is done; the fragment and the owner
+ *     of the mark are on one loop (union-find over fragment ids, the smaller id is the root);
+ *   - a tracer whose forward end is done goes backward from its start pair; when both ends are done it
+ *     takes the next start from the scan.
+ *   Every pair is marked exactly once (turns are sequential).  Each fragment is a stretch of consecutive
+ *   pairs of one loop whose two ends both ran into marked pairs, so the boundary between any two
+ *   neighbouring fragments of a loop was seen by at least one of them: the union-find classes are exactly
+ *   the loops.  Afterwards one pass over the ids in increasing order (parents are smaller than children)
+ *   draws one flip per root and copies it to the other ids, and one streaming pass over the pairs turns
+ *   marks into pflip.
+ */
+#ifndef SSE_LOOPS_H
+#define SSE_LOOPS_H
+
+#include <stdint.h>
+#include <stdlib.h>
+
+#define MAX_TRACERS 64
+
+/* Single tracer.  Returns the number of loops. */
+static int loops_single(int32_t *restrict links, uint8_t *restrict pflip, int n_vertices, uint64_t *rng)
+{
+    uint64_t r[4] = {rng[0], rng[1], rng[2], rng[3]};
+    const int n_legs = 4 * n_vertices;
+    int n_loops = 0;
+    for (int l0 = 0; l0 < n_legs; l0 += 2) {
+        if (links[l0] < 0) continue;
+        n_loops++;
+        const uint8_t f = next_double(r) < 0.5;
+        int leg = l0;
+        do {
+            const int nxt = links[leg ^ 1];
+            links[leg & ~1] = -1;
+            pflip[leg >> 1] = f;
+            leg = nxt;
+        } while (leg != l0);
+    }
+    memcpy(rng, r, sizeof r);
+    return n_loops;
+}
+
+/* Root of x with path halving; parents are never larger than their children. */
+static inline int uf_find(int32_t *uf, int x)
+{
+    while (uf[x] != x) {
+        uf[x] = uf[uf[x]];
+        x = uf[x];
+    }
+    return x;
+}
+
+static inline void uf_union(int32_t *uf, int a, int b)
+{
+    a = uf_find(uf, a);
+    b = uf_find(uf, b);
+    if (a < b)
+        uf[b] = a;
+    else
+        uf[a] = b;
+}
+
+/* Work space of the interleaved variant: one int32 per fragment id, grown on demand. */
+typedef struct {
+    int32_t *uf;
+    int cap;
+    long fragments; /* statistics: fragment ids used, summed over calls */
+} frag_space_t;
+
+static int32_t *frag_grow(frag_space_t *fs, int need)
+{
+    int cap = fs->cap ? fs->cap : 1024;
+    while (cap < need) cap *= 2;
+    fs->uf = realloc(fs->uf, sizeof(int32_t) * (size_t)cap);
+    if (!fs->uf) {
+        fprintf(stderr, "out of memory\n");
+        exit(2);
+    }
+    fs->cap = cap;
+    return fs->uf;
+}
+
+/* Even leg of the first unmarked pair at or after even leg `scan` (n_legs if none): 8 pairs per probe,
+   one branch per probe.  links[n_legs .. n_legs + 15] must be negative (padding). */
+static inline int next_start(const int32_t *restrict links, int scan, int n_legs)
+{
+    while (scan < n_legs) {
+        unsigned m = 0;
+        for (int i = 0; i < 8; i++) m |= (unsigned)(links[scan + 2 * i] >= 0) << i;
+        if (m) return scan + 2 * __builtin_ctz(m);
+        scan += 16;
+    }
+    return n_legs;
+}
+
+/* Interleaved tracers with an eager start: a tracer that has just been (re)started walks up to E pairs on
+   its own before it joins the round-robin, so that short loops (most of them, and local in memory) are
+   done at single-tracer cost and only the long ones are interleaved. */
+typedef struct {
+    int32_t *links, *uf;
+    frag_space_t *fs;
+    int cap, n_frag, scan, n_legs, E;
+} hybrid_t;
+
+typedef struct {
+    int32_t cur, back, lab, fwd;
+} tracer_t;
+
+/* Serve a tracer whose current pair carries mark mk (< 0: a stop; >= 0: a fresh slot): handle stops,
+   start fragments and walk eagerly until E pairs are done without a stop.  Returns 1 if nothing was left
+   to start (the slot retires). */
+static inline int serve(hybrid_t *restrict h, tracer_t *restrict tr, int mk)
+{
+    int32_t *restrict links = h->links;
+    int budget = h->E;
+    for (;;) {
+        if (mk < 0 && mk != tr->lab) {
+            uf_union(h->uf, -1 - tr->lab, -1 - mk);
+            if (tr->fwd) { /* forward end done: go backward from the start pair */
+                tr->fwd = 0;
+                tr->cur = tr->back;
+                goto walk;
+            }
+        }
+        h->scan = next_start(links, h->scan, h->n_legs);
+        if (h->scan >= h->n_legs) return 1;
+        if (h->n_frag == h->cap) {
+            h->uf = frag_grow(h->fs, h->cap + 1);
+            h->cap = h->fs->cap;
+        }
+        h->uf[h->n_frag] = h->n_frag;
+        tr->lab = -1 - h->n_frag;
+        tr->back = links[h->scan];
+        tr->cur = links[h->scan + 1];
+        tr->fwd = 1;
+        links[h->scan] = tr->lab;
+        h->n_frag++;
+        h->scan += 2;
+    walk:
+        for (; budget > 0; budget--) {
+            const int c = tr->cur;
+            mk = links[c & ~1];
+            if (mk < 0) break;
+            tr->cur = links[c ^ 1];
+            links[c & ~1] = tr->lab;
+        }
+        if (budget == 0) {
+            __builtin_prefetch(&links[tr->cur], 1, 3);
+            return 0;
+        }
+    }
+}
+
+static int loops_interleaved(int32_t *restrict links, uint8_t *restrict pflip, int n_vertices, int K, int E,
+                        uint64_t *rng, frag_space_t *fs)
+{
+    const int n_pairs = 2 * n_vertices;
+    hybrid_t h = {links, fs->cap >= 1024 ? fs->uf : frag_grow(fs, 1024), fs, 0, 0, 0, 4 * n_vertices, E};
+    h.cap = fs->cap;
+    tracer_t tr[MAX_TRACERS];
+    int active = 0;
+    for (int i = 0; i < 16; i++) links[h.n_legs + i] = -1;
+    while (active < K) {
+        tr[active].lab = 0;
+        if (serve(&h, &tr[active], 0)) break;
+        active++;
+    }
+    while (active > 0) {
+        for (int t = 0; t < active; t++) {
+            const int c = tr[t].cur;
+            const int mark = links[c & ~1];
+            if (mark >= 0) {
+                const int nxt = links[c ^ 1];
+                links[c & ~1] = tr[t].lab;
+                tr[t].cur = nxt;
+                __builtin_prefetch(&links[nxt], 1, 3);
+                continue;
+            }
+            if (serve(&h, &tr[t], mark)) {
+                tr[t] = tr[--active];
+                t--;
+            }
+        }
+    }
+
+    int32_t *uf = h.uf;
+    uint64_t r[4] = {rng[0], rng[1], rng[2], rng[3]};
+    int n_loops = 0;
+    for (int f = 0; f < h.n_frag; f++) {
+        const int p = uf[f];
+        if (p == f) {
+            uf[f] = next_double(r) < 0.5;
+            n_loops++;
+        } else {
+            uf[f] = uf[p];
+        }
+    }
+    memcpy(rng, r, sizeof r);
+    for (int q = 0; q < n_pairs; q++) pflip[q] = (uint8_t)uf[-1 - links[2 * q]];
+    fs->fragments += h.n_frag;
+    return n_loops;
+}
+
+#endif
