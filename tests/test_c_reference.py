@@ -69,7 +69,7 @@ def test_energy_matches_exact_diagonalization(exe, J, Q):
 def test_interleaved_tracers_give_the_single_tracer_chain(exe, J, Q):
     keys = ("mean_n", "energy_per_site", "m_stag2_time_avg", "s_q_next", "w2", "mz2", "mean_loops")
     ref = run(exe, 8, 4.0, J, Q, 200, 2000, 5, "1")
-    for variant in ("2:0", "7:1", "64:0"):
+    for variant in ("2:0", "7:1", "32:32:1", "64:0"):
         got = run(exe, 8, 4.0, J, Q, 200, 2000, 5, variant)
         assert got["variants"][0]["fragments_per_loop"] > 1.0  # tracers did meet on shared loops
         assert {k: got[k] for k in keys} == {k: ref[k] for k in keys}, variant

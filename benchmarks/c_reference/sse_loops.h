@@ -1,12 +1,12 @@
 /*
  * Loop update of the C reference (included by sse_ref.c): every deterministic singlet-projector loop of the
- * linked vertex list is built and flipped with probability 1/2.  Two ways to build them, the same Markov
- * chain step in distribution (each loop flipped independently with probability 1/2; which random number
- * goes to which loop differs):
+ * linked vertex list is built and flipped with probability 1/2.  Two ways to build them that give the same
+ * Markov chain bit for bit:
  *
- *   loops_single       one tracer follows one loop at a time (a chain of dependent loads);
- *   loops_interleaved  K tracers advance round-robin, one leg pair per turn, each prefetching the leg group
- *                      it visits next, so that up to K cache misses are in flight.
+ *   loops_single       one tracer follows one loop at a time: a chain of dependent loads, one cache miss
+ *                      after the other once the vertex list is larger than the caches;
+ *   loops_interleaved  up to K tracers take turns, one leg pair per turn, each prefetching the group of
+ *                      legs it visits next, so that up to K cache misses are in flight.
  *
  * Leg layout (see sse_ref.c): leg 4v + l of bond vertex v, l = 0/1 site i/j below, 2/3 site i/j above.
  * A loop enters a vertex at leg l and leaves at l ^ 1, so the legs come in pairs {2q, 2q + 1} (pair q:
@@ -17,22 +17,34 @@
  * the sites that carry operators (free sites are flipped with probability 1/2).  links is consumed: the
  * even leg of every pair is overwritten by a negative mark.
  *
- * Interleaved construction, orientation-free (no assumption on how loops run through a vertex beyond the
- * fixed pairing):
- *   - a scan over the pairs starts a tracer at the next unmarked pair q: it takes a new fragment id f,
- *     marks q with -1 - f and remembers both exits of q (forward through leg 2q + 1, backward through 2q);
- *   - a turn of a tracer looks at the pair its current leg belongs to: unmarked -> mark it with the
- *     tracer's id and step to the world-line partner of the exit leg (prefetching its group of legs);
- *     marked (by anyone, itself included) -> this end of the fragment is done; the fragment and the owner
- *     of the mark are on one loop (union-find over fragment ids, the smaller id is the root);
- *   - a tracer whose forward end is done goes backward from its start pair; when both ends are done it
- *     takes the next start from the scan.
- *   Every pair is marked exactly once (turns are sequential).  Each fragment is a stretch of consecutive
- *   pairs of one loop whose two ends both ran into marked pairs, so the boundary between any two
- *   neighbouring fragments of a loop was seen by at least one of them: the union-find classes are exactly
- *   the loops.  Afterwards one pass over the ids in increasing order (parents are smaller than children)
- *   draws one flip per root and copies it to the other ids, and one streaming pass over the pairs turns
- *   marks into pflip.
+ * Interleaved construction (no assumption on how loops run through a vertex beyond the fixed pairing, so
+ * it does not rely on the lattice being bipartite):
+ *   - a scan over the pairs (in increasing order) starts a tracer at the next unmarked pair q: the tracer
+ *     takes the next fragment id f, marks q with -1 - f and remembers both exits of q (forward through leg
+ *     2q + 1, backward through 2q);
+ *   - a step looks at the pair the tracer's current leg belongs to: unmarked -> mark it with the tracer's
+ *     id and move to the world-line partner of the exit leg; marked (by anyone, itself included) -> this
+ *     end of the fragment is done, and the fragment and the owner of the mark lie on one loop (union-find
+ *     over fragment ids, the smaller id becomes the root).  Its own mark can only be met going forward, at
+ *     the start pair: then the loop is closed and wholly this fragment's;
+ *   - a tracer whose forward end ran into another fragment goes backward from its start pair; when both
+ *     ends are done it takes the next start from the scan;
+ *   - scheduling: a freshly (re)started tracer walks on its own for up to E steps while its legs stay
+ *     within `window` legs of the scan position (that stretch of the links array is streamed into the
+ *     cache ahead of the scan), so that the many short loops, which stay close to where they start, cost
+ *     what they cost a single tracer; a tracer that leaves the window or uses up E joins the round-robin,
+ *     where each turn is one step followed by a prefetch of the next leg group.
+ *   Every pair is marked exactly once (steps are sequential, whatever the schedule).  Each fragment is a
+ *   stretch of consecutive pairs of one loop whose two ends both ran into marked pairs, so the boundary
+ *   between any two neighbouring fragments of a loop was seen by at least one of them: the union-find
+ *   classes are exactly the loops.  Afterwards one pass over the ids in increasing order (parents are
+ *   smaller than children) draws one flip per root and copies it to the other ids, and one streaming pass
+ *   over the pairs turns marks into pflip.
+ *
+ * Same chain as the single tracer: the scan meets the pairs in increasing order, so the first fragment of
+ * every loop starts at the loop's first pair, which is where the single tracer starts it; ids grow in
+ * scan order, so roots (smallest id of each loop) come in the single tracer's loop order and draw the same
+ * random numbers.  Hence K, E and the window change the speed, never the result.
  */
 #ifndef SSE_LOOPS_H
 #define SSE_LOOPS_H
@@ -117,23 +129,22 @@ static inline int next_start(const int32_t *restrict links, int scan, int n_legs
     return n_legs;
 }
 
-/* Interleaved tracers with an eager start: a tracer that has just been (re)started walks up to E pairs on
-   its own before it joins the round-robin, so that short loops (most of them, and local in memory) are
-   done at single-tracer cost and only the long ones are interleaved. */
+/* Shared state of the interleaved construction. */
 typedef struct {
     int32_t *links, *uf;
     frag_space_t *fs;
     int cap, n_frag, scan, n_legs, E;
-} hybrid_t;
+    int window, pf; /* walks alone stay within `window` legs of the scan; legs < pf were prefetched */
+} weave_t;
 
 typedef struct {
-    int32_t cur, back, lab, fwd;
+    int32_t cur, back, lab, fwd; /* current leg, backward exit of the start pair, mark, going forward? */
 } tracer_t;
 
 /* Serve a tracer whose current pair carries mark mk (< 0: a stop; >= 0: a fresh slot): handle stops,
-   start fragments and walk eagerly until E pairs are done without a stop.  Returns 1 if nothing was left
-   to start (the slot retires). */
-static inline int serve(hybrid_t *restrict h, tracer_t *restrict tr, int mk)
+   start fragments and walk alone (see the schedule above).  Returns 1 if nothing was left to start (the
+   slot retires), 0 when the tracer joins the round-robin. */
+static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
 {
     int32_t *restrict links = h->links;
     int budget = h->E;
@@ -160,26 +171,34 @@ static inline int serve(hybrid_t *restrict h, tracer_t *restrict tr, int mk)
         links[h->scan] = tr->lab;
         h->n_frag++;
         h->scan += 2;
+        if (h->window) {
+            const int hi = h->scan + h->window < h->n_legs ? h->scan + h->window : h->n_legs;
+            for (; h->pf < hi; h->pf += 16) __builtin_prefetch(&links[h->pf], 1, 2);
+        }
     walk:
-        for (; budget > 0; budget--) {
+        for (;; budget--) {
             const int c = tr->cur;
+            const int outside = h->window && (unsigned)(c - h->scan + h->window) >= 2u * (unsigned)h->window;
+            if (budget == 0 || outside) {
+                __builtin_prefetch(&links[c], 1, 3);
+                return 0; /* on to the round-robin */
+            }
             mk = links[c & ~1];
-            if (mk < 0) break;
+            if (mk < 0) break; /* a stop: served at the top of the outer loop */
             tr->cur = links[c ^ 1];
             links[c & ~1] = tr->lab;
-        }
-        if (budget == 0) {
-            __builtin_prefetch(&links[tr->cur], 1, 3);
-            return 0;
         }
     }
 }
 
+/* K interleaved tracers (1 <= K <= MAX_TRACERS), E steps alone within `window` legs of the scan.  Returns
+   the number of loops. */
 static int loops_interleaved(int32_t *restrict links, uint8_t *restrict pflip, int n_vertices, int K, int E,
-                        uint64_t *rng, frag_space_t *fs)
+                             int window, uint64_t *rng, frag_space_t *fs)
 {
     const int n_pairs = 2 * n_vertices;
-    hybrid_t h = {links, fs->cap >= 1024 ? fs->uf : frag_grow(fs, 1024), fs, 0, 0, 0, 4 * n_vertices, E};
+    weave_t h = {links, fs->cap >= 1024 ? fs->uf : frag_grow(fs, 1024), fs, 0, 0, 0, 4 * n_vertices, E,
+                  window, 0};
     h.cap = fs->cap;
     tracer_t tr[MAX_TRACERS];
     int active = 0;

@@ -3,11 +3,15 @@
  * numba engine (benchmarks/c_compare.py).  C99 plus __builtin_prefetch (gcc, clang), no dependencies:
  *
  *     cc -O3 -march=native -o sse_ref sse_ref.c -lm
- *     ./sse_ref L beta J Q warmup_steps measured_steps seed [tracers]
+ *     ./sse_ref L beta J Q warmup_steps measured_steps seed [variants [rounds]]
  *
- * tracers: 1 = one loop at a time (loops_single), K >= 2 = K interleaved tracers (loops_interleaved),
- * 0 or absent = chosen by size (interleaved with AUTO_TRACERS tracers once the links array exceeds
- * AUTO_BYTES, where it no longer fits the per-core cache; see sse_loops.h).
+ * variants: comma-separated loop-update variants K[:E[:W]] (sse_loops.h): K = 1 one loop at a time
+ * (loops_single), K >= 2 K interleaved tracers (loops_interleaved) that walk up to E steps alone while
+ * within W KiB of the scan; K = 0 (the default) chooses by size: one tracer while the links array is at
+ * most AUTO_BYTES, else AUTO_TRACERS:AUTO_EAGER:AUTO_WINDOW_KIB (measured with benchmarks/c_compare.py
+ * --scaling).  All variants give the same Markov chain bit for bit, so one chain can take turns: each of
+ * `rounds` rounds (default 1) runs measured_steps steps with every variant; the timings of each variant
+ * are those of its fastest round.
  * Compile with -DSSE_CHECK to verify after every sweep that the world lines close (periodic in imaginary
  * time) and that every operator acts on antiparallel bonds, i.e. that every loop was flipped as a whole.
  *
@@ -61,9 +65,10 @@
 #define HIST_BINS 64
 #define HIST_RANGE 0.25
 #define TWO_PI 6.283185307179586476925286766559
-#define AUTO_TRACERS 8
-#define AUTO_BYTES (1L << 21)
-#define AUTO_EAGER 4
+#define AUTO_TRACERS 32
+#define AUTO_BYTES (1L << 20)
+#define AUTO_EAGER 32
+#define AUTO_WINDOW_KIB 256
 
 /* ------------------------------------------------------------------------------------------ RNG */
 static inline uint64_t rotl(uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
@@ -107,6 +112,7 @@ typedef struct {
     int vcap;               /* bond vertices the work arrays hold */
     int tracers;            /* loop update: 1 single tracer, K >= 2 interleaved */
     int eager;              /* pairs a fresh tracer walks alone before it is interleaved */
+    int window;             /* ... as long as it stays within this many legs of the scan (0: no limit) */
     int8_t *spins;          /* [N] +-1 */
     int32_t *ops;           /* [M] -1 or (t << 3) | offmask */
     uint8_t *pflip;         /* [2 * vcap] pending loop flips per leg pair */
@@ -292,6 +298,12 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
     for (int p = 0; p < M; p++) {
         int op = ops[p];
         const int32_t *row;
+#ifdef SWEEP_PREFETCH
+        {
+            const int ahead = ops[p + SWEEP_PREFETCH < M ? p + SWEEP_PREFETCH : p];
+            __builtin_prefetch(tt + (size_t)(ahead >= 0 ? ahead >> 3 : 0) * TTW, 0, 3);
+        }
+#endif
         if (op >= 0) {
             row = tt + (size_t)(op >> 3) * TTW;
             const int meta = row[0], k = meta & 3;
@@ -412,7 +424,8 @@ static int loop_update(sse_t *restrict s, int n_vertices)
 {
     const int n_loops = s->tracers == 1
         ? loops_single(s->links, s->pflip, n_vertices, s->rng)
-        : loops_interleaved(s->links, s->pflip, n_vertices, s->tracers, s->eager, s->rng, &s->frag);
+        : loops_interleaved(s->links, s->pflip, n_vertices, s->tracers, s->eager, s->window, s->rng,
+                            &s->frag);
     const uint8_t *restrict pflip = s->pflip;
     int8_t *restrict spins = s->spins;
     const int32_t *restrict first = s->first;
@@ -498,9 +511,9 @@ static double cpu_seconds(void)
     return ts.tv_sec + 1e-9 * ts.tv_nsec;
 }
 
-/* Loop variant: tracers K (1 = single tracer) and eager pairs E; 0 tracers = chosen by size. */
+/* Loop variant: tracers K (1 = single tracer), eager pairs E, eager window W KiB; 0 tracers = by size. */
 typedef struct {
-    int tracers, eager, auto_choice;
+    int tracers, eager, window_kib, auto_choice;
     double t_step, t_sweep, t_loop; /* CPU seconds of the current round */
     double best_step, best_sweep, best_loop, frag_per_loop;
     int rounds_done;
@@ -509,11 +522,12 @@ typedef struct {
 /* The variant used for a vertex list of nv vertices when none is asked for (measured with --scaling of
    benchmarks/c_compare.py): one tracer while the links array (16 bytes per vertex) fits the per-core
    cache, interleaved tracers beyond. */
-static void auto_variant(int nv, int *tracers, int *eager)
+static void auto_variant(int nv, int *tracers, int *eager, int *window_kib)
 {
     const long bytes = 16L * nv;
     *tracers = bytes > AUTO_BYTES ? AUTO_TRACERS : 1;
     *eager = *tracers > 1 ? AUTO_EAGER : 0;
+    *window_kib = *tracers > 1 ? AUTO_WINDOW_KIB : 0;
 }
 
 static int parse_variants(const char *text, variant_t *v, int max)
@@ -523,7 +537,7 @@ static int parse_variants(const char *text, variant_t *v, int max)
     while (*c && n < max) {
         char *end;
         const long k = strtol(c, &end, 10);
-        long e = 0;
+        long e = 0, w = 0;
         if (end == c || k < 0 || k > MAX_TRACERS) return -1;
         c = end;
         if (*c == ':') {
@@ -531,7 +545,12 @@ static int parse_variants(const char *text, variant_t *v, int max)
             if (end == c + 1 || e < 0) return -1;
             c = end;
         }
-        v[n] = (variant_t){(int)k, (int)e, k == 0, 0, 0, 0, 1e300, 1e300, 1e300, 0, 0};
+        if (*c == ':') {
+            w = strtol(c + 1, &end, 10);
+            if (end == c + 1 || w < 0 || w > (1L << 20)) return -1;
+            c = end;
+        }
+        v[n] = (variant_t){(int)k, (int)e, (int)w, k == 0, 0, 0, 0, 1e300, 1e300, 1e300, 0, 0};
         n++;
         if (*c == ',') c++;
         else if (*c) return -1;
@@ -541,12 +560,14 @@ static int parse_variants(const char *text, variant_t *v, int max)
 
 static void use_variant(sse_t *s, const variant_t *v, int nv)
 {
+    int window_kib = v->window_kib;
     if (v->auto_choice) {
-        auto_variant(nv, &s->tracers, &s->eager);
+        auto_variant(nv, &s->tracers, &s->eager, &window_kib);
     } else {
         s->tracers = v->tracers;
         s->eager = v->eager;
     }
+    s->window = window_kib * 256; /* legs of 4 bytes */
 }
 
 /* ------------------------------------------------------------------------------------------ main */
@@ -554,7 +575,8 @@ int main(int argc, char **argv)
 {
     if (argc < 8 || argc > 10) {
         fprintf(stderr, "usage: %s L beta J Q warmup_steps measured_steps seed [variants [rounds]]\n"
-                        "  variants: comma-separated K or K:E (K tracers, E eager pairs; 0 = by size)\n",
+                        "  variants: comma-separated K[:E[:W]] (K tracers, E eager pairs within W KiB of\n"
+                        "  the scan; 0 = chosen by size)\n",
                 argv[0]);
         return 1;
     }
@@ -618,6 +640,7 @@ int main(int argc, char **argv)
             }
             v->tracers = s.tracers;
             v->eager = s.eager;
+            v->window_kib = s.window / 256;
             v->frag_per_loop = s.tracers > 1 ? (s.frag.fragments - frag0) / (loops > 1 ? loops : 1) : 1.0;
         }
 
@@ -650,11 +673,12 @@ int main(int argc, char **argv)
            (acc[A_W2X] + acc[A_W2Y]) / total, acc[A_MZ2] / total, cpu);
     for (int k = 0; k < n_var; k++) {
         const variant_t *v = &var[k];
-        printf("%s{\"tracers\": %d, \"eager\": %d, \"auto\": %s, \"cpu_ns_per_slot_per_step\": %.6g, "
+        printf("%s{\"tracers\": %d, \"eager\": %d, \"window_kib\": %d, \"auto\": %s, "
+               "\"cpu_ns_per_slot_per_step\": %.6g, "
                "\"cpu_ns_per_op_per_step\": %.6g, \"cpu_ms_per_step\": %.6g, "
                "\"sweep_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_leg\": %.6g, "
                "\"fragments_per_loop\": %.6g}",
-               k ? ", " : "", v->tracers, v->eager, v->auto_choice ? "true" : "false",
+               k ? ", " : "", v->tracers, v->eager, v->window_kib, v->auto_choice ? "true" : "false",
                v->best_step * per_slot, v->best_step * 1e9 / steps / (mean > 1 ? mean : 1),
                v->best_step * 1e3 / steps, v->best_sweep * per_slot, v->best_loop * per_slot,
                v->best_loop * 1e9 / steps / (legs > 1 ? legs : 1), v->frag_per_loop);
