@@ -298,12 +298,6 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
     for (int p = 0; p < M; p++) {
         int op = ops[p];
         const int32_t *row;
-#ifdef SWEEP_PREFETCH
-        {
-            const int ahead = ops[p + SWEEP_PREFETCH < M ? p + SWEEP_PREFETCH : p];
-            __builtin_prefetch(tt + (size_t)(ahead >= 0 ? ahead >> 3 : 0) * TTW, 0, 3);
-        }
-#endif
         if (op >= 0) {
             row = tt + (size_t)(op >> 3) * TTW;
             const int meta = row[0], k = meta & 3;
@@ -318,33 +312,39 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
                     exit(3);
                 }
 #endif
-            if (op & 7) {
-                for (int a = 0; a < k; a++) {
-                    if ((op >> a) & 1) {
-                        const int i = row[1 + 2 * a], j = row[2 + 2 * a];
-                        const int si = spins[i], sj = spins[j];
-                        wind[(meta >> (3 + a)) & 1] += si;
-                        ms -= 2 * phase[i] * si + 2 * phase[j] * sj;
-                        spins[i] = (int8_t)-si;
-                        spins[j] = (int8_t)-sj;
-                    }
+            /* propagate through the off-diagonal bonds: one branch for a one-bond operator, none for a
+               multi-bond one (f = 1 flips the pair), whose bond pattern the predictor cannot guess */
+            if (k == 1) {
+                if (op & 1) {
+                    const int i = row[1], j = row[2];
+                    const int si = spins[i], sj = spins[j];
+                    wind[(meta >> 3) & 1] += si;
+                    ms -= 2 * (phase[i] * si + phase[j] * sj);
+                    spins[i] = (int8_t)-si;
+                    spins[j] = (int8_t)-sj;
                 }
-                ops[p] = op;
-                const double fm = ms, fm2 = fm * fm;
-                sum_ms += fm;
-                sum_ms2 += fm2;
-                sum_ms4 += fm2 * fm2;
             } else {
-                const double fm = ms, fm2 = fm * fm;
-                sum_ms += fm;
-                sum_ms2 += fm2;
-                sum_ms4 += fm2 * fm2;
+                for (int a = 0; a < k; a++) {
+                    const int f = (op >> a) & 1, sign = 1 - 2 * f;
+                    const int i = row[1 + 2 * a], j = row[2 + 2 * a];
+                    const int si = spins[i], sj = spins[j];
+                    wind[(meta >> (3 + a)) & 1] += f * si;
+                    ms -= f * 2 * (phase[i] * si + phase[j] * sj);
+                    spins[i] = (int8_t)(sign * si);
+                    spins[j] = (int8_t)(sign * sj);
+                }
+            }
+            ops[p] = op;
+            const double fm = ms, fm2 = fm * fm;
+            sum_ms += fm;
+            sum_ms2 += fm2;
+            sum_ms4 += fm2 * fm2;
+            if ((op & 7) == 0) {
                 if (next_double(rng) * beta_wtot < (double)(M - n + 1)) {
                     ops[p] = -1;
                     n--;
                     continue;
                 }
-                ops[p] = op;
             }
         } else {
             if (next_double(rng) * (double)(M - n) >= beta_wtot) continue;
