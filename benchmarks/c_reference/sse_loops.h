@@ -11,11 +11,11 @@
  * Leg layout (see sse_ref.c): leg 4v + l of bond vertex v, l = 0/1 site i/j below, 2/3 site i/j above.
  * A loop enters a vertex at leg l and leaves at l ^ 1, so the legs come in pairs {2q, 2q + 1} (pair q:
  * q = 2v the lower pair, 2v + 1 the upper pair) and every pair lies on exactly one loop.  links[leg] is the
- * leg the world line continues to.  Both variants leave one byte per pair, pflip[q] = 1 if the loop
- * through pair q was flipped, which the next diagonal sweep applies to the operator string (vertex v
- * changes between diagonal and off-diagonal iff pflip[2v] ^ pflip[2v + 1]) and which decides the spins of
- * the sites that carry operators (free sites are flipped with probability 1/2).  links is consumed: the
- * even leg of every pair is overwritten by a negative mark.
+ * leg the world line continues to.  Both variants leave vflip[v] = 1 for every bond vertex v that an odd
+ * number of flipped loops pass through (its two pairs lie on one or two loops), which the next diagonal
+ * sweep applies to the operator string (and clears), and flip the spins of the sites: a site with
+ * operators takes the flip of the loop through its first leg, a free site is flipped with probability
+ * 1/2.  links is consumed: the even leg of every pair is overwritten by a negative mark.
  *
  * Interleaved construction (no assumption on how loops run through a vertex beyond the fixed pairing, so
  * it does not rely on the lattice being bipartite):
@@ -39,7 +39,9 @@
  *   between any two neighbouring fragments of a loop was seen by at least one of them: the union-find
  *   classes are exactly the loops.  Afterwards one pass over the ids in increasing order (parents are
  *   smaller than children) draws one flip per root and copies it to the other ids, and one streaming pass
- *   over the pairs turns marks into pflip.
+ *   over the vertices turns the marks of their two pairs into vflip.  The ids (one int32 per fragment,
+ *   about one per loop) live in the unused tail of the links array when it has room (it is sized for the
+ *   largest possible string), else in a separate array.
  *
  * Same chain as the single tracer: the scan meets the pairs in increasing order, so the first fragment of
  * every loop starts at the loop's first pair, which is where the single tracer starts it; ids grow in
@@ -51,11 +53,23 @@
 
 #include <stdint.h>
 #include <stdlib.h>
+#include <string.h>
 
 #define MAX_TRACERS 64
 
+/* Sites: free ones flip with probability 1/2 (drawn after the loops' flips, in site order), the others
+   with the loop through their first leg; flipped(f) says whether that loop flipped. */
+#define FLIP_SITES(flipped)                                                                                \
+    do {                                                                                                   \
+        for (int i = 0; i < n_sites; i++) {                                                                \
+            const int f = first[i];                                                                        \
+            if (f < 0 ? next_double(r) < 0.5 : (flipped)) spins[i] = (int8_t)-spins[i];                    \
+        }                                                                                                  \
+    } while (0)
+
 /* Single tracer.  Returns the number of loops. */
-static int loops_single(int32_t *restrict links, uint8_t *restrict pflip, int n_vertices, uint64_t *rng)
+static int loops_single(int32_t *restrict links, uint8_t *restrict vflip, int n_vertices,
+                        int8_t *restrict spins, const int32_t *restrict first, int n_sites, uint64_t *rng)
 {
     uint64_t r[4] = {rng[0], rng[1], rng[2], rng[3]};
     const int n_legs = 4 * n_vertices;
@@ -63,15 +77,17 @@ static int loops_single(int32_t *restrict links, uint8_t *restrict pflip, int n_
     for (int l0 = 0; l0 < n_legs; l0 += 2) {
         if (links[l0] < 0) continue;
         n_loops++;
-        const uint8_t f = next_double(r) < 0.5;
+        const int f = next_double(r) < 0.5;
+        const int mark = -1 - f;
         int leg = l0;
         do {
             const int nxt = links[leg ^ 1];
-            links[leg & ~1] = -1;
-            pflip[leg >> 1] = f;
+            links[leg & ~1] = mark;
+            vflip[leg >> 2] ^= (uint8_t)f;
             leg = nxt;
         } while (leg != l0);
     }
+    FLIP_SITES(links[f & ~1] == -2);
     memcpy(rng, r, sizeof r);
     return n_loops;
 }
@@ -96,23 +112,30 @@ static inline void uf_union(int32_t *uf, int a, int b)
         uf[a] = b;
 }
 
-/* Work space of the interleaved variant: one int32 per fragment id, grown on demand. */
+/* Fragment ids beyond the tail of links: a separate array, grown on demand and kept between calls. */
 typedef struct {
     int32_t *uf;
     int cap;
     long fragments; /* statistics: fragment ids used, summed over calls */
 } frag_space_t;
 
-static int32_t *frag_grow(frag_space_t *fs, int need)
+/* Room for at least `need` ids, keeping the first `keep` of `old`. */
+static int32_t *frag_grow(frag_space_t *fs, int need, const int32_t *old, int keep)
 {
-    int cap = fs->cap ? fs->cap : 1024;
-    while (cap < need) cap *= 2;
-    fs->uf = realloc(fs->uf, sizeof(int32_t) * (size_t)cap);
-    if (!fs->uf) {
-        fprintf(stderr, "out of memory\n");
-        exit(2);
+    if (fs->cap < need) {
+        int cap = fs->cap ? fs->cap : 1024;
+        while (cap < need) cap *= 2;
+        int32_t *uf = malloc(sizeof(int32_t) * (size_t)cap);
+        if (!uf) {
+            fprintf(stderr, "out of memory\n");
+            exit(2);
+        }
+        if (old == fs->uf) memcpy(uf, old, sizeof(int32_t) * (size_t)keep);
+        free(fs->uf);
+        fs->uf = uf;
+        fs->cap = cap;
     }
-    fs->cap = cap;
+    if (old != fs->uf) memcpy(fs->uf, old, sizeof(int32_t) * (size_t)keep);
     return fs->uf;
 }
 
@@ -160,7 +183,7 @@ static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
         h->scan = next_start(links, h->scan, h->n_legs);
         if (h->scan >= h->n_legs) return 1;
         if (h->n_frag == h->cap) {
-            h->uf = frag_grow(h->fs, h->cap + 1);
+            h->uf = frag_grow(h->fs, 2 * h->cap, h->uf, h->n_frag);
             h->cap = h->fs->cap;
         }
         h->uf[h->n_frag] = h->n_frag;
@@ -191,18 +214,25 @@ static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
     }
 }
 
-/* K interleaved tracers (1 <= K <= MAX_TRACERS), E steps alone within `window` legs of the scan.  Returns
-   the number of loops. */
-static int loops_interleaved(int32_t *restrict links, uint8_t *restrict pflip, int n_vertices, int K, int E,
+/* K interleaved tracers (1 <= K <= MAX_TRACERS), E steps alone within `window` legs of the scan; links
+   holds links_len int32.  Returns the number of loops. */
+static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *restrict vflip, int n_vertices,
+                             int8_t *restrict spins, const int32_t *restrict first, int n_sites, int K, int E,
                              int window, uint64_t *rng, frag_space_t *fs)
 {
-    const int n_pairs = 2 * n_vertices;
-    weave_t h = {links, fs->cap >= 1024 ? fs->uf : frag_grow(fs, 1024), fs, 0, 0, 0, 4 * n_vertices, E,
-                  window, 0};
-    h.cap = fs->cap;
+    const int n_legs = 4 * n_vertices;
+    const long tail = links_len - n_legs - 16; /* room for ids after the padding */
+    weave_t h = {links, NULL, fs, 0, 0, 0, n_legs, E, window, 0};
+    if (tail > 0) {
+        h.uf = links + n_legs + 16;
+        h.cap = tail > INT32_MAX ? INT32_MAX : (int)tail;
+    } else {
+        h.uf = frag_grow(fs, 1024, NULL, 0);
+        h.cap = fs->cap;
+    }
     tracer_t tr[MAX_TRACERS];
     int active = 0;
-    for (int i = 0; i < 16; i++) links[h.n_legs + i] = -1;
+    for (int i = 0; i < 16; i++) links[n_legs + i] = -1;
     while (active < K) {
         tr[active].lab = 0;
         if (serve(&h, &tr[active], 0)) break;
@@ -226,7 +256,8 @@ static int loops_interleaved(int32_t *restrict links, uint8_t *restrict pflip, i
         }
     }
 
-    int32_t *uf = h.uf;
+    /* one flip per loop (root), in increasing id order; children read their root's flip */
+    int32_t *restrict uf = h.uf;
     uint64_t r[4] = {rng[0], rng[1], rng[2], rng[3]};
     int n_loops = 0;
     for (int f = 0; f < h.n_frag; f++) {
@@ -238,8 +269,9 @@ static int loops_interleaved(int32_t *restrict links, uint8_t *restrict pflip, i
             uf[f] = uf[p];
         }
     }
+    for (int v = 0; v < n_vertices; v++) vflip[v] = (uint8_t)(uf[-1 - links[4 * v]] ^ uf[-1 - links[4 * v + 2]]);
+    FLIP_SITES(uf[-1 - links[f & ~1]]);
     memcpy(rng, r, sizeof r);
-    for (int q = 0; q < n_pairs; q++) pflip[q] = (uint8_t)uf[-1 - links[2 * q]];
     fs->fragments += h.n_frag;
     return n_loops;
 }

@@ -24,8 +24,8 @@
  * Algorithm (the same as qmc/engine): fixed-length operator string of M slots sampling
  *     W = beta^n (M - n)! / M!  prod_p C_{t_p} / 2^{k_{t_p}};
  * one Monte Carlo step = one diagonal sweep + one full loop decomposition.
- *   - The diagonal sweep is fused: per slot it applies the loop flips of the previous step (pflip, one
- *     byte per leg pair), measures the propagated state (operators per group, staggered magnetisation
+ *   - The diagonal sweep is fused: per slot it applies the loop flips of the previous step (vflip, one
+ *     byte per bond vertex, cleared as it is read), measures the propagated state (operators per group, staggered magnetisation
  *     after every operator, winding), does the diagonal update (insert with probability
  *     min(1, beta W_tot / (M - n)) if all bonds of the chosen term are antiparallel, the term chosen
  *     uniformly within its kind and the kind by weight; remove a fully diagonal operator with probability
@@ -115,7 +115,7 @@ typedef struct {
     int window;             /* ... as long as it stays within this many legs of the scan (0: no limit) */
     int8_t *spins;          /* [N] +-1 */
     int32_t *ops;           /* [M] -1 or (t << 3) | offmask */
-    uint8_t *pflip;         /* [2 * vcap] pending loop flips per leg pair */
+    uint8_t *vflip;         /* [vcap] pending loop flips per bond vertex */
     int32_t *links;         /* [4 * vcap] */
     int32_t *first, *last;  /* [N] */
     frag_space_t frag;
@@ -165,10 +165,10 @@ static void alloc_work(sse_t *s, int M)
 {
     const int vcap = M * (s->nQ ? KMAX : 1);
     if (vcap <= s->vcap) return;
-    uint8_t *pf = xcalloc(2 * (size_t)vcap, 1);
-    if (s->pflip) memcpy(pf, s->pflip, 2 * (size_t)s->vcap);
-    free(s->pflip);
-    s->pflip = pf;
+    uint8_t *vf = xcalloc((size_t)vcap, 1);
+    if (s->vflip) memcpy(vf, s->vflip, (size_t)s->vcap);
+    free(s->vflip);
+    s->vflip = vf;
     free(s->links);
     s->links = xcalloc(4 * (size_t)vcap + 16, sizeof(int32_t));
     s->vcap = vcap;
@@ -270,7 +270,7 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
     const double beta_wtot = s->beta_wtot, wJ_tot = s->wJ_tot, inv_wJ = s->inv_wJ, inv_wQ = s->inv_wQ;
     const double wtot = s->wJ_tot + (s->nQ * s->Q / 4.0);
     int32_t *restrict ops = s->ops;
-    const uint8_t *restrict pflip = s->pflip;
+    uint8_t *restrict vflip = s->vflip;
     int8_t *restrict spins = s->spins;
     int32_t *restrict links = s->links;
     int32_t *restrict first = s->first;
@@ -301,7 +301,10 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
         if (op >= 0) {
             row = tt + (size_t)(op >> 3) * TTW;
             const int meta = row[0], k = meta & 3;
-            for (int a = 0; a < k; a++) op ^= (pflip[2 * (v_old + a)] ^ pflip[2 * (v_old + a) + 1]) << a;
+            for (int a = 0; a < k; a++) { /* branch-free: a loop flips a vertex with probability 1/2 */
+                op ^= vflip[v_old + a] << a;
+                vflip[v_old + a] = 0;
+            }
             v_old += k;
             n_old++;
             n_q += (meta >> 2) & 1;
@@ -418,28 +421,12 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
 }
 
 /* ------------------------------------------------------------------------------------------ loops */
-/* One loop update (the variant chosen by s->tracers), then the spins of the sites: a site with operators
- * takes the flip of the loop through its first leg, a free site is flipped with probability 1/2. */
+/* One loop update, the variant chosen by s->tracers (sse_loops.h). */
 static int loop_update(sse_t *restrict s, int n_vertices)
 {
-    const int n_loops = s->tracers == 1
-        ? loops_single(s->links, s->pflip, n_vertices, s->rng)
-        : loops_interleaved(s->links, s->pflip, n_vertices, s->tracers, s->eager, s->window, s->rng,
-                            &s->frag);
-    const uint8_t *restrict pflip = s->pflip;
-    int8_t *restrict spins = s->spins;
-    const int32_t *restrict first = s->first;
-    uint64_t rng[4] = {s->rng[0], s->rng[1], s->rng[2], s->rng[3]};
-    for (int i = 0; i < s->N; i++) {
-        const int f = first[i];
-        if (f < 0) {
-            if (next_double(rng) < 0.5) spins[i] = (int8_t)-spins[i];
-        } else if (pflip[f >> 1]) {
-            spins[i] = (int8_t)-spins[i];
-        }
-    }
-    memcpy(s->rng, rng, sizeof rng);
-    return n_loops;
+    if (s->tracers == 1) return loops_single(s->links, s->vflip, n_vertices, s->spins, s->first, s->N, s->rng);
+    return loops_interleaved(s->links, 4L * s->vcap + 16, s->vflip, n_vertices, s->spins, s->first, s->N,
+                             s->tracers, s->eager, s->window, s->rng, &s->frag);
 }
 
 /* ------------------------------------------------------------------------------------------ measurement */
@@ -655,9 +642,9 @@ int main(int argc, char **argv)
     const int N = s.N;
     const double e_const = 0.25 * J * s.nJ / N;
     const double nv_mean = sum_nv / total, legs = 4.0 * nv_mean;
-    /* bytes of the configuration and work arrays per slot: ops, links and pflip for the vertices of the
-       current string, spins and first/last, fragment ids */
-    const double bytes = 4.0 * s.M + (16.0 + 2.0) * nv_mean + 9.0 * N + 4.0 * s.frag.cap;
+    /* bytes per slot of the configuration and work arrays as allocated: ops, links and vflip (room for
+       KMAX vertices per slot when there are multi-bond terms), fragment ids beyond the tail of links */
+    const double bytes = 4.0 * s.M + 17.0 * s.vcap + 4.0 * s.frag.cap;
     const double per_slot = 1e9 / ((double)steps * s.M);
     printf("{\"implementation\": \"c\", \"L\": %d, \"N\": %d, \"beta\": %.17g, \"J\": %.17g, \"Q\": %.17g, "
            "\"warmup\": %ld, \"steps\": %ld, \"rounds\": %ld, \"seed\": %llu, \"cutoff\": %d, "
