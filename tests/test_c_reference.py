@@ -9,7 +9,8 @@ also verifies that the world lines close in imaginary time and that every operat
 bonds (a loop flipped only in part would break both).  The interleaved tracers must give the very same
 Markov chain as the single tracer (fragments are numbered in the order the scan meets them, so the root of
 every loop's union-find class is the fragment at its first leg pair and loops draw their flips in the
-single tracer's order): runs that differ only in the variant print identical estimates.  Skipped when no C
+single tracer's order), also when the fragment ids run out and a single tracer finishes the step: runs
+that differ only in the variant print identical estimates.  Skipped when no C
 compiler is installed.  Fixed seeds: the C runs are deterministic.
 """
 
@@ -69,7 +70,11 @@ def test_energy_matches_exact_diagonalization(exe, J, Q):
 def test_interleaved_tracers_give_the_single_tracer_chain(exe, J, Q):
     keys = ("mean_n", "energy_per_site", "m_stag2_time_avg", "s_q_next", "w2", "mz2", "mean_loops")
     ref = run(exe, 8, 4.0, J, Q, 200, 2000, 5, "1")
-    for variant in ("2:0", "7:1", "32:32:1", "64:0"):
+    for variant in ("2:0", "7:1", "32:32:1", "64:0", "8:0:0:20"):
         got = run(exe, 8, 4.0, J, Q, 200, 2000, 5, variant)
-        assert got["variants"][0]["fragments_per_loop"] > 1.0  # tracers did meet on shared loops
+        frag = got["variants"][0]["fragments_per_loop"]
+        if variant.endswith(":20"):  # ids ran out: most loops were finished by the single tracer
+            assert frag < 0.5
+        else:
+            assert frag > 1.0  # tracers did meet on shared loops
         assert {k: got[k] for k in keys} == {k: ref[k] for k in keys}, variant

@@ -39,9 +39,11 @@
  *   between any two neighbouring fragments of a loop was seen by at least one of them: the union-find
  *   classes are exactly the loops.  Afterwards one pass over the ids in increasing order (parents are
  *   smaller than children) draws one flip per root and copies it to the other ids, and one streaming pass
- *   over the vertices turns the marks of their two pairs into vflip.  The ids (one int32 per fragment,
- *   about one per loop) live in the unused tail of the links array when it has room (it is sized for the
- *   largest possible string), else in a separate array.
+ *   over the vertices turns the marks of their two pairs into vflip.
+ *   The ids (one int32 per fragment, about one per loop) live in the unused tail of the links array, which
+ *   is sized for the longest possible string (KMAX vertices per slot), so no memory is added.  Should they
+ *   run out, no new fragment is started; once the tracers are done every loop touched so far is complete,
+ *   and a single tracer finishes the remaining (whole, untouched) loops from the scan position on.
  *
  * Same chain as the single tracer: the scan meets the pairs in increasing order, so the first fragment of
  * every loop starts at the loop's first pair, which is where the single tracer starts it; ids grow in
@@ -112,33 +114,6 @@ static inline void uf_union(int32_t *uf, int a, int b)
         uf[a] = b;
 }
 
-/* Fragment ids beyond the tail of links: a separate array, grown on demand and kept between calls. */
-typedef struct {
-    int32_t *uf;
-    int cap;
-    long fragments; /* statistics: fragment ids used, summed over calls */
-} frag_space_t;
-
-/* Room for at least `need` ids, keeping the first `keep` of `old`. */
-static int32_t *frag_grow(frag_space_t *fs, int need, const int32_t *old, int keep)
-{
-    if (fs->cap < need) {
-        int cap = fs->cap ? fs->cap : 1024;
-        while (cap < need) cap *= 2;
-        int32_t *uf = malloc(sizeof(int32_t) * (size_t)cap);
-        if (!uf) {
-            fprintf(stderr, "out of memory\n");
-            exit(2);
-        }
-        if (old == fs->uf) memcpy(uf, old, sizeof(int32_t) * (size_t)keep);
-        free(fs->uf);
-        fs->uf = uf;
-        fs->cap = cap;
-    }
-    if (old != fs->uf) memcpy(fs->uf, old, sizeof(int32_t) * (size_t)keep);
-    return fs->uf;
-}
-
 /* Even leg of the first unmarked pair at or after even leg `scan` (n_legs if none): 8 pairs per probe,
    one branch per probe.  links[n_legs .. n_legs + 15] must be negative (padding). */
 static inline int next_start(const int32_t *restrict links, int scan, int n_legs)
@@ -152,10 +127,11 @@ static inline int next_start(const int32_t *restrict links, int scan, int n_legs
     return n_legs;
 }
 
-/* Shared state of the interleaved construction. */
+/* Shared state of the interleaved construction.  Marks: -3 - f for fragment id f; the single tracer that
+   finishes a step whose ids ran out marks -1 (kept) and -2 (flipped). */
+#define ID_MARK(f) (-3 - (f))
 typedef struct {
     int32_t *links, *uf;
-    frag_space_t *fs;
     int cap, n_frag, scan, n_legs, E;
     int window, pf; /* walks alone stay within `window` legs of the scan; legs < pf were prefetched */
 } weave_t;
@@ -165,29 +141,26 @@ typedef struct {
 } tracer_t;
 
 /* Serve a tracer whose current pair carries mark mk (< 0: a stop; >= 0: a fresh slot): handle stops,
-   start fragments and walk alone (see the schedule above).  Returns 1 if nothing was left to start (the
-   slot retires), 0 when the tracer joins the round-robin. */
+   start fragments and walk alone (see the schedule above).  Returns 1 if nothing was left to start or the
+   ids ran out (the slot retires), 0 when the tracer joins the round-robin. */
 static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
 {
     int32_t *restrict links = h->links;
     int budget = h->E;
     for (;;) {
         if (mk < 0 && mk != tr->lab) {
-            uf_union(h->uf, -1 - tr->lab, -1 - mk);
+            uf_union(h->uf, ID_MARK(tr->lab), ID_MARK(mk));
             if (tr->fwd) { /* forward end done: go backward from the start pair */
                 tr->fwd = 0;
                 tr->cur = tr->back;
                 goto walk;
             }
         }
+        if (h->n_frag == h->cap) return 1;
         h->scan = next_start(links, h->scan, h->n_legs);
         if (h->scan >= h->n_legs) return 1;
-        if (h->n_frag == h->cap) {
-            h->uf = frag_grow(h->fs, 2 * h->cap, h->uf, h->n_frag);
-            h->cap = h->fs->cap;
-        }
         h->uf[h->n_frag] = h->n_frag;
-        tr->lab = -1 - h->n_frag;
+        tr->lab = ID_MARK(h->n_frag);
         tr->back = links[h->scan];
         tr->cur = links[h->scan + 1];
         tr->fwd = 1;
@@ -215,21 +188,17 @@ static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
 }
 
 /* K interleaved tracers (1 <= K <= MAX_TRACERS), E steps alone within `window` legs of the scan; links
-   holds links_len int32.  Returns the number of loops. */
+   holds links_len int32, and at most max_ids fragment ids are used (0: as many as its tail holds).
+   Returns the number of loops. */
 static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *restrict vflip, int n_vertices,
                              int8_t *restrict spins, const int32_t *restrict first, int n_sites, int K, int E,
-                             int window, uint64_t *rng, frag_space_t *fs)
+                             int window, int max_ids, uint64_t *rng, long *fragments)
 {
     const int n_legs = 4 * n_vertices;
-    const long tail = links_len - n_legs - 16; /* room for ids after the padding */
-    weave_t h = {links, NULL, fs, 0, 0, 0, n_legs, E, window, 0};
-    if (tail > 0) {
-        h.uf = links + n_legs + 16;
-        h.cap = tail > INT32_MAX ? INT32_MAX : (int)tail;
-    } else {
-        h.uf = frag_grow(fs, 1024, NULL, 0);
-        h.cap = fs->cap;
-    }
+    long cap = links_len - n_legs - 16; /* room for ids after the padding */
+    if (cap > INT32_MAX / 2) cap = INT32_MAX / 2;
+    if (max_ids > 0 && cap > max_ids) cap = max_ids;
+    weave_t h = {links, links + n_legs + 16, (int)cap, 0, 0, n_legs, E, window, 0};
     tracer_t tr[MAX_TRACERS];
     int active = 0;
     for (int i = 0; i < 16; i++) links[n_legs + i] = -1;
@@ -269,10 +238,26 @@ static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *r
             uf[f] = uf[p];
         }
     }
-    for (int v = 0; v < n_vertices; v++) vflip[v] = (uint8_t)(uf[-1 - links[4 * v]] ^ uf[-1 - links[4 * v + 2]]);
-    FLIP_SITES(uf[-1 - links[f & ~1]]);
+    /* If the ids ran out, every loop touched so far is complete (each fragment's ends border marked pairs)
+       and the unmarked pairs left, all beyond the scan, form whole loops: one tracer finishes them in scan
+       order, so they too draw their flips in the single tracer's order. */
+    for (int l0 = h.scan; l0 < n_legs; l0 += 2) {
+        if (links[l0] < 0) continue;
+        n_loops++;
+        const int mark = -1 - (next_double(r) < 0.5);
+        int leg = l0;
+        do {
+            const int nxt = links[leg ^ 1];
+            links[leg & ~1] = mark;
+            leg = nxt;
+        } while (leg != l0);
+    }
+#define PAIR_FLIP(m) ((m) <= -3 ? uf[ID_MARK(m)] : -1 - (m))
+    for (int v = 0; v < n_vertices; v++) vflip[v] = (uint8_t)(PAIR_FLIP(links[4 * v]) ^ PAIR_FLIP(links[4 * v + 2]));
+    FLIP_SITES(PAIR_FLIP(links[f & ~1]));
+#undef PAIR_FLIP
     memcpy(rng, r, sizeof r);
-    fs->fragments += h.n_frag;
+    *fragments += h.n_frag;
     return n_loops;
 }
 

@@ -5,9 +5,10 @@
  *     cc -O3 -march=native -o sse_ref sse_ref.c -lm
  *     ./sse_ref L beta J Q warmup_steps measured_steps seed [variants [rounds]]
  *
- * variants: comma-separated loop-update variants K[:E[:W]] (sse_loops.h): K = 1 one loop at a time
+ * variants: comma-separated loop-update variants K[:E[:W[:I]]] (sse_loops.h): K = 1 one loop at a time
  * (loops_single), K >= 2 K interleaved tracers (loops_interleaved) that walk up to E steps alone while
- * within W KiB of the scan; K = 0 (the default) chooses by size: one tracer while the links array is at
+ * within W KiB of the scan, with at most I fragment ids (0: no cap but the room in links; a small cap
+ * exercises the single-tracer finish); K = 0 (the default) chooses by size: one tracer while the links array is at
  * most AUTO_BYTES, else AUTO_TRACERS:AUTO_EAGER:AUTO_WINDOW_KIB (measured with benchmarks/c_compare.py
  * --scaling).  All variants give the same Markov chain bit for bit, so one chain can take turns: each of
  * `rounds` rounds (default 1) runs measured_steps steps with every variant; the timings of each variant
@@ -118,7 +119,8 @@ typedef struct {
     uint8_t *vflip;         /* [vcap] pending loop flips per bond vertex */
     int32_t *links;         /* [4 * vcap] */
     int32_t *first, *last;  /* [N] */
-    frag_space_t frag;
+    long fragments;         /* fragment ids used by the interleaved loop update, summed over steps */
+    int max_ids;            /* cap on fragment ids per step (0: what the tail of links holds) */
     int64_t hist[HIST_BINS * HIST_BINS];
     uint64_t rng[4];
 } sse_t;
@@ -170,7 +172,7 @@ static void alloc_work(sse_t *s, int M)
     free(s->vflip);
     s->vflip = vf;
     free(s->links);
-    s->links = xcalloc(4 * (size_t)vcap + 16, sizeof(int32_t));
+    s->links = xcalloc(4 * (size_t)vcap + 16 + 1024, sizeof(int32_t)); /* padding, then >= 1024 ids */
     s->vcap = vcap;
 }
 
@@ -425,8 +427,8 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
 static int loop_update(sse_t *restrict s, int n_vertices)
 {
     if (s->tracers == 1) return loops_single(s->links, s->vflip, n_vertices, s->spins, s->first, s->N, s->rng);
-    return loops_interleaved(s->links, 4L * s->vcap + 16, s->vflip, n_vertices, s->spins, s->first, s->N,
-                             s->tracers, s->eager, s->window, s->rng, &s->frag);
+    return loops_interleaved(s->links, 4L * s->vcap + 16 + 1024, s->vflip, n_vertices, s->spins, s->first,
+                             s->N, s->tracers, s->eager, s->window, s->max_ids, s->rng, &s->fragments);
 }
 
 /* ------------------------------------------------------------------------------------------ measurement */
@@ -498,46 +500,41 @@ static double cpu_seconds(void)
     return ts.tv_sec + 1e-9 * ts.tv_nsec;
 }
 
-/* Loop variant: tracers K (1 = single tracer), eager pairs E, eager window W KiB; 0 tracers = by size. */
+/* Loop variant K[:E[:W[:I]]]: K tracers (1 = single tracer; 0 = chosen by size), E steps alone within
+   W KiB of the scan, at most I fragment ids per step (0: as many as the tail of links holds). */
 typedef struct {
-    int tracers, eager, window_kib, auto_choice;
-    double t_step, t_sweep, t_loop; /* CPU seconds of the current round */
-    double best_step, best_sweep, best_loop, frag_per_loop;
-    int rounds_done;
+    int tracers, eager, window_kib, max_ids, auto_choice;
+    double best_step, best_sweep, best_loop, frag_per_loop; /* fastest round */
 } variant_t;
 
 /* The variant used for a vertex list of nv vertices when none is asked for (measured with --scaling of
    benchmarks/c_compare.py): one tracer while the links array (16 bytes per vertex) fits the per-core
    cache, interleaved tracers beyond. */
-static void auto_variant(int nv, int *tracers, int *eager, int *window_kib)
+static void auto_variant(int nv, variant_t *v)
 {
-    const long bytes = 16L * nv;
-    *tracers = bytes > AUTO_BYTES ? AUTO_TRACERS : 1;
-    *eager = *tracers > 1 ? AUTO_EAGER : 0;
-    *window_kib = *tracers > 1 ? AUTO_WINDOW_KIB : 0;
+    const int big = 16L * nv > AUTO_BYTES;
+    v->tracers = big ? AUTO_TRACERS : 1;
+    v->eager = big ? AUTO_EAGER : 0;
+    v->window_kib = big ? AUTO_WINDOW_KIB : 0;
+    v->max_ids = 0;
 }
 
 static int parse_variants(const char *text, variant_t *v, int max)
 {
+    static const long limit[4] = {MAX_TRACERS, 1L << 30, 1L << 20, 1L << 30};
     int n = 0;
     const char *c = text;
     while (*c && n < max) {
-        char *end;
-        const long k = strtol(c, &end, 10);
-        long e = 0, w = 0;
-        if (end == c || k < 0 || k > MAX_TRACERS) return -1;
-        c = end;
-        if (*c == ':') {
-            e = strtol(c + 1, &end, 10);
-            if (end == c + 1 || e < 0) return -1;
+        long f[4] = {0, 0, 0, 0};
+        for (int a = 0; a < 4; a++) {
+            char *end;
+            f[a] = strtol(c, &end, 10);
+            if (end == c || f[a] < 0 || f[a] > limit[a]) return -1;
             c = end;
+            if (*c != ':') break;
+            c++;
         }
-        if (*c == ':') {
-            w = strtol(c + 1, &end, 10);
-            if (end == c + 1 || w < 0 || w > (1L << 20)) return -1;
-            c = end;
-        }
-        v[n] = (variant_t){(int)k, (int)e, (int)w, k == 0, 0, 0, 0, 1e300, 1e300, 1e300, 0, 0};
+        v[n] = (variant_t){(int)f[0], (int)f[1], (int)f[2], (int)f[3], f[0] == 0, 1e300, 1e300, 1e300, 0};
         n++;
         if (*c == ',') c++;
         else if (*c) return -1;
@@ -547,14 +544,12 @@ static int parse_variants(const char *text, variant_t *v, int max)
 
 static void use_variant(sse_t *s, const variant_t *v, int nv)
 {
-    int window_kib = v->window_kib;
-    if (v->auto_choice) {
-        auto_variant(nv, &s->tracers, &s->eager, &window_kib);
-    } else {
-        s->tracers = v->tracers;
-        s->eager = v->eager;
-    }
-    s->window = window_kib * 256; /* legs of 4 bytes */
+    variant_t u = *v;
+    if (v->auto_choice) auto_variant(nv, &u);
+    s->tracers = u.tracers;
+    s->eager = u.eager;
+    s->window = u.window_kib * 256; /* legs of 4 bytes */
+    s->max_ids = u.max_ids;
 }
 
 /* ------------------------------------------------------------------------------------------ main */
@@ -562,8 +557,8 @@ int main(int argc, char **argv)
 {
     if (argc < 8 || argc > 10) {
         fprintf(stderr, "usage: %s L beta J Q warmup_steps measured_steps seed [variants [rounds]]\n"
-                        "  variants: comma-separated K[:E[:W]] (K tracers, E eager pairs within W KiB of\n"
-                        "  the scan; 0 = chosen by size)\n",
+                        "  variants: comma-separated K[:E[:W[:I]]] (K tracers, E steps alone within W KiB of\n"
+                        "  the scan, at most I fragment ids; K = 0: chosen by size)\n",
                 argv[0]);
         return 1;
     }
@@ -577,7 +572,7 @@ int main(int argc, char **argv)
     if (L < 4 || (L & 1) || !(beta > 0) || J < 0 || Q < 0 || !(J > 0 || Q > 0) || warmup < 0 || steps < 1
         || n_var < 1 || rounds < 1) {
         fprintf(stderr, "need even L >= 4, beta > 0, J, Q >= 0 (not both 0), warmup >= 0, steps >= 1, "
-                        "up to 16 variants K[:E] with 0 <= K <= %d, E >= 0, rounds >= 1\n", MAX_TRACERS);
+                        "up to 16 variants K[:E[:W[:I]]] with 0 <= K <= %d, rounds >= 1\n", MAX_TRACERS);
         return 1;
     }
     static sse_t s;
@@ -603,7 +598,7 @@ int main(int argc, char **argv)
     for (long r = 0; r < rounds; r++)
         for (int k = 0; k < n_var; k++) {
             variant_t *v = &var[k];
-            const long frag0 = s.frag.fragments;
+            const long frag0 = s.fragments;
             double t_sweep = 0.0, t_loop = 0.0, loops = 0.0;
             for (long i = 0; i < steps; i++, st++) {
                 const double a0 = cpu_seconds();
@@ -625,10 +620,12 @@ int main(int argc, char **argv)
                 v->best_sweep = t_sweep;
                 v->best_loop = t_loop;
             }
-            v->tracers = s.tracers;
-            v->eager = s.eager;
-            v->window_kib = s.window / 256;
-            v->frag_per_loop = s.tracers > 1 ? (s.frag.fragments - frag0) / (loops > 1 ? loops : 1) : 1.0;
+            if (v->auto_choice) { /* report what was chosen */
+                v->tracers = s.tracers;
+                v->eager = s.eager;
+                v->window_kib = s.window / 256;
+            }
+            v->frag_per_loop = s.tracers > 1 ? (s.fragments - frag0) / (loops > 1 ? loops : 1) : 1.0;
         }
 
     double mean = 0.0, var_n = 0.0;
@@ -643,8 +640,8 @@ int main(int argc, char **argv)
     const double e_const = 0.25 * J * s.nJ / N;
     const double nv_mean = sum_nv / total, legs = 4.0 * nv_mean;
     /* bytes per slot of the configuration and work arrays as allocated: ops, links and vflip (room for
-       KMAX vertices per slot when there are multi-bond terms), fragment ids beyond the tail of links */
-    const double bytes = 4.0 * s.M + 17.0 * s.vcap + 4.0 * s.frag.cap;
+       KMAX vertices per slot when there are multi-bond terms; fragment ids live in its tail) */
+    const double bytes = 4.0 * s.M + 17.0 * s.vcap + 4.0 * (16 + 1024);
     const double per_slot = 1e9 / ((double)steps * s.M);
     printf("{\"implementation\": \"c\", \"L\": %d, \"N\": %d, \"beta\": %.17g, \"J\": %.17g, \"Q\": %.17g, "
            "\"warmup\": %ld, \"steps\": %ld, \"rounds\": %ld, \"seed\": %llu, \"cutoff\": %d, "
@@ -660,12 +657,12 @@ int main(int argc, char **argv)
            (acc[A_W2X] + acc[A_W2Y]) / total, acc[A_MZ2] / total, cpu);
     for (int k = 0; k < n_var; k++) {
         const variant_t *v = &var[k];
-        printf("%s{\"tracers\": %d, \"eager\": %d, \"window_kib\": %d, \"auto\": %s, "
+        printf("%s{\"tracers\": %d, \"eager\": %d, \"window_kib\": %d, \"max_ids\": %d, \"auto\": %s, "
                "\"cpu_ns_per_slot_per_step\": %.6g, "
                "\"cpu_ns_per_op_per_step\": %.6g, \"cpu_ms_per_step\": %.6g, "
                "\"sweep_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_leg\": %.6g, "
                "\"fragments_per_loop\": %.6g}",
-               k ? ", " : "", v->tracers, v->eager, v->window_kib, v->auto_choice ? "true" : "false",
+               k ? ", " : "", v->tracers, v->eager, v->window_kib, v->max_ids, v->auto_choice ? "true" : "false",
                v->best_step * per_slot, v->best_step * 1e9 / steps / (mean > 1 ? mean : 1),
                v->best_step * 1e3 / steps, v->best_sweep * per_slot, v->best_loop * per_slot,
                v->best_loop * 1e9 / steps / (legs > 1 ? legs : 1), v->frag_per_loop);
