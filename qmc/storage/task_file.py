@@ -127,9 +127,11 @@ def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
 def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
     """Write the whole task file atomically; refuses to replace a file that is not this task's file.
 
-    The file is built in memory (HDF5 core driver without backing store) and its bytes are written with
-    plain system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
+    The file is built in memory (an ``io.BytesIO`` opened by h5py) and its bytes are written with plain
+    system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
     :class:`~qmc.storage.faults.WriteFault`, the previous file stays, no temporary file is left."""
+    import io
+
     import h5py
 
     path = Path(path)
@@ -138,11 +140,10 @@ def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
         if head["task_id"] != record.task_id:
             raise UserError(f"holds task {head['task_id']!r}, not {record.task_id!r}; not overwriting it",
                             str(path))
-    with h5py.File(f"{record.task_id}.h5", "w", driver="core", backing_store=False) as f:
+    image = io.BytesIO()
+    with h5py.File(image, "w") as f:
         _fill(f, record)
-        f.flush()
-        image = f.id.get_file_image()
-    atomic_write_bytes(path, image)
+    atomic_write_bytes(path, image.getbuffer())
 
 
 def _fill(f: Any, rec: TaskRecord) -> None:
