@@ -124,7 +124,7 @@ def test_processes_sharing_the_index_keep_each_others_entries(tmp_path):
     back = load_index(tmp_path)["tasks"]
     assert (back["a"]["status"], back["a"]["steps_done"], back["b"]["status"]) == ("running", 10, "done")
     assert two["tasks"]["a"]["status"] == "running"  # its view was refreshed
-    assert back["c"]["status"] == "pending" and (tmp_path / "index.lock").exists()
+    assert back["c"]["status"] == "pending" and (tmp_path / "claims" / "index.lock").exists()
 
 
 # ------------------------------------------------------------------------------------------- job array
