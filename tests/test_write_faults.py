@@ -47,14 +47,15 @@ L = [16]
 beta = 8
 [sampling]
 warmup_steps = 100
-measure_steps = 20000
+measure_steps = 60000
 bins = 400
 copies = {copies}
 checkpoint_seconds = 0.05
 """
 # a task file of this configuration holds ~210 KB after 255 bins and ~250 KB from bin 256 on (the bins
 # datasets grow by chunks of 256 rows): a 400 KB disk cannot hold the old and the new file side by side,
-# and a 230 KB file-size limit refuses the write of bin 256
+# and a 230 KB file-size limit refuses the write of bin 256.  A task runs for several seconds (5 s on an
+# idle 2026 machine), so that checkpoints with bins are written before (at most one write a second).
 
 
 # ------------------------------------------------------------------------------------------- the writer
