@@ -9,9 +9,17 @@ Every term entry becomes one *group*, of one vertex kind (``group_kind``, see
 
 Both are of the ``"projector"`` kind.
 
+* ``XXZTerm(bonds, J, delta)``: each bond a k = 1 term of the ``"directed"`` kind with ``C_t = J`` and its
+  row (J, delta, h_i, h_j, C_b) in ``term_xxz``; the group constant is sum_b C_b (:mod:`models.directed`);
+* ``FieldTerm(h, staggered)``: no operators; its field is folded into the directed bonds touching each site
+  (``group_field`` records the shares).  In a model with a field, ``heisenberg`` terms become directed
+  bonds with delta = 1 so that every site can carry its share.
+
 Sign-problem guard (the decomposition ``H = E_const - sum_t C_t prod P`` is sign-free when every
 ``C_t > 0`` and every bond joins opposite sublattices): J must be > 0 and Q >= 0; a zero coupling drops
-the term's operators but keeps its group (constant 0).  Any violation raises :class:`ModelError` naming
+the term's operators but keeps its group (constant 0).  An ``xxz`` J may be negative (ferromagnetic in
+the xy plane) on any bonds; then :func:`models.directed.check_gauge` checks that all hops can be made
+positive.  Any violation raises :class:`ModelError` naming
 the term (index and group name) and, for a bond, its sites.
 
 Bonds are deduplicated into ``bond_sites`` by (site0, site1, displacement), in order of first use, so a
@@ -26,11 +34,14 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .compiled import KIND_PROJECTOR, CompiledModel
+from . import directed
+from .compiled import KIND_DIRECTED, KIND_PROJECTOR, CompiledModel
 from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
-from .terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .terms import FieldTerm, HeisenbergTerm, ProjectorProductTerm, Term, XXZTerm
+
+_TERM_TYPES = (HeisenbergTerm, ProjectorProductTerm, XXZTerm, FieldTerm)
 
 __all__ = ["compile_model", "group_names"]
 
@@ -41,7 +52,7 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
     """Validate ``terms`` on ``lattice`` and flatten them into a CompiledModel (see module docstring)."""
     if not isinstance(lattice, Lattice):
         raise ModelError(f"expected a Lattice, got {type(lattice).__name__}", "lattice")
-    if isinstance(terms, HeisenbergTerm | ProjectorProductTerm):
+    if isinstance(terms, _TERM_TYPES):
         terms = [terms]
     terms = list(terms)
     if not terms:
@@ -49,15 +60,22 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
     names = group_names(terms)
     sites_parts, disp_parts, couplings, groups, k_per_term = [], [], [], [], []
     constants = np.zeros(len(terms))
+    fielded = any(isinstance(term, FieldTerm) for term in terms)
+    kinds = [_kind(term, fielded) for term in terms]
+    site_field = np.zeros((len(terms), lattice.n_sites))
+    deltas, hops = [], []
     for t, term in enumerate(terms):
         label = f"term {t} ({names[t]!r})"
+        if isinstance(term, FieldTerm):
+            site_field[t] = _field(lattice, term, t)
+            continue
         try:
             sites, disp, coupling = _expand(lattice, term)
         except ModelError as err:
             raise ModelError(f"{label}: {err.message}", err.where).within(f"terms[{t}]") from None
         sub = lattice.sublattice
         same = np.flatnonzero(np.any(sub[sites[..., 0]] == sub[sites[..., 1]], axis=1))
-        if same.size:
+        if same.size and coupling >= 0.0:
             i, j = sites[same[0]][np.argmax(sub[sites[same[0], :, 0]] == sub[sites[same[0], :, 1]])]
             raise ModelError(f"{label}: bond ({i}, {j}) joins two sites of the same sublattice; such a term "
                              "has a sign problem", f"terms[{t}].{_bond_field(term)}")
@@ -66,8 +84,10 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         if sites.shape[0] == 0:
             raise ModelError(f"{label}: no bonds of this term fit on the {_describe(lattice)} lattice",
                              f"terms[{t}].{_bond_field(term)}")
-        if isinstance(term, HeisenbergTerm):
+        if isinstance(term, HeisenbergTerm) and kinds[t] == KIND_PROJECTOR:
             constants[t] = 0.25 * coupling * sites.shape[0]
+        deltas.append(np.full(sites.shape[0], getattr(term, "delta", 1.0)))
+        hops.append((sites, coupling > 0.0, label, f"terms[{t}].coupling"))
         sites_parts.append(sites.reshape(-1, 2))
         disp_parts.append(disp.reshape(sites.shape[0] * sites.shape[1], lattice.n_dirs))
         couplings.append(np.full(sites.shape[0], coupling))
@@ -79,6 +99,11 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
     all_sites, all_disp = np.concatenate(sites_parts), np.concatenate(disp_parts)
     first, bond_of = _first_use_ids(all_sites, all_disp, lattice.n_sites)
     k = np.concatenate(k_per_term)
+    term_group = np.concatenate(groups)
+    group_kind = np.array(kinds, dtype=np.int8)
+    term_xxz, group_field = _directed_tables(lattice, terms, names, constants, site_field, group_kind,
+                                             term_group, np.concatenate(couplings), np.concatenate(deltas),
+                                             all_sites, k, hops)
     dir_lengths = np.ascontiguousarray(lattice.dir_lengths, dtype=np.float64)
     return CompiledModel(
         n_sites=lattice.n_sites,
@@ -91,10 +116,12 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         term_start=np.concatenate([[0], np.cumsum(k)]).astype(np.int32),
         term_bonds=bond_of.astype(np.int32),
         term_coupling=np.concatenate(couplings),
-        term_group=np.concatenate(groups),
+        term_group=term_group,
         group_names=tuple(names),
         group_constant=constants,
-        group_kind=np.array([_kind(term) for term in terms], dtype=np.int8),
+        group_kind=group_kind,
+        term_xxz=term_xxz,
+        group_field=group_field,
         vbs_bonds=np.ascontiguousarray(lattice.vbs_bonds, dtype=np.int32),
         vbs_dir=np.ascontiguousarray(lattice.vbs_dir, dtype=np.int8),
         vbs_phase=np.ascontiguousarray(lattice.vbs_phase, dtype=np.int8),
@@ -113,12 +140,14 @@ def group_names(terms: Sequence[Term]) -> list[str]:
     """
     raw = []
     for t, term in enumerate(terms):
-        if not isinstance(term, HeisenbergTerm | ProjectorProductTerm):
-            raise ModelError(f"expected a HeisenbergTerm or ProjectorProductTerm, got {type(term).__name__}",
-                             f"terms[{t}]")
+        if not isinstance(term, _TERM_TYPES):
+            raise ModelError(f"expected a HeisenbergTerm, ProjectorProductTerm, XXZTerm or FieldTerm, got "
+                             f"{type(term).__name__}", f"terms[{t}]")
         if term.name is not None:
             raw.append(term.name)
-        elif isinstance(term, HeisenbergTerm):
+        elif isinstance(term, FieldTerm):
+            raw.append("field_stag" if term.staggered is True else "field")
+        elif isinstance(term, HeisenbergTerm | XXZTerm):
             raw.append(term.bonds if isinstance(term.bonds, str) else "bonds")
         else:
             try:
@@ -143,10 +172,14 @@ def group_names(terms: Sequence[Term]) -> list[str]:
 
 def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float]:
     """(sites int[P, k, 2], disp float[P, k, D], coupling) of one validated term."""
-    if isinstance(term, HeisenbergTerm):
+    if isinstance(term, HeisenbergTerm | XXZTerm):
         if not isinstance(term.bonds, str):
             raise ModelError(f"bonds must be the name of a bond class, got {term.bonds!r}", "bonds")
-        coupling = _coupling(term.coupling, strict=True)
+        if isinstance(term, XXZTerm):
+            coupling = _real(term.coupling, "coupling")
+            _real(term.delta, "delta")
+        else:
+            coupling = _coupling(term.coupling, strict=True)
         try:
             sites, disp = lattice.bonds(term.bonds)
         except ModelError as err:
@@ -157,6 +190,57 @@ def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float
         raise ModelError(f"symmetrize must be true or false, got {term.symmetrize!r}", "symmetrize")
     sites, disp = place_shape(lattice, term.shape, bool(term.symmetrize))
     return sites, disp, coupling
+
+
+def _real(value, where: str) -> float:
+    """A finite real number of either sign."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
+        raise ModelError(f"{where} must be a finite real number, got {value!r}", where)
+    return float(value)
+
+
+def _field(lattice: Lattice, term: FieldTerm, t: int) -> np.ndarray:
+    """h (or h phi_i) on every site for a validated field term."""
+    h = _real(term.coupling, f"terms[{t}].coupling")
+    if not isinstance(term.staggered, bool | np.bool_):
+        raise ModelError(f"staggered must be true or false, got {term.staggered!r}", f"terms[{t}].staggered")
+    phi = np.where(lattice.sublattice == 0, 1.0, -1.0)
+    return h * phi if term.staggered else np.full(lattice.n_sites, h)
+
+
+def _directed_tables(lattice: Lattice, terms: Sequence[Term], names: list[str], constants: np.ndarray,
+                     site_field: np.ndarray, group_kind: np.ndarray, term_group: np.ndarray,
+                     coupling: np.ndarray, delta: np.ndarray, sites: np.ndarray, k: np.ndarray,
+                     hops: list) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """term_xxz and group_field of a model with directed terms (None, None without); adds each directed
+    group's sum of C_b to ``constants`` and checks the field's bonds and the hops' gauge."""
+    if not np.any(group_kind == KIND_DIRECTED):
+        return None, None
+    n = lattice.n_sites
+    if any(c < 0.0 for c in coupling[group_kind[term_group] == KIND_DIRECTED]):
+        directed.check_gauge(n, hops)
+    rows = np.flatnonzero(group_kind[term_group] == KIND_DIRECTED)
+    start = np.concatenate([[0], np.cumsum(k)])[rows]
+    bond_sites = sites[start]
+    total = site_field.sum(axis=0)
+    lonely = directed.unfolded_sites(n, bond_sites, total)
+    if lonely.size:
+        t = int(np.flatnonzero(site_field[:, lonely[0]])[0])
+        raise ModelError(f"term {t} ({names[t]!r}): site {int(lonely[0])} has a field but no xxz or "
+                         "heisenberg bond to carry it; the directed loops fold the field into those bonds",
+                         f"terms[{t}].coupling")
+    h_i, h_j = directed.fold_fields(n, bond_sites, total)
+    J, D = coupling[rows], delta[rows]
+    C = directed.bond_constant(J, D, h_i, h_j)
+    term_xxz = np.zeros((coupling.size, 5))
+    term_xxz[rows] = np.column_stack([J, D, h_i, h_j, C])
+    group_field = -site_field
+    for g in np.unique(term_group[rows]):
+        mine = np.flatnonzero(term_group[rows] == g)  # positions in rows
+        constants[g] += float(np.sum(C[mine]))
+        np.add.at(group_field[g], bond_sites[mine, 0], h_i[mine])
+        np.add.at(group_field[g], bond_sites[mine, 1], h_j[mine])
+    return term_xxz, group_field
 
 
 def _coupling(value, strict: bool) -> float:
@@ -193,8 +277,11 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     return np.sort(first), ids
 
 
-def _kind(term: Term) -> int:
-    """The vertex kind of a term's operators (every term type so far is a product of singlet projectors)."""
+def _kind(term: Term, fielded: bool) -> int:
+    """The vertex kind of a term's operators: directed loops for xxz and field terms, and for heisenberg
+    terms of a model with a field (which is folded into their bonds); singlet projectors otherwise."""
+    if isinstance(term, XXZTerm | FieldTerm) or (fielded and isinstance(term, HeisenbergTerm)):
+        return KIND_DIRECTED
     return KIND_PROJECTOR
 
 

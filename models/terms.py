@@ -1,6 +1,9 @@
 """User-level Hamiltonian terms (energy units; S = 1/2 spin operators).
 
 ``HeisenbergTerm(bonds, J)``               ``+J sum_{<ij> in class} S_i.S_j``
+``XXZTerm(bonds, J, delta)``               ``+J sum_{<ij> in class} (S^x S^x + S^y S^y + delta S^z S^z)``
+``FieldTerm(h)``                           ``-h sum_i S^z_i``; ``staggered=True``: ``-h sum_i phi_i S^z_i``
+                                           (phi_i = +1 on sublattice A, -1 on B)
 ``ProjectorProductTerm(shape, Q)``         ``-Q sum_{placements} prod_{a=1..k} P_{i_a j_a}``,
                                            ``P_ij = 1/4 - S_i.S_j`` (singlet projector), k = 1, 2, 3
 
@@ -16,7 +19,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-__all__ = ["HeisenbergTerm", "ProjectorProductTerm", "Term"]
+__all__ = ["FieldTerm", "HeisenbergTerm", "ProjectorProductTerm", "Term", "XXZTerm"]
 
 
 @dataclass(frozen=True)
@@ -42,6 +45,27 @@ class ProjectorProductTerm:
             object.__setattr__(self, "shape", _freeze(self.shape))
 
 
+@dataclass(frozen=True)
+class XXZTerm:
+    """``+J (S^x S^x + S^y S^y + delta S^z S^z)`` on every bond of ``bonds``: J > 0 (any delta) on bonds
+    joining opposite sublattices, J < 0 (ferromagnetic in the xy plane) on any bonds that leave the model
+    sign-free; 0 switches the term off.  Simulated by directed loops (:mod:`models.directed`)."""
+
+    bonds: str
+    coupling: float
+    delta: float = 1.0
+    name: str | None = None
+
+
+@dataclass(frozen=True)
+class FieldTerm:
+    """``-h sum_i S^z_i`` (``staggered``: ``-h sum_i phi_i S^z_i``) on every site; h of either sign."""
+
+    coupling: float
+    staggered: bool = False
+    name: str | None = None
+
+
 def _freeze(value):
     if hasattr(value, "tolist"):
         value = value.tolist()
@@ -50,4 +74,4 @@ def _freeze(value):
     return value
 
 
-Term = HeisenbergTerm | ProjectorProductTerm
+Term = HeisenbergTerm | ProjectorProductTerm | XXZTerm | FieldTerm

@@ -9,7 +9,11 @@ message names both layouts and the release that can continue them).
 Layouts:
 
 1. checkpoints without a ``layout`` entry (seriesloop 0.1.0): spins, ops, counters, rng, acc, hist, steps;
-2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number.
+2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number;
+3. ``counters`` has four entries (n, directed loops per step, frozen flag, unused; see
+   :mod:`qmc.chain.simulation`), and models with directed loops have accumulator slots after the groups
+   (:mod:`qmc.engine.slots`).  Layout 2 (projector models only) is migrated by padding ``counters`` with
+   zeros.
 """
 
 from __future__ import annotations
@@ -22,11 +26,12 @@ from qmc.errors import UserError
 
 __all__ = ["CHECKPOINT_LAYOUT", "STATE_KEYS", "LAYOUT_KEY", "current_layout"]
 
-CHECKPOINT_LAYOUT = 2
+CHECKPOINT_LAYOUT = 3
 STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
 LAYOUT_KEY = "layout"
 
-_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0"}
+_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without directed loops",
+             3: "the releases with directed loops"}
 """The releases that write each layout (named in the refusal message)."""
 
 
@@ -34,7 +39,15 @@ def _from_layout_1(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     return {**state, LAYOUT_KEY: np.asarray(2, dtype=np.int64)}
 
 
-_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1}
+def _from_layout_2(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    counters = np.zeros(4, dtype=np.int64)
+    old = np.asarray(state["counters"], dtype=np.int64).reshape(-1)
+    counters[:old.size] = old
+    return {**state, "counters": counters, LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
+
+
+_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1,
+                                                                                     2: _from_layout_2}
 """layout n -> function turning a layout-n state into a layout-(n+1) state."""
 
 

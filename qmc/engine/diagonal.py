@@ -35,7 +35,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.engine.kinds import insertion_allowed
+from qmc.engine.kinds import insertion_allowed, vertex_added
 from qmc.engine.rng import next_double
 from qmc.engine.slots import (
     SW_MS_END,
@@ -176,6 +176,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             else:
                 first[U(j)] = leg + 1
             last[U(j)] = leg + 3
+            vertex_added(kind, vertices, v, t, a, ops[p], spins[U(i)], spins[U(j)])
             v += 1
 
     for i in range(n_sites):

@@ -16,6 +16,16 @@ Hooks (a kind module defines a numba function of the same name and arguments for
     kind that covers several kinds which one term t has.
 ``loop_update(kind, chain, vertices, n_vertices) -> n_loops``
     the off-diagonal update on the linked vertex list the sweep built (records in :mod:`qmc.engine.records`).
+``vertex_added(kind, vertices, v, t, a, op, si, sj)``
+    inlined where the sweep appends bond vertex v (bond a of term t, operator ``op``, spins si, sj above it);
+    projector: nothing, directed loops: the leg states into ``vertices.state``.
+``measure(kind, chain, tallies)``
+    inlined into measuring steps: the kind's own estimators, in the accumulator slots after the groups
+    (``acc_slots(n_groups)`` of them).
+
+A kind module that lacks one of these hooks gets the projector's.  Module attributes read in Python:
+``VERTEX_STATE`` (the kind needs ``vertices.state``; :func:`vertex_state_length`) and ``acc_slots``
+(:func:`kind_acc_slots`).
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
 (:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
@@ -32,10 +42,11 @@ import numpy as np
 from numba.core import types
 from numba.extending import overload
 
-from qmc.engine import projector
-from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
+from qmc.engine import directed, projector
+from qmc.models.compiled import KIND_DIRECTED, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
-__all__ = ["insertion_allowed", "loop_update", "kind_record", "register_kind"]
+__all__ = ["insertion_allowed", "loop_update", "vertex_added", "measure", "kind_record", "register_kind",
+           "vertex_state_length", "kind_acc_slots"]
 
 _SELECTION: list[tuple[frozenset[int], ModuleType]] = []
 """(kind codes a module's record handles, the module), in order of preference."""
@@ -61,12 +72,23 @@ def kind_record(model: CompiledModel) -> Any:
     raise ValueError(f"no update in this engine handles a model with vertex kinds {names}")
 
 
+def vertex_state_length(kind: Any, n_slots: int) -> int:
+    """Length of ``vertices.state`` for a list of ``n_slots`` bond vertices (0 if the kind needs none)."""
+    return n_slots if getattr(_MODULE_OF_RECORD[type(kind)], "VERTEX_STATE", False) else 0
+
+
+def kind_acc_slots(kind: Any, n_groups: int) -> int:
+    """Accumulator slots the kind adds after the ``n_groups`` group slots."""
+    return int(getattr(_MODULE_OF_RECORD[type(kind)], "acc_slots", projector.acc_slots)(n_groups))
+
+
 def _implementation(kind: Any, hook: str) -> Any:
-    """The Python function of ``hook`` in the module of the kind record's numba type (typing time)."""
+    """The Python function of ``hook`` in the module of the kind record's numba type (typing time); the
+    projector's where the module has none."""
     if isinstance(kind, types.BaseNamedTuple):
         module = _MODULE_OF_RECORD.get(kind.instance_class)
         if module is not None:
-            return getattr(module, hook).py_func
+            return getattr(module, hook, getattr(projector, hook)).py_func
     return None
 
 
@@ -76,6 +98,16 @@ def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
 
 
 def loop_update(kind, chain, vertices, n_vertices):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def vertex_added(kind, vertices, v, t, a, op, si, sj):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def measure(kind, chain, tallies):
     """Hook (see module docstring); only callable inside numba kernels."""
     raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
 
@@ -90,4 +122,15 @@ def _loop_update(kind, chain, vertices, n_vertices):
     return _implementation(kind, "loop_update")
 
 
+@overload(vertex_added, inline="always")
+def _vertex_added(kind, vertices, v, t, a, op, si, sj):
+    return _implementation(kind, "vertex_added")
+
+
+@overload(measure, inline="always")
+def _measure(kind, chain, tallies):
+    return _implementation(kind, "measure")
+
+
 register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))
+register_kind(directed.DirectedKind, directed, frozenset({KIND_PROJECTOR, KIND_DIRECTED}))

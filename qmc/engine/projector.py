@@ -28,9 +28,17 @@ from numba import njit
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
-__all__ = ["ProjectorKind", "record", "insertion_allowed", "loop_update"]
+__all__ = ["ProjectorKind", "record", "insertion_allowed", "loop_update", "vertex_added", "measure",
+           "VERTEX_STATE", "acc_slots"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
+VERTEX_STATE = False
+"""Projector loops need no per-vertex state (``vertices.state`` is empty)."""
+
+
+def acc_slots(n_groups: int) -> int:
+    """Accumulator slots the kind adds after the group slots: none."""
+    return 0
 
 
 class ProjectorKind(NamedTuple):
@@ -50,6 +58,16 @@ def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
         col = TT_BOND + TT_BOND_WIDTH * a
         blocked |= spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]
     return not blocked, s0, s1, s2, s3
+
+
+@njit(inline="always")
+def vertex_added(kind, vertices, v, t, a, op, si, sj):
+    """Nothing to record where the sweep appends a bond vertex (the loops need only the links)."""
+
+
+@njit(inline="always")
+def measure(kind, chain, tallies):
+    """No estimators of the kind's own."""
 
 
 @njit(cache=True, boundscheck=False)
