@@ -31,7 +31,8 @@ def build_model(task: Task) -> CompiledModel:
     terms = []
     for i, d in enumerate(task.terms):
         kwargs = {k: v for k, v in d.items() if k != "type"}
-        cls = models.HeisenbergTerm if d["type"] == "heisenberg" else models.ProjectorProductTerm
+        cls = {"heisenberg": models.HeisenbergTerm, "projector-product": models.ProjectorProductTerm,
+               "xxz": models.XXZTerm, "field": models.FieldTerm}[d["type"]]
         try:
             terms.append(cls(**kwargs))
         except ModelError as exc:

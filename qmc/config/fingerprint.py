@@ -30,7 +30,9 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
                     "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
                     "classes": lattice.classes},
         "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
-                   "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
+                   "symmetrize": bool(t.symmetrize), "name": t.name,
+                   **({"delta": t.delta.canonical} if t.delta is not None else {}),
+                   **({"staggered": t.staggered} if t.staggered is not None else {})} for t in terms],
         "scan": [[e.name, e.expression.canonical if e.derived else [canonical_number(v) for v in e.values]]
                  for e in scan],
         "sampling": {"warmup_steps": s.warmup_steps, "measure_steps": s.measure_steps, "bins": s.bins,
