@@ -18,7 +18,8 @@ from .terms import FieldTerm, HeisenbergTerm, ProjectorProductTerm, Term, XXZTer
 from .unit_cell import Site, UnitCell
 
 __all__ = [
-    "BOUNDARIES", "CompiledModel", "FieldTerm", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice", "ModelError",
+    "BOUNDARIES", "CompiledModel", "FieldTerm", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice",
+    "ModelError",
     "NAMED_MODELS", "ProjectorProductTerm", "SHAPES", "SHAPE_LATTICES", "Site", "Term", "UnitCell", "bilayer",
     "build_lattice", "columnar_dimer", "compile_model", "group_names", "heisenberg", "jq2", "jq3",
     "ladder", "parse_shape", "place_shape", "rotations", "tile_lattice", "translate_shape", "XXZTerm",

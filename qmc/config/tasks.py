@@ -16,12 +16,12 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    SIGNED_TERMS,
     LatticeSpec,
     RunSection,
     Sampling,
     ScanEntry,
     TermSpec,
-    SIGNED_TERMS,
     check_coupling,
 )
 from qmc.errors import UserError
