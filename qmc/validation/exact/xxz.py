@@ -93,7 +93,7 @@ def xxz_observables(kind: str, size: Sequence[int], beta: float, couplings: dict
     bonds = [(J, d, i, j) for name, (J, d) in couplings.items() for i, j in classes[name]]
     field = h * (phase if staggered else np.ones(n))
     H = xxz_hamiltonian(n, bonds, field)
-    spec = ExactSpectrum(H, n, translations=group)
+    spec = ExactSpectrum(H, n, translations=None if staggered else group)  # phi_i breaks odd translations
     m = sz_diagonal(n)
     ms = sz_diagonal(n, phase)
     mean_m = spec.expect_diag(beta, m)
