@@ -13,19 +13,29 @@ import itertools
 
 import numpy as np
 import pytest
-from qmc.models import FieldTerm, HeisenbergTerm, ModelError, ProjectorProductTerm, XXZTerm, build_lattice
-from qmc.models import compile_model
+from qmc.models import (
+    FieldTerm,
+    HeisenbergTerm,
+    ModelError,
+    ProjectorProductTerm,
+    XXZTerm,
+    build_lattice,
+    compile_model,
+)
 from qmc.models.directed import bond_constant, diagonal_weights
 
 from qmc.analysis.binning import error_estimate
 from qmc.analysis.derived import derived_estimates
 from qmc.chain.simulation import Simulation
+from qmc.engine.directed import DirectedKind
 from qmc.engine.directed_tables import (
     PROJECTOR_DIAGONAL,
     PROJECTOR_HOP,
     exit_probabilities,
     vertex_weights,
 )
+from qmc.engine.kinds import kind_record
+from qmc.engine.projector import ProjectorKind
 from qmc.engine.rng import stream_seed
 from qmc.validation.exact import xxz_observables
 
@@ -193,7 +203,8 @@ def _field_model():
 
 
 def test_chunked_runs_and_restores_are_bit_identical():
-    """The loop count adapts per step during warm-up and freezes when measuring starts, whatever the chunks."""
+    """The loop count adapts per step during warm-up and freezes when measuring starts, whatever the
+    chunks."""
     kw = dict(warmup_steps=300, measure_steps=600, bins=6)
 
     def sim():
@@ -209,9 +220,6 @@ def test_chunked_runs_and_restores_are_bit_identical():
 
 
 def test_projector_models_keep_the_projector_kind():
-    from qmc.engine.directed import DirectedKind
-    from qmc.engine.kinds import kind_record
-    from qmc.engine.projector import ProjectorKind
     lat = build_lattice("square", (4, 4))
     assert isinstance(kind_record(compile_model(lat, [HeisenbergTerm("nn", 1.0)])), ProjectorKind)
     assert isinstance(kind_record(_field_model()), DirectedKind)
@@ -235,5 +243,5 @@ def test_ferromagnetic_x_bonds_with_antiferromagnetic_y_bonds_are_sign_free():
 
 def test_a_field_without_bonds_to_carry_it_is_refused():
     lat = build_lattice("square", (4, 4))
-    with pytest.raises(ModelError, match=r"term 1 \('field'\): site 0 has a field but no xxz or heisenberg"):
+    with pytest.raises(ModelError, match=r"term 1 \('field'\): site 0 has a field but no xxz"):
         compile_model(lat, [ProjectorProductTerm("plaquette-pair", 1.0), FieldTerm(0.5)])
