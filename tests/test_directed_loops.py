@@ -199,7 +199,8 @@ def test_xxz_at_delta_1_agrees_with_the_heisenberg_path():
 # ----------------------------------------------------------------------------- chain mechanics
 def _field_model():
     return compile_model(build_lattice("square", (4, 4)),
-                         [XXZTerm("nn", 1.0, 0.7), ProjectorProductTerm("plaquette-pair", 0.5), FieldTerm(0.4)])
+                         [XXZTerm("nn", 1.0, 0.7), ProjectorProductTerm("plaquette-pair", 0.5),
+                          FieldTerm(0.4)])
 
 
 def test_chunked_runs_and_restores_are_bit_identical():
