@@ -1,6 +1,6 @@
 """Engine throughput: ns per operator slot per Monte Carlo step, steps/s, memory per slot, start-up.
 
-Usage:  python benchmarks/throughput.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
+Usage:  python benchmarks/throughput.py [--case square|jq2|xxz|xxz-field|all] [--L 32] [--beta 32] [--steps 200]
         python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
 
 ``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
@@ -9,7 +9,7 @@ linear in N beta when ns per slot stays flat; it rises where the vertex list out
 Prints one JSON object per case.  Start-up is measured in fresh subprocesses: once with an
 empty numba cache directory (cold: every kernel compiles) and once more with the same directory
 (cached).  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32, and J-Q2 32x32 at beta = 32
-with J/Q = 0.05.
+with J/Q = 0.05; directed loops: XXZ 32x32 at beta = 32 with delta = 1, h = 0 and delta = 0.5, h = 1.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ import tempfile
 import time
 
 import numpy as np
-from _cases import CASES, add_case_arguments, case_model, selected_cases
+from _cases import CASES, XXZ_CASES, add_case_arguments, any_case_model, selected_cases
 
 from qmc.chain.simulation import Simulation
 from qmc.engine.rng import stream_seed
@@ -32,9 +32,9 @@ __all__ = ["measure_case", "main"]
 
 
 def make_model(case: str, L: int):
-    if case not in CASES:
+    if case not in CASES and case not in XXZ_CASES:
         raise SystemExit(f"unknown case {case!r}")
-    return case_model(L, *CASES[case])
+    return any_case_model(case, L)
 
 
 def measure_case(case: str, L: int, beta: float, steps: int, warmup: int) -> dict:
@@ -84,12 +84,12 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
 
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    add_case_arguments(p)
+    add_case_arguments(p, directed=True)
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="measure these L at beta = L (linearity in N beta) instead of one size")
     a = p.parse_args()
     if a.scaling:
-        for case in selected_cases(a.case):
+        for case in selected_cases(a.case, directed=True):
             for L in (int(x) for x in a.scaling.split(",")):
                 r = measure_case(case, L, float(L), a.steps, a.warmup)
                 r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
@@ -101,7 +101,7 @@ def main() -> None:
         warm, warm_whole = startup_seconds(cache)
     print(json.dumps({"startup_cold_seconds": cold, "startup_cold_process_seconds": cold_whole,
                       "startup_cached_seconds": warm, "startup_cached_process_seconds": warm_whole}))
-    for case in selected_cases(a.case):
+    for case in selected_cases(a.case, directed=True):
         print(json.dumps(measure_case(case, a.L, a.beta, a.steps, a.warmup)))
     np.seterr(all="ignore")
 

@@ -10,7 +10,8 @@ antiparallel bond).
   random number is drawn only when that ratio lies strictly between 0 and 1.
 - Recording (:func:`vertex_added`): where the sweep appends bond vertex v, its leg configuration, its type
   (row of the tables; 0 is the projector bond) and whether it acts off-diagonally are packed into
-  ``vertices.state[v] = type << 5 | off << 4 | bits``.
+  ``vertices.state[v] = off << 30 | (16 type + bits) << 2``, so that ``state | e`` (e the entrance leg)
+  is the row of the exit tables without further arithmetic.
 - Loop update (:func:`loop_update`): ``counters[1]`` directed loops per step, each started at a uniformly
   drawn leg; at a vertex entered at leg e the loop leaves at leg x with the fewest-bounce probability of
   :mod:`qmc.engine.directed_tables` (a table lookup without random number where it is 0 or 1), flipping the
@@ -55,6 +56,7 @@ VERTEX_STATE = True
 X_MZ = 0
 """Extra accumulator slot (after the groups) of M = sum_i S^z_i; ``X_FIELD + g``: sum_i f_{g,i} S^z_i."""
 X_FIELD = 1
+_ROW_MASK = (1 << 30) - 1
 
 
 def acc_slots(n_groups: int) -> int:
@@ -126,7 +128,7 @@ def vertex_added(kind, vertices, v, t, a, op, si, sj):
     off = (op >> a) & 1
     above = (si > 0) + 2 * (sj > 0)
     below = above ^ (3 * off)
-    vertices.state[U(v)] = (kind.term_type[U(t)] << 5) | (off << 4) | below | (above << 2)
+    vertices.state[U(v)] = (off << 30) | (((kind.term_type[U(t)] << 4) | below | (above << 2)) << 2)
 
 
 @njit(cache=True, boundscheck=False)
@@ -149,14 +151,14 @@ def loop_update(kind, chain, vertices, n_vertices):
             while True:
                 v = e >> 2
                 st = state[U(v)]
-                row = ((((st >> 5) << 4) | (st & 15)) << 2) | (e & 3)
+                row = (st & _ROW_MASK) | (e & 3)
                 x = det[U(row)]
                 if x < 0:
                     u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
                     x = 0
                     while u >= cum[U(row), U(x)]:
                         x += 1
-                state[U(v)] = st ^ (1 << (e & 3)) ^ (1 << x)
+                state[U(v)] = st ^ (4 << (e & 3)) ^ (4 << x)
                 visits += 1
                 leg = (v << 2) | x
                 if leg == l0:
@@ -166,7 +168,7 @@ def loop_update(kind, chain, vertices, n_vertices):
                     break
         for v in range(n_vertices):
             st = state[v]
-            vflip[v] = ((st ^ (st >> 2)) & 1) ^ ((st >> 4) & 1)
+            vflip[v] = ((st ^ (st >> 2)) >> 2 & 1) ^ (st >> 30)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
@@ -174,7 +176,7 @@ def loop_update(kind, chain, vertices, n_vertices):
             if u < 0.5:
                 spins[i] = -spins[i]
         else:
-            spins[i] = 1 if (state[U(f >> 2)] >> (f & 3)) & 1 else -1
+            spins[i] = 1 if (state[U(f >> 2)] >> (2 + (f & 3))) & 1 else -1
     if counters[2] == 0 and visits > 0:
         ratio = 2.0 * n_vertices / visits
         counters[1] = max(1, int(0.5 * n_loops * (1.0 + ratio) + 0.5))
