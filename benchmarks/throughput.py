@@ -1,6 +1,7 @@
 """Engine throughput: ns per operator slot per Monte Carlo step, steps/s, memory per slot, start-up.
 
-Usage:  python benchmarks/throughput.py [--case square|jq2|xxz|xxz-field|all] [--L 32] [--beta 32] [--steps 200]
+Usage:  python benchmarks/throughput.py [--case square|jq2|xxz|xxz-field|all] [--L 32] [--beta 32]
+                                       [--steps 200]
         python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
 
 ``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
