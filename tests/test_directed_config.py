@@ -6,11 +6,11 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from qmc.models.compiled import KIND_DIRECTED
 
 from qmc.config.build import build_model
 from qmc.config.parser import load_config
 from qmc.errors import UserError
-from qmc.models.compiled import KIND_DIRECTED
 
 HEAD = """
 [run]
