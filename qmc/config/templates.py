@@ -87,8 +87,8 @@ _TERMS_HELP = '''\
 #                               the two sublattices); coupling = h.
 # A coupling is a number or a scan name (or an expression such as "2*g").  Negative heisenberg and
 # projector couplings have a sign problem and are refused; a negative xxz J (ferromagnetic in the xy
-# plane) and a field of either sign are allowed where the model stays free of the sign problem.  Each block's energy per site is measured as term_energy/<name>;
-# name = "..." sets that name.
+# plane) and a field of either sign are allowed where the model stays free of the sign problem.
+# Each block's energy per site is measured as term_energy/<name>; name = "..." sets that name.
 '''
 
 _LATTICE_HELP = '''\
