@@ -5,6 +5,8 @@
 - :mod:`qmc.engine.vertices`    operator encoding, leg numbering, the per-term table (k | kind | group, bonds)
 - :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
 - :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
+- :mod:`qmc.engine.directed`    the directed-loop kind (xxz bonds with folded fields, and projectors);
+  its exit probabilities in :mod:`qmc.engine.directed_tables`
 - :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.equal_time`  estimators of a single propagated state
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
@@ -45,11 +47,12 @@ The two kinds planned next, in these terms:
   than a spin flip; the new colour in a per-slot array of the record, ``ops`` keeping ``(t << 3) | offmask``),
   applying the loop update's colour changes to an operator (in place of the ``vflip`` xor), the equal-time
   estimators and the initial state.
-- Directed loops: codes for XXZ bonds and fields; the record holds per-term diagonal weights and the
-  exit-leg probability tables (fewest bounces); insertion accepts with probability W_t(s_i, s_j) / w_t; the
-  kind covers the projector code too (projector vertices inside directed loops always leave at ``l ^ 1``).
-  New hook: where the sweep appends a bond vertex (projector: nothing), recording its leg states in a
-  per-vertex array (cutoff-sized, so allocated with the vertex list in ``Simulation._allocate_work``).
+- Directed loops (done, :mod:`qmc.engine.directed`): one code for xxz bonds and field groups; the record
+  holds per-type diagonal weights and the exit-leg probability tables (fewest bounces); insertion accepts
+  with probability W_t(s_i, s_j) / w_t; the kind covers the projector code too (projector vertices inside
+  directed loops always leave at ``l ^ 1``).  New hooks: ``vertex_added`` (leg states in
+  ``Vertices.state``, allocated with the vertex list when the kind module sets ``VERTEX_STATE``) and
+  ``measure`` (the kind's own accumulator slots after the groups, ``acc_slots(G)`` of them).
 """
 
 __all__: list[str] = []
