@@ -37,7 +37,16 @@ from qmc.engine.directed_tables import (
 from qmc.engine.kinds import kind_record
 from qmc.engine.projector import ProjectorKind
 from qmc.engine.rng import stream_seed
-from qmc.validation.exact import xxz_observables
+from qmc.validation.exact import (
+    ExactSpectrum,
+    build_hamiltonian,
+    q2_plaquette_pairs,
+    square_bonds,
+    square_translations,
+    sz_diagonal,
+    xxz_hamiltonian,
+    xxz_observables,
+)
 
 SIGMAS = 4.0
 
@@ -246,3 +255,21 @@ def test_a_field_without_bonds_to_carry_it_is_refused():
     lat = build_lattice("square", (4, 4))
     with pytest.raises(ModelError, match=r"term 1 \('field'\): site 0 has a field but no xxz"):
         compile_model(lat, [ProjectorProductTerm("plaquette-pair", 1.0), FieldTerm(0.5)])
+
+
+@pytest.mark.slow
+def test_easy_plane_jq_model_in_a_field_matches_exact_diagonalization():
+    """xxz J part (delta = 0.5) with the J-Q2 projector term and a field: projector vertices inside
+    directed loops.  Slow: 4x4 exact diagonalization of H_xxz + H_Q (qmc.validation.exact)."""
+    J, delta, Q, h, beta = 1.0, 0.5, 1.0, 0.5, 2.0
+    xb, yb = square_bonds(4, 4)
+    H = (xxz_hamiltonian(16, [(J, delta, i, j) for i, j in xb + yb], h * np.ones(16))
+         + build_hamiltonian(16, [], [(Q, pair) for pair in q2_plaquette_pairs(4, 4)]))
+    spec = ExactSpectrum(H, 16, translations=square_translations(4, 4))
+    m = sz_diagonal(16)
+    exact = {"energy": spec.energy_per_site(beta), "magnetization": spec.expect_diag(beta, m) / 16}
+    model, bins = _run(build_lattice("square", (4, 4)), [XXZTerm("nn", J, delta),
+                       ProjectorProductTerm("plaquette-pair", Q), FieldTerm(h)], beta, 100000, seed=14)
+    for name in exact:
+        est = error_estimate(bins[name])
+        assert abs(est.mean - exact[name]) < SIGMAS * est.error, (name, est.mean, est.error, exact[name])
