@@ -19,6 +19,7 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    SIGNED_TERMS,
     LatticeSpec,
     ModelSection,
     RunSection,
@@ -160,13 +161,18 @@ def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
                   context: str) -> dict[str, Any]:
     where = f"{source}: terms[{i}].coupling"
     coupling = t.coupling.evaluate(values, where)
-    check_coupling(coupling, where, context)
+    if t.type not in SIGNED_TERMS:
+        check_coupling(coupling, where, context)
     d: dict[str, Any] = {"type": t.type}
-    if t.type != "projector-product":
+    if t.type in ("heisenberg", "projector", "xxz"):
         d["bonds"] = t.bonds
-    else:
+    elif t.type == "projector-product":
         d["shape"] = t.shape
     d["coupling"] = float(coupling)
+    if t.delta is not None:
+        d["delta"] = float(t.delta.evaluate(values, f"{source}: terms[{i}].delta"))
+    if t.staggered is not None:
+        d["staggered"] = t.staggered
     if t.symmetrize is not None:
         d["symmetrize"] = t.symmetrize
     if t.name is not None:

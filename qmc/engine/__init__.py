@@ -6,6 +6,8 @@
 - :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
 - :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
 - :mod:`qmc.engine.colour`      the SU(N) colour kind (the same loops, each given one of N colours)
+- :mod:`qmc.engine.directed`    the directed-loop kind (xxz bonds with folded fields, and projectors);
+  its exit probabilities in :mod:`qmc.engine.directed_tables`
 - :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.equal_time`  estimators of a single propagated state
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
@@ -38,7 +40,7 @@ A new kind adds, next to the existing one:
    ``kinds.py`` whose projector implementation is today's code moved unchanged into ``projector.py`` (bins
    bit-identical: tests/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's version.
 
-The second kind, and the one planned next, in these terms:
+The two kinds added after the projector, in these terms:
 
 - SU(N) colours (:mod:`qmc.engine.colour`, code ``"colour"``, every group of a model with N > 2 colours;
   N = 2 stays ``projector``): the site state is a colour 0..N-1 in ``Chain.spins`` (A / conjugate-B basis);
@@ -50,11 +52,12 @@ The second kind, and the one planned next, in these terms:
   the order parameters and the equal-time estimators are built from), and at Python level
   ``initial_spins`` and ``slot_colours``.  :func:`qmc.engine.diagonal.fold_pending` applies pending changes
   for any kind (checkpoints, configuration swaps).
-- Directed loops: codes for XXZ bonds and fields; the record holds per-term diagonal weights and the
-  exit-leg probability tables (fewest bounces); insertion accepts with probability W_t(s_i, s_j) / w_t; the
-  kind covers the projector code too (projector vertices inside directed loops always leave at ``l ^ 1``).
-  New hook: where the sweep appends a bond vertex (projector: nothing), recording its leg states in a
-  per-vertex array (cutoff-sized, so allocated with the vertex list in ``Simulation._allocate_work``).
+- Directed loops (done, :mod:`qmc.engine.directed`): one code for xxz bonds and field groups; the record
+  holds per-type diagonal weights and the exit-leg probability tables (fewest bounces); insertion accepts
+  with probability W_t(s_i, s_j) / w_t; the kind covers the projector code too (projector vertices inside
+  directed loops always leave at ``l ^ 1``).  New hooks: ``vertex_added`` (leg states in
+  ``Vertices.state``, allocated with the vertex list when the kind module sets ``VERTEX_STATE``) and
+  ``measure`` (the kind's own accumulator slots after the groups, ``acc_slots(G)`` of them).
 """
 
 __all__: list[str] = []
