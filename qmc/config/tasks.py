@@ -138,8 +138,8 @@ def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], con
 
 def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...], values: dict[str, Number],
                     context: str) -> int:
-    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg
-    term (it is defined through S = 1/2 spin operators)."""
+    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg,
+    xxz or field term (they are defined through S = 1/2 spin operators)."""
     if model.colors is None:
         return 2
     where = f"{source}: model.colors"
@@ -154,6 +154,10 @@ def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...
                             f"{context if model.colors.names else ''}; for SU({v}) use type = \"projector\" "
                             "(-J sum P_ij, which for two colours is J S_i.S_j - J/4)",
                             f"{source}: terms[{i}].type")
+        if v > 2 and t.type in ("xxz", "field"):
+            article = "an" if t.type == "xxz" else "a"
+            raise UserError(f"{article} {t.type} term (S = 1/2 spin operators) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}", f"{source}: terms[{i}].type")
     return v
 
 
