@@ -32,7 +32,8 @@ A new kind adds, next to the existing one:
    ``record(model)`` building it, and the hooks with the stubs' arguments: ``insertion_allowed``
    (``@njit(inline="always")``; may draw random numbers; a kind covering several codes reads the term's
    with ``meta_kind(table[t, TT_META])``), ``loop_update`` and the other hooks of ``kinds.HOOKS``
-   (``@njit(inline="always")``), plus ``initial_spins`` and ``SLOT_COLOURS`` (Python level).
+   (``@njit(inline="always")``), plus ``initial_spins``, ``SLOT_COLOURS``, ``VERTEX_STATE`` and ``acc_slots``
+   (Python level); a hook or attribute the module does not define is the projector's.
 3. ``qmc/engine/kinds.py``: one ``register_kind(Record, module, covers)`` line, ``covers`` being the codes its
    update handles.  The first registered kind covering all of a model's codes runs it, so a kind that also
    handles projector vertices is registered after the projector and pure projector models keep the fast path.
