@@ -94,7 +94,7 @@ def _stored(rec: AnalysisTask, warn: dict[str, list[str]]) -> dict[str, dict[str
             warn["plateau"].append(name)
         if not est.halves_ok:
             warn["halves"].append(name)
-    for name, d in derived_estimates(rec.bins, rec.n_sites, rec.linear_size).items():
+    for name, d in derived_estimates(rec.bins, rec.n_sites, rec.linear_size, beta=rec.beta).items():
         obs[name] = {
             "mean": d.value,
             "error": d.error,

@@ -30,7 +30,8 @@ def build_model(task: Task) -> CompiledModel:
         raise _located(exc.within("lattice"), task) from None
     terms = []
     classes = {"heisenberg": models.HeisenbergTerm, "projector": models.ProjectorTerm,
-               "projector-product": models.ProjectorProductTerm}
+               "projector-product": models.ProjectorProductTerm, "xxz": models.XXZTerm,
+               "field": models.FieldTerm}
     for i, d in enumerate(task.terms):
         kwargs = {k: v for k, v in d.items() if k != "type"}
         cls = classes[d["type"]]

@@ -25,7 +25,9 @@ def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
                     "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
                     "classes": lattice.classes},
         "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
-                   "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
+                   "symmetrize": bool(t.symmetrize), "name": t.name,
+                   **({"delta": t.delta.canonical} if t.delta is not None else {}),
+                   **({"staggered": t.staggered} if t.staggered is not None else {})} for t in terms],
     }
     if model is not None and model.colors is not None and model.colors.canonical != "2":
         content["model"] = {"colors": model.colors.canonical}

@@ -127,6 +127,7 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     uses = [("model.colors", model.colors)] if model.colors is not None else []
     uses += [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
     uses += [(f"terms[{i}].coupling", t.coupling) for i, t in enumerate(terms)]
+    uses += [(f"terms[{i}].delta", t.delta) for i, t in enumerate(terms) if t.delta is not None]
     for key, expr in uses:
         for ref in expr.names:
             if ref not in entries:
@@ -141,8 +142,8 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     for e in scan:
         if e.name not in used:
             raise r.fail(f"scan.{e.name}", f"scan.{e.name} is never used: refer to it in "
-                                           "model.colors, lattice.size, a [[terms]] coupling or beta, or "
-                                           "remove it")
+                                           "model.colors, lattice.size, a [[terms]] coupling or delta, "
+                                           "or beta, or remove it")
     check_exchange(r, sampling.exchange, lattice, terms, entries, model)
 
 
@@ -154,6 +155,11 @@ def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms
     if name is None:
         return
     key = "exchange.along"
+    directed = [i for i, t in enumerate(terms) if t.type in ("xxz", "field")]
+    if directed:
+        raise r.fail(key, f"replica exchange is not available with {terms[directed[0]].type} terms "
+                          f"(terms[{directed[0]}]): their directed-loop weights are not powers of one "
+                          "coupling, which the swap rule assumes; remove [exchange]")
     if name not in entries:
         raise r.fail(key, f"'{name}' is not a scan name{did_you_mean(name, entries)}")
     entry = entries[name]

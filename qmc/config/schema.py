@@ -16,7 +16,12 @@ Sections and keys (``*`` marks required ones)::
                 type* = "projector": bonds* = bond class, coupling* = J   (adds -J P_ij per bond)
                 type* = "projector-product": shape* = "plaquette-pair" | "column-of-three" |
                 [[[dx, dy], [dx, dy]], ...] (one offset entry per lattice direction), coupling* = Q,
-                symmetrize = bool (adds -Q prod P_ij over the bonds of the shape); all take name = "text".
+                symmetrize = bool (adds -Q prod P_ij over the bonds of the shape)
+                type* = "xxz": bonds* = bond class, coupling* = J, delta* = anisotropy
+                (adds J (S^x S^x + S^y S^y + delta S^z S^z) per bond; J < 0 allowed where sign-free;
+                colors = 2 only)
+                type* = "field": coupling* = h, staggered = bool (adds -h sum_i S^z_i, or with staggered
+                -h sum_i phi_i S^z_i; colors = 2 only); every type takes name = "text".
                 P_ij is the singlet projector (1/4 - S_i.S_j for two colours).
     [scan]      NAME = number | [numbers] | {start, stop, num} (num values, both ends included) |
                 "expression of other scan names" (e.g. beta = "2*L");  beta* is required
@@ -43,12 +48,14 @@ __all__ = [
     "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES", "EXPLICIT", "SECTIONS", "MAX_TASKS",
     "COPY_PARAM", "RESERVED_NAMES", "RENAMED_KEYS", "NAME_RE", "TERM_NAME_RE",
     "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "TERM_KEYS", "HOME",
-    "MODEL_KEYS", "ModelSection", "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling",
-    "check_coupling",
+    "MODEL_KEYS", "SIGNED_TERMS", "ModelSection", "RunSection", "LatticeSpec", "TermSpec", "ScanEntry",
+    "Sampling", "check_coupling",
 ]
 
 # LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
-TERM_TYPES = ("heisenberg", "projector", "projector-product")
+TERM_TYPES = ("heisenberg", "projector", "projector-product", "xxz", "field")
+SIGNED_TERMS = ("xxz", "field")
+"""Term types whose coupling may be negative (the model compiler checks the sign structure)."""
 SHAPES = tuple(models.SHAPES)  # named shapes of projector-product terms
 EXPLICIT = "explicit"
 SECTIONS = ("run", "model", "lattice", "terms", "scan", "sampling", "exchange")
@@ -95,12 +102,19 @@ TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the 
                                             '[[[dx, dy], [dx, dy]], ...] (one entry per direction)',
                                    "coupling": "Q >= 0, a number or scan name",
                                    "symmetrize": "true (default) to add the shape rotated by 90 degrees",
-                                   "name": "label of the term"}}
+                                   "name": "label of the term"},
+             "xxz": {"type": "xxz", "bonds": "a bond class of the lattice, e.g. \"nn\"",
+                     "coupling": "J, a number or scan name (J > 0 antiferromagnetic, J < 0 ferromagnetic xy)",
+                     "delta": "anisotropy delta of the S^z S^z part, a number or scan name",
+                     "name": "label of the term"},
+             "field": {"type": "field", "coupling": "h, a number or scan name (-h sum_i S^z_i)",
+                       "staggered": "true for the staggered field -h sum_i phi_i S^z_i (default false)",
+                       "name": "label of the term"}}
 HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[model]" for k in MODEL_KEYS},
         **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
         **{k: "[sampling]" for k in SAMPLING_KEYS}, **{k: "[exchange]" for k in EXCHANGE_KEYS},
         "beta": "[scan]", "L": "[scan]",
-        **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize")}}
+        **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize", "delta", "staggered")}}
 """Key -> the section it belongs in, for messages about a key in the wrong place."""
 
 NAME_RE = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")  # scan names
@@ -155,6 +169,8 @@ class TermSpec:
     shape: str | tuple | None = None
     symmetrize: bool | None = None
     name: str | None = None
+    delta: Expression | None = None
+    staggered: bool | None = None
 
 
 @dataclass(frozen=True)

@@ -22,6 +22,7 @@ from qmc.config.schema import (
     RUN_KEYS,
     SAMPLING_KEYS,
     SHAPES,
+    SIGNED_TERMS,
     TERM_KEYS,
     TERM_NAME_RE,
     TERM_TYPES,
@@ -171,10 +172,12 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
         for k in t:
             if k not in allowed and any(k in other for other in TERM_KEYS.values()):
                 raise r.fail(f"{key}.{k}", f"key '{k}' does not apply to a {ttype} term")
-        required = ("shape", "coupling") if ttype == "projector-product" else ("bonds", "coupling")
+        required = {"heisenberg": ("bonds", "coupling"), "projector": ("bonds", "coupling"),
+                    "projector-product": ("shape", "coupling"), "xxz": ("bonds", "coupling", "delta"),
+                    "field": ("coupling",)}[ttype]
         r.check_keys(key, t, allowed, required, key)
         coupling = r.expression(f"{key}.coupling", t["coupling"])
-        if coupling.is_constant:
+        if coupling.is_constant and ttype not in SIGNED_TERMS:
             check_coupling(coupling.evaluate({}), r.where(f"{key}.coupling"), "")
         name = None
         if "name" in t:
@@ -185,9 +188,15 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
             if name in names:
                 raise r.fail(f"{key}.name", f"{name!r} is already the name of terms[{names[name]}]")
             names[name] = i
-        if ttype != "projector-product":
+        if ttype in ("heisenberg", "projector", "xxz"):
             bonds = r.string(f"{key}.bonds", t["bonds"])
-            terms.append(TermSpec(type=ttype, coupling=coupling, bonds=bonds, name=name))
+            delta = r.expression(f"{key}.delta", t["delta"]) if ttype == "xxz" else None
+            terms.append(TermSpec(type=ttype, coupling=coupling, bonds=bonds, name=name, delta=delta))
+        elif ttype == "field":
+            stag = t.get("staggered", False)
+            if not isinstance(stag, bool):
+                raise r.fail(f"{key}.staggered", f"must be true or false, got {describe_value(stag)}")
+            terms.append(TermSpec(type=ttype, coupling=coupling, name=name, staggered=stag))
         else:
             shape = _shape(r, f"{key}.shape", t["shape"])
             sym = None

@@ -19,6 +19,7 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    SIGNED_TERMS,
     LatticeSpec,
     ModelSection,
     RunSection,
@@ -137,8 +138,8 @@ def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], con
 
 def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...], values: dict[str, Number],
                     context: str) -> int:
-    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg
-    term (it is defined through S = 1/2 spin operators)."""
+    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg,
+    xxz or field term (they are defined through S = 1/2 spin operators)."""
     if model.colors is None:
         return 2
     where = f"{source}: model.colors"
@@ -153,6 +154,10 @@ def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...
                             f"{context if model.colors.names else ''}; for SU({v}) use type = \"projector\" "
                             "(-J sum P_ij, which for two colours is J S_i.S_j - J/4)",
                             f"{source}: terms[{i}].type")
+        if v > 2 and t.type in ("xxz", "field"):
+            article = "an" if t.type == "xxz" else "a"
+            raise UserError(f"{article} {t.type} term (S = 1/2 spin operators) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}", f"{source}: terms[{i}].type")
     return v
 
 
@@ -160,13 +165,18 @@ def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
                   context: str) -> dict[str, Any]:
     where = f"{source}: terms[{i}].coupling"
     coupling = t.coupling.evaluate(values, where)
-    check_coupling(coupling, where, context)
+    if t.type not in SIGNED_TERMS:
+        check_coupling(coupling, where, context)
     d: dict[str, Any] = {"type": t.type}
-    if t.type != "projector-product":
+    if t.type in ("heisenberg", "projector", "xxz"):
         d["bonds"] = t.bonds
-    else:
+    elif t.type == "projector-product":
         d["shape"] = t.shape
     d["coupling"] = float(coupling)
+    if t.delta is not None:
+        d["delta"] = float(t.delta.evaluate(values, f"{source}: terms[{i}].delta"))
+    if t.staggered is not None:
+        d["staggered"] = t.staggered
     if t.symmetrize is not None:
         d["symmetrize"] = t.symmetrize
     if t.name is not None:
