@@ -1,8 +1,10 @@
 """Plain-text renderings for the terminal: a task summary table and a task file's contents.
 
-Summary columns: ``mean``, ``error`` (one standard error of the mean, from the binning analysis) and
+Summary columns: ``mean``, ``error`` (one standard error of the mean, from the binning analysis),
 ``tau_int[bins]`` (integrated autocorrelation time of the bin series in units of bins; 1/2 means
-uncorrelated bins, larger values mean the bins are too short).
+uncorrelated bins, larger values mean the bins are too short) and ``tau_int[steps]`` (the same in Monte
+Carlo steps, tau_int[bins] times the steps per bin; written "<x" when the bins are nearly uncorrelated,
+tau_int[bins] < 1, and it is only an upper bound).
 """
 
 from __future__ import annotations
@@ -10,9 +12,10 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from qmc.chain.target import goal_text
 from qmc.exchange.records import exchange_summary
 
-__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "inspect_text"]
+__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "target_text", "inspect_text"]
 
 
 def fmt(x: Any, spec: str) -> str:
@@ -35,12 +38,18 @@ def summary_table(s: dict[str, Any]) -> str:
     obs = s["observables"]
     if obs:
         width = max(10, *(len(n) for n in obs))
-        lines.append(f"  {'observable':<{width}}  {'mean':>16}  {'error':>10}  {'tau_int[bins]':>13}")
+        lines.append(f"  {'observable':<{width}}  {'mean':>16}  {'error':>10}  {'tau_int[bins]':>13}  "
+                     f"{'tau_int[steps]':>14}")
         for name, d in obs.items():
+            steps = fmt(d.get("tau_int_steps"), ".4g")
+            if d.get("tau_int_steps_bound") and steps != "nan":
+                steps = "<" + steps
             lines.append(f"  {name:<{width}}  {fmt(d.get('mean'), '16.9g')}  "
-                         f"{fmt(d.get('error'), '10.3g')}  {fmt(d.get('tau_int'), '13.2f')}")
+                         f"{fmt(d.get('error'), '10.3g')}  {fmt(d.get('tau_int'), '13.2f')}  {steps:>14}")
     if s.get("exchange"):
         lines.append("  " + exchange_text(s["exchange"]))
+    if s.get("target"):
+        lines.append("  " + target_text(s["target"], info.get("status", "")))
     lines += [f"  warning: {w}" for w in s.get("warnings", [])]
     return "\n".join(lines)
 
@@ -54,6 +63,28 @@ def exchange_text(x: dict[str, Any]) -> str:
             parts.append(f"with {name} = {values[other]:g}: {fmt(rate, '.3f')} ({tried[j]} attempts)")
     return (f"exchange along {name}: position {pos + 1} of {len(values)}, acceptance "
             + ", ".join(parts) + f"; round trips of the ladder: {x['round_trips']}")
+
+
+def target_text(t: dict[str, Any], status: str) -> str:
+    """One line on a task's precision target: met (at how many bins) or not, and every goal's error."""
+    parts = []
+    for c in t["checks"]:
+        err = c.get("error")
+        if err is None:
+            parts.append(f"{c['observable']} <= {c['goal']}")
+            continue
+        shown = fmt(err, ".3g")
+        if str(c["goal"]).endswith("%") and c.get("mean"):
+            shown = fmt(100.0 * err / abs(c["mean"]), ".3g") + "%"
+        mark = "" if c.get("plateau", True) else " (no plateau)"
+        parts.append(f"{c['observable']} {shown}{mark} {'<=' if c['met'] else '>'} {c['goal']}")
+    if t["met"]:
+        head = f"precision target met at {t['bins']} bins"
+    elif status == "done":
+        head = f"precision target NOT met: measure_steps used up at {t['bins']} bins"
+    else:
+        head = f"precision target not met yet ({t['bins']} bins)"
+    return head + ": " + ", ".join(parts)
 
 
 def inspect_text(d: Any) -> str:
@@ -72,6 +103,9 @@ def inspect_text(d: Any) -> str:
     rows.append(("beta", f"{d.beta:g}"))
     rows.append(("bins", f"{d.bins_done} of {d.bins_total} done, {d.steps_per_bin} steps per bin"))
     rows.append(("steps", f"{d.steps_done} of {d.steps_total} done"))
+    if d.target:
+        goals = ", ".join(goal_text((str(n), float(v), bool(r))) for n, v, r in d.target)
+        rows.append(("target", f"{goals} ({'met' if d.target_met else 'not met'})"))
     rows.append(("checkpoint", f"{d.checkpoint_time or 'none'} (at step {d.steps_done})"))
     rows.append(("observables", ", ".join(d.bin_names)))
     if d.vbs_histogram is not None:

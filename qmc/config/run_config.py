@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from qmc.config.fingerprint import fingerprint
-from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import GroundState, LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import Task, expand_tasks
 
 __all__ = ["RunConfig", "config_fingerprint"]
@@ -15,8 +15,8 @@ __all__ = ["RunConfig", "config_fingerprint"]
 
 @dataclass(eq=False)
 class RunConfig:
-    """A loaded configuration: parsed sections, the raw ``text`` and ``data``, the file ``path`` and the
-    resolved absolute ``output_dir``."""
+    """A loaded configuration: parsed sections, the raw ``text`` and ``data``, the file ``path``, the
+    resolved absolute ``output_dir`` and ``[ground_state]`` (None without it)."""
 
     path: Path
     text: str
@@ -27,6 +27,7 @@ class RunConfig:
     scan: tuple[ScanEntry, ...]
     sampling: Sampling
     output_dir: Path
+    ground_state: GroundState | None = None
     _tasks: tuple[Task, ...] | None = field(default=None, repr=False)
 
     @property
@@ -45,12 +46,12 @@ class RunConfig:
         """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner."""
         if self._tasks is None:
             self._tasks = tuple(expand_tasks(str(self.path), self.run, self.lattice, self.terms, self.scan,
-                                             self.sampling))
+                                             self.sampling, self.ground_state))
         return list(self._tasks)
 
     def fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.fingerprint`."""
-        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling)
+        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.ground_state)
 
 
 def config_fingerprint(config: RunConfig) -> str:

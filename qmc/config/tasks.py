@@ -16,6 +16,7 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    GroundState,
     LatticeSpec,
     RunSection,
     Sampling,
@@ -40,7 +41,8 @@ class Task:
     and ``copy``.  The random stream of the task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
     names the replica-exchange ladder the task belongs to (tasks that differ only in the exchanged
     parameter ``exchange`` share it), or is None without exchange; the ladder's swap decisions draw from
-    ``stream_seed(seed, exchange_seed_key)``.
+    ``stream_seed(seed, exchange_seed_key)``.  With ``ground_state`` (``[ground_state]``) ``beta`` is the
+    first stage's, ``start_beta``, and the task doubles it (:mod:`qmc.chain.doubling`).
     """
 
     task_id: str
@@ -59,6 +61,7 @@ class Task:
     exchange_seed_key: str | None = None
     explicit: dict[str, Any] | None = None
     source: str = ""
+    ground_state: GroundState | None = None
 
 
 def canonical_number(v: Number) -> str:
@@ -67,7 +70,8 @@ def canonical_number(v: Number) -> str:
 
 
 def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                 scan: tuple[ScanEntry, ...], sampling: Sampling) -> list[Task]:
+                 scan: tuple[ScanEntry, ...], sampling: Sampling,
+                 ground_state: GroundState | None = None) -> list[Task]:
     """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner.
 
     Derived entries are evaluated per point; beta, sizes and couplings are checked per task, with the
@@ -86,7 +90,7 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
         for e in derived:
             values[e.name] = e.expression.evaluate(values, f"{source}: scan.{e.name}")
         params = {e.name: values[e.name] for e in scan}
-        beta = values["beta"]
+        beta = values["beta"] if ground_state is None else ground_state.start_beta
         if not beta > 0:
             others = ", ".join(f"{k}={format_number(v)}" for k, v in values.items() if k != "beta")
             raise UserError(f"beta = {format_number(beta)}" + (f" (for {others})" if others else "")
@@ -105,7 +109,8 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
                 task_id=f"{label}_c{c}", params={**params, COPY_PARAM: c}, lattice_kind=lattice.kind,
                 size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
                 copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
-                exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source))
+                exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source,
+                ground_state=ground_state))
     return tasks
 
 

@@ -18,6 +18,7 @@ from typing import Any
 from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
 from qmc.exchange.ladder import check_ladders
+from qmc.run.stopping import check_run_observables
 from qmc.run.task_identity import steps_total, task_fingerprint
 from qmc.storage.atomic import atomic_write_text
 from qmc.storage.run_index import load_index, new_index, write_index
@@ -147,6 +148,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
         raise UserError(f"{run_dir / 'tasks'} exists and is not a directory", where)
     selected = _select(config, only)
     validate(config)
+    check_run_observables(config)
     check_ladders(config.tasks())
     fp = config_fingerprint(config)
 

@@ -2,7 +2,9 @@
 
 It builds the task's model, resumes from the task file's checkpoint if there is one (keeping its first
 ``bins_done`` bins), and advances the chain along the shared path of :mod:`qmc.run.task_run`: every chunk
-boundary is a decision point, and chunks are shortened near a deadline.  It never touches the run index,
+boundary is a decision point, and chunks are shortened near a deadline.  A precision target is judged by
+the chain itself after every bin it completes (:meth:`Simulation.advance` with ``until``), so that it stops
+exactly at the first bin that meets it, whatever the chunks.  It never touches the run index,
 so an MPI task farm may call it for different tasks on different ranks and let one rank update the index
 from the returned :class:`~qmc.run.outcome.TaskOutcome`.
 """
@@ -67,6 +69,10 @@ class SingleRun(TaskRun):
     def total_steps(self) -> int:
         return self._chains()[0].total_steps
 
+    @property
+    def target_reached(self) -> bool:
+        return self.watches[0].met
+
     def done_text(self) -> str:
         return f"{self._chains()[0].bins_done} bins"
 
@@ -82,7 +88,8 @@ class SingleRun(TaskRun):
         return max(1, min(pacer.chunk, int(left / pacer.step_seconds)))
 
     def _advance(self, n: int) -> list[Sequence[np.ndarray]]:
-        return [self._chains()[0].advance(n)]
+        watch = self.watches[0]
+        return [self._chains()[0].advance(n, until=watch.take if watch.active else None)]
 
 
 def run_task(

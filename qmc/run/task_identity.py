@@ -17,7 +17,9 @@ __all__ = ["task_fingerprint", "task_weight", "steps_total"]
 
 def task_fingerprint(task: Task) -> str:
     """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream;
-    with replica exchange also the exchanged parameter, the ladder and the exchange interval)."""
+    with replica exchange also the exchanged parameter, the ladder and the exchange interval; with beta
+    doubling its beta ladder and the observables that decide when it ends).  A precision target does not
+    enter: it decides only how many of the chain's bins are made, never what they are."""
     s = task.sampling
     content = {"seed": task.seed, "seed_key": task.seed_key, "lattice": task.lattice_kind,
                "size": list(task.size), "boundary": task.boundary, "explicit": task.explicit,
@@ -25,6 +27,9 @@ def task_fingerprint(task: Task) -> str:
                "measure_steps": s.measure_steps, "bins": s.bins}
     if task.exchange is not None:  # only then: fingerprints of plain tasks stay what they were
         content["exchange"] = [task.exchange, task.exchange_group, s.exchange_every]
+    if task.ground_state is not None:  # likewise
+        g = task.ground_state
+        content["ground_state"] = [repr(float(g.start_beta)), repr(float(g.max_beta)), list(g.observables)]
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
 
