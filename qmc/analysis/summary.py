@@ -6,6 +6,7 @@
      "observables": {name: {"mean", "error", "tau_int", "tau_int_steps"}},  # derived: + "bias_corrected"
      "vbs": {"cos4_hist", "counts", ...},                        # when a VBS histogram is stored
      "target": {"met", "bins", "checks": [...]},                 # with a precision target
+     "ground_state": {"outcome", "betas", "stages": [...], ...}, # with a search by beta doubling
      "warnings": [text, ...]}
 
 ``tau_int`` is in units of bins (1/2 for uncorrelated bins), see :mod:`qmc.analysis.binning`.
@@ -19,6 +20,10 @@ Precision target (``target``, when the task has one): ``met`` says whether the r
 target was met (at ``bins`` bins, the number stored), ``checks`` judges every goal on the stored bins
 with the rule of :mod:`qmc.chain.target` (``observable``, ``mean``, ``error``, ``allowed``, ``plateau``,
 ``met``, ``goal`` as written: ``"1e-04"`` or ``"0.5%"``).
+
+Ground-state search (``ground_state``, a task with ``[ground_state]``): the beta ladder and outcome of
+:func:`qmc.analysis.groundstate.search_summary`; the observables of the summary are those of the last stage
+(the converged one when the search converged), at ``info["beta"]``.
 
 Independent copies: tasks that differ only in their copy index (``params["copy"]``, see
 :data:`~qmc.analysis.tasks.COPY_PARAMS`) are independent Markov chains of the same parameters.
@@ -40,6 +45,7 @@ from qmc.chain.target import bound_text, check_goals
 from .binning import error_estimate
 from .chains import bins_compatible, merge_bin_dicts, weighted_mean
 from .derived import derived_estimates
+from .groundstate import search_summary
 from .tasks import COPY_PARAMS, AnalysisTask, as_record, canonical_params, params_key
 from .vbs import vbs_anisotropy
 
@@ -190,6 +196,12 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
         summary["vbs"] = vbs_anisotropy(rec.vbs_histogram, rec.vbs_hist_range, cos4)
     if rec.target and not rec.parts:
         summary["target"] = target_summary(rec, n_bins)
+    if rec.ground_state and not rec.parts:
+        gs = summary["ground_state"] = search_summary(rec.ground_state, tid)
+        if gs["outcome"] == "not reached":
+            names = ", ".join(gs["observables"])
+            warnings.append(f"{tid}: ground state not reached: the observables {names} did not agree for two "
+                            f"doublings in a row up to max_beta = {gs['max_beta']:g}")
     return summary
 
 

@@ -15,7 +15,8 @@ from typing import Any
 from qmc.chain.target import goal_text
 from qmc.exchange.records import exchange_summary
 
-__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "target_text", "inspect_text"]
+__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "target_text", "ground_state_text",
+           "inspect_text"]
 
 
 def fmt(x: Any, spec: str) -> str:
@@ -33,7 +34,8 @@ def summary_table(s: dict[str, Any]) -> str:
     head = f"task {s['task']}"
     if info:
         head += (f"  ({info.get('status', '?')}, {info.get('n_bins', 0)} bins of "
-                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites)")
+                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites"
+                 + (f", beta {fmt(info.get('beta'), 'g')}" if "beta" not in s["params"] else "") + ")")
     lines = [head, "  " + params_text(s["params"])]
     obs = s["observables"]
     if obs:
@@ -50,6 +52,8 @@ def summary_table(s: dict[str, Any]) -> str:
         lines.append("  " + exchange_text(s["exchange"]))
     if s.get("target"):
         lines.append("  " + target_text(s["target"], info.get("status", "")))
+    if s.get("ground_state"):
+        lines += ["  " + line for line in ground_state_text(s["ground_state"], info.get("beta"))]
     lines += [f"  warning: {w}" for w in s.get("warnings", [])]
     return "\n".join(lines)
 
@@ -85,6 +89,30 @@ def target_text(t: dict[str, Any], status: str) -> str:
     else:
         head = f"precision target not met yet ({t['bins']} bins)"
     return head + ": " + ", ".join(parts)
+
+
+def ground_state_text(g: dict[str, Any], beta: Any) -> list[str]:
+    """Lines on a task's ground-state search: outcome, then one line per finished stage of the beta ladder
+    (bins, the watched observables with their errors, the separation from the stage before)."""
+    ladder = " -> ".join(f"{b:g}" for b in g["betas"]) or "none finished yet"
+    if g["outcome"] == "converged":
+        head = (f"ground state by beta doubling: converged at beta = {g['betas'][-1]:g} ("
+                f"{', '.join(g['observables'])} agree within {g['n_sigma']:g} error bars for the last two "
+                "doublings); the table above is that stage")
+    elif g["outcome"] == "not reached":
+        head = (f"ground state by beta doubling: NOT reached up to max_beta = {g['max_beta']:g}; the table "
+                f"above is the last stage, beta = {g['betas'][-1]:g}")
+    else:
+        head = f"ground state by beta doubling: running, now at beta = {fmt(beta, 'g')}"
+    lines = [head, f"beta ladder: {ladder}"]
+    for st in g["stages"]:
+        parts = [f"{k} = {fmt(v['mean'], '.8g')} +- {fmt(v['error'], '.2g')}"
+                 for k, v in st["estimates"].items()]
+        if st["agree"] is not None:
+            sig = ", ".join(f"{fmt(v, '.2f')}" for v in st["sigmas"].values())
+            parts.append(f"{'agrees' if st['agree'] else 'differs'} ({sig} sigma)")
+        lines.append(f"  beta {st['beta']:<8g} {st['bins']:>6} bins  " + "; ".join(parts))
+    return lines
 
 
 def inspect_text(d: Any) -> str:

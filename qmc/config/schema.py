@@ -199,19 +199,11 @@ class Sampling:
 @dataclass(frozen=True)
 class GroundState:
     """``[ground_state]``: beta doubling from ``start_beta`` up to at most ``max_beta``, until the bin
-    ``observables`` at beta and 2 beta agree (:mod:`qmc.chain.doubling`)."""
+    ``observables`` at beta and 2 beta agree (:mod:`qmc.chain.doubling`, :mod:`qmc.chain.convergence`)."""
 
     start_beta: float
     max_beta: float
     observables: tuple[str, ...] = ("energy",)
-
-    @property
-    def betas(self) -> tuple[float, ...]:
-        """The beta ladder start_beta * 2^k up to max_beta (its largest possible stages)."""
-        out = [float(self.start_beta)]
-        while 2.0 * out[-1] <= self.max_beta * (1.0 + 1e-12):
-            out.append(2.0 * out[-1])
-        return tuple(out)
 
 
 def check_coupling(value: Number, where: str, context: str) -> None:

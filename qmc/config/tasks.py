@@ -1,6 +1,7 @@
 """Scan expansion: every point of the scan times every independent copy is one :class:`Task`.
 
-Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``.
+Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``
+(``c0`` alone for a ground-state search without scanned values).
 The random stream of a task is ``stream_seed(seed, seed_key)`` with ``seed_key`` built from the sorted
 parameter values and the copy index only, so it depends neither on the order of the scan, nor on the
 task id's text, nor on where the task runs.
@@ -106,7 +107,8 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
             # word "replica" (the copy index's name in earlier releases) and the old group label.
             ladder_key = "exchange:" + "_".join([*rest, f"r{c}"]) if exchange is not None else None
             tasks.append(Task(
-                task_id=f"{label}_c{c}", params={**params, COPY_PARAM: c}, lattice_kind=lattice.kind,
+                task_id="_".join([*([label] if label else []), f"c{c}"]), params={**params, COPY_PARAM: c},
+                lattice_kind=lattice.kind,
                 size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
                 copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
                 exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source,

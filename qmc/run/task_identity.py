@@ -35,8 +35,10 @@ def task_fingerprint(task: Task) -> str:
 
 
 def task_weight(task: Task) -> float:
-    """Relative cost of one Monte Carlo step of ``task``: (cells) * beta, as a step costs ~ N beta."""
-    return float(math.prod(task.size)) * float(task.beta)
+    """Relative cost of one Monte Carlo step of ``task``: (cells) * beta, as a step costs ~ N beta (for a
+    ground-state search, max_beta: its stages cost most at the largest beta they may reach)."""
+    beta = task.ground_state.max_beta if task.ground_state is not None else task.beta
+    return float(math.prod(task.size)) * float(beta)
 
 
 def steps_total(task: Task) -> int:

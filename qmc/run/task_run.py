@@ -88,7 +88,8 @@ class TaskRun:
 
     Subclasses set :attr:`label` and implement :meth:`done_text`, :meth:`_load`, :meth:`_chains`,
     :attr:`steps_done`, :attr:`total_steps`, :meth:`_chunk`, :meth:`_advance` and :meth:`_decision`;
-    :meth:`_extras` and :meth:`_written` add to the records.  ``speaks`` is False on the members of a
+    :meth:`_extras` and :meth:`_written` add to the records, :attr:`target_reached` and :meth:`_next_stage`
+    say when a run is done.  ``speaks`` is False on the members of a
     team that leave the log lines about the whole unit to member 0.
     """
 
@@ -153,6 +154,11 @@ class TaskRun:
     def _extras(self, j: int, sim: Simulation) -> dict[str, Any]:
         """Keyword arguments for :meth:`TaskBook.record` of book ``j`` besides the chain (none here)."""
         return {}
+
+    def _next_stage(self) -> bool:
+        """Called when the run is done: True when it went on to a new stage instead (a ground-state
+        search), so that the loop goes on; False (here) to finish."""
+        return False
 
     def _written(self, j: int) -> None:
         """Book ``j`` has just been written."""
@@ -222,7 +228,7 @@ class TaskRun:
         self.last_write = time.monotonic()
         self.pending = False
         pacer = Pacer()
-        while not self.done:
+        while not self.done or self._next_stage():
             decision = self._decision()
             if decision is not None and decision.stop:
                 self.stop_reason = decision.stop
