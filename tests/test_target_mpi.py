@@ -1,9 +1,11 @@
-"""Precision targets under a real ``mpiexec -n 2`` (single tasks on the farm, and exchange ladders split
-over both ranks): the same stops and bit-identical bins as the serial run; some tasks stop early, others run
-to measure_steps.  Helpers and templates come from tests/test_mpi.py."""
+"""Precision targets and ground-state searches under a real ``mpiexec -n 2`` (single tasks on the farm, and
+exchange ladders split over both ranks): the same stops and bit-identical bins as the serial run; some tasks
+stop early, others run to measure_steps; every stage of a search is the same.  Helpers and templates come
+from tests/test_mpi.py."""
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 pytest.importorskip("mpi4py")
@@ -41,3 +43,25 @@ def test_targets_stop_the_same_under_mpi(tmp_path, template):
         for t, d in zip(tasks, files, strict=True):
             ladders.setdefault(str(t.exchange_group), set()).add(d.bins_done)
         assert len(ladders) == 2 and all(len(n) == 1 for n in ladders.values())
+
+
+SEARCH = """checkpoint_seconds = 0.3
+[ground_state]
+start_beta = 0.5
+max_beta = 8.0
+observables = ["energy", "m_stag2"]
+"""
+GROUND_STATE = PLAIN.replace("beta = 1.5\n", "").replace("checkpoint_seconds = 0.3\n", SEARCH)
+
+
+def test_ground_state_searches_are_the_same_under_mpi(tmp_path):
+    config = tmp_path / "c.toml"
+    config.write_text(GROUND_STATE.format(measure=800, bins=20))
+    for label, ranks in (("serial", None), ("n2", 2)):
+        proc = qmc_run(config, tmp_path / label, ranks)
+        assert proc.returncode == 0, proc.stderr
+    assert_same_bins(all_bins(tmp_path / "serial", config), all_bins(tmp_path / "n2", config))
+    for t in load_config(config).tasks():
+        a, b = (read_task(task_path(tmp_path / label, t.task_id)).ground_state for label in ("serial", "n2"))
+        assert a["outcome"] == b["outcome"] and len(a["stages"]) >= 3
+        assert all(np.array_equal(a["stages"][k]["bins"], b["stages"][k]["bins"]) for k in a["stages"])

@@ -134,6 +134,12 @@ def inspect_text(d: Any) -> str:
     if d.target:
         goals = ", ".join(goal_text((str(n), float(v), bool(r))) for n, v, r in d.target)
         rows.append(("target", f"{goals} ({'met' if d.target_met else 'not met'})"))
+    if d.ground_state:
+        g = d.ground_state
+        betas = [g["stages"][k]["beta"] for k in sorted(g.get("stages", {}), key=int)]
+        ladder = ", ".join(f"{b:g}" for b in betas) or "none"
+        rows.append(("ground_state", f"{g.get('outcome', '?')}; finished stages at beta {ladder}; /bins at "
+                                     f"beta {d.beta:g}"))
     rows.append(("checkpoint", f"{d.checkpoint_time or 'none'} (at step {d.steps_done})"))
     rows.append(("observables", ", ".join(d.bin_names)))
     if d.vbs_histogram is not None:
