@@ -83,7 +83,8 @@ class TargetWatch:
         if missing:
             raise KeyError(f"no bins of {', '.join(missing)} in this chain")
         self._cols = [self.bin_names.index(g[0]) for g in self.goals]
-        self._series: list[list[float]] = [[] for _ in self.goals]
+        self._buf = np.zeros((256, len(self.goals)), dtype=np.float64)  # goal columns; doubled when full
+        self._n = 0
         self._judged = -1  # number of bins at the last evaluation
         self._met = False
         self.reset(rows)
@@ -95,19 +96,22 @@ class TargetWatch:
 
     @property
     def n_bins(self) -> int:
-        return len(self._series[0]) if self._series else 0
+        return self._n
 
     def reset(self, rows: Iterable[np.ndarray]) -> None:
         """Forget the bins seen so far and take ``rows`` instead."""
-        self._series = [[] for _ in self.goals]
-        self._judged, self._met = -1, False
+        self._n, self._judged, self._met = 0, -1, False
         for row in rows:
             self.add(row)
 
     def add(self, row: np.ndarray) -> None:
         """One more completed bin."""
-        for series, j in zip(self._series, self._cols, strict=True):
-            series.append(float(row[j]))
+        if not self.goals:
+            return
+        if self._n == self._buf.shape[0]:
+            self._buf = np.concatenate([self._buf, np.zeros_like(self._buf)])
+        self._buf[self._n] = np.asarray(row, dtype=np.float64)[self._cols]
+        self._n += 1
 
     def take(self, row: np.ndarray) -> bool:
         """:meth:`add` ``row``, then whether the target is met now (the stop test of a single chain)."""
@@ -129,5 +133,4 @@ class TargetWatch:
         """Every goal judged on the bins seen so far."""
         if not self.goals:
             return []
-        table = np.array(self._series, dtype=np.float64).T.reshape(self.n_bins, len(self.goals))
-        return check_goals(self.goals, table, [g[0] for g in self.goals])
+        return check_goals(self.goals, self._buf[:self._n], [g[0] for g in self.goals])
