@@ -277,3 +277,23 @@ def test_a_stopped_ladder_resumes_to_the_same_stop(tmp_path, ladder_reference):
     assert {o.status for o in out} == {"done"}
     for i, t in enumerate(unit):
         assert np.array_equal(stored(task_path(tmp_path / "run", t.task_id))[0], rows[i][:expected])
+
+
+def test_a_run_that_stopped_at_its_target_grows_when_the_target_goes(tmp_path, single_reference):
+    """Run growth (qmc.run.changes): the same target keeps the stopped task finished; without the target
+    the same chain continues to measure_steps, with the bins of the run that never had one."""
+    from qmc.run.plan import prepare_run
+    from qmc.run.serial import run_serial
+
+    table, names, target = single_reference
+    stopped = load_config(heis(tmp_path, "t.toml", target))
+    expected = first_met(stopped.sampling.target, table, names)
+    assert CliRunner().invoke(cli, ["run", str(tmp_path / "t.toml"), "--quiet"]).exit_code == 0
+    tid = stopped.tasks()[0].task_id
+    assert read_task(task_path(tmp_path / "run", tid)).bins_done == expected < 600
+    again = prepare_run(load_config(heis(tmp_path, "t.toml", target)))
+    assert again.tasks == [] and again.done == [tid] and again.grown == []
+    plain = prepare_run(load_config(heis(tmp_path, "t.toml")))
+    assert [t.task_id for t in plain.tasks] == [tid] and plain.grown == [tid]
+    assert run_serial(plain).unfinished == []
+    assert np.array_equal(table_of(task_path(tmp_path / "run", tid)), table)
