@@ -16,6 +16,8 @@ is frozen (measurement started); unused.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 
 from qmc.chain.alias import alias_table
@@ -254,8 +256,12 @@ class Simulation:
             self._kernel = bound_run_steps(*records)
         return self._kernel(n_steps, measure, stop_when_full, *records)
 
-    def advance(self, max_steps: int) -> np.ndarray:
-        """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names))."""
+    def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
+        """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).
+
+        ``until`` (optional) is called with every completed bin row; when it returns True the chain stops
+        right after that bin and the rest of ``max_steps`` is not run (a precision target met,
+        :class:`qmc.chain.target.TargetWatch`)."""
         rows = []
         left = int(max_steps)
         while left > 0 and not self.done:
@@ -277,6 +283,8 @@ class Simulation:
                 if (self.steps_done - self.warmup_steps) % self.steps_per_bin == 0:
                     rows.append(bin_row(self.model, self.beta, self.acc, self.steps_per_bin))
                     self.acc[:] = 0.0
+                    if until is not None and until(rows[-1]):
+                        break
         return np.array(rows, dtype=np.float64).reshape(len(rows), len(self.bin_names))
 
     # ------------------------------------------------------------------ replica exchange support

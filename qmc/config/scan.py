@@ -34,10 +34,15 @@ def round_value(v: Number) -> Number:
     return 0.0 if v == 0 else v
 
 
-def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
-    """The ``[scan]`` entries in file order; checks names, values and references between entries."""
+def parse_scan(r: TableReader, ground_state: bool = False) -> tuple[ScanEntry, ...]:
+    """The ``[scan]`` entries in file order; checks names, values and references between entries.  With a
+    ``[ground_state]`` section (``ground_state``) beta is set by beta doubling and must not be scanned."""
     t = r.table("scan", required=False)
-    if "beta" not in t:
+    if ground_state and "beta" in t:
+        raise r.fail("scan.beta", "with [ground_state] every task finds its own beta by doubling it from "
+                                  "start_beta up to max_beta: remove beta from [scan], or remove "
+                                  "[ground_state] to run at the scanned temperatures")
+    if "beta" not in t and not ground_state:
         raise r.fail("scan.beta", "missing required key 'beta' in [scan]: the inverse temperature "
                                   '(a number, a list, a range table, or an expression such as "2*L")')
     entries = []

@@ -67,7 +67,22 @@ bins = {bins}
 copies = 1
 # checkpoint_seconds: how often a running task saves its full state, so an interrupted run resumes.
 checkpoint_seconds = 300
-{ex}'''
+# target (optional): stop measuring a task as soon as these error bars are reached, absolute or relative
+# to the mean with %.  The check starts at 64 bins (the binning analysis needs them to judge its own
+# error) and looks at every bin after that; measure_steps is then only the upper limit.  A task that
+# stops this way holds exactly the first bins of the same run without a target.
+# target = {{ energy = 1e-4, m_stag2 = "0.5%" }}
+{ex}
+# Ground state instead of fixed temperatures (optional): remove beta from [scan] and uncomment the
+# section below.  Each task starts at start_beta; when its bins are done it doubles beta (its operator
+# string joined with its mirror image is a configuration at 2 beta), warms up and measures again, until
+# the observables at beta and 2 beta agree within two error bars for two doublings in a row.  At
+# max_beta it stops and `qmc summary` says that the ground state was not reached.
+# [ground_state]
+# start_beta = 2.0
+# max_beta = 512.0
+# observables = ["energy", "m_stag2"]
+'''
 
 
 _SCAN_HELP = '''\
@@ -76,7 +91,8 @@ _SCAN_HELP = '''\
 # list of such expressions: beta = ["L", "2*L"] runs every point at beta = L and at beta = 2L (the
 # ground-state check of `qmc analyze` compares such pairs).
 # Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
-# temperature, in inverse units of the couplings) is required.  Every entry must be used somewhere.
+# temperature, in inverse units of the couplings) is required, unless a [ground_state] section finds each
+# task's ground state by doubling beta (see the end of this file).  Every entry must be used somewhere.
 '''
 
 _TERMS_HELP = '''\

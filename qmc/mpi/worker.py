@@ -82,7 +82,8 @@ class _WorkerSink:
         self.per_task = max(1, steps_total_ // max(steps_total(self.first), 1))  # chains run here
         if self.report:
             self._send(steps_done, -1)
-        if self.prefetch:  # the answer waits in the queue while this unit runs
+        if self.prefetch:  # the answer waits in the queue while this unit runs; asked once per unit (a
+            self.prefetch = False  # ground-state search starts each stage of beta doubling anew)
             self.worker.channel.send(Request(prefetch=True), 0)
             self.worker.asked = True
 
