@@ -169,9 +169,12 @@ class Worker:
                 continue
             if not isinstance(msg, Assign):
                 raise RuntimeError(f"rank 0 answered a request with {msg!r}")
-            if self._stopped() or msg.unit in self.dropped:  # (a unit taken back is not handed back twice)
-                if msg.unit not in self.dropped:
-                    self.channel.send(Unstarted(msg.unit), 0)
+            stopped = self._stopped()  # (reads a take-back of this very unit, too)
+            if msg.unit in self.dropped:  # the answer to a prefetch already handed back: skip it once (rank 0
+                self.dropped.discard(msg.unit)  # may give the same unit again later, and then it runs)
+                continue
+            if stopped:
+                self.channel.send(Unstarted(msg.unit), 0)
                 continue
             self.asked = False
             self._run(msg, setup)
