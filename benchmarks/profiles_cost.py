@@ -41,7 +41,7 @@ def main() -> None:
     a = p.parse_args()
     lattice = build_lattice("square", (a.L, a.L), ("open", "periodic"))
     terms = [ProjectorProductTerm("column-of-three", 1.0)]
-    with_profiles = compile_model(lattice, terms, DomainWall("pi", 2.0))
+    with_profiles = compile_model(lattice, terms, wall=DomainWall("pi", 2.0))
     without = dataclasses.replace(with_profiles, site_column=None)
     best = {"with": float("inf"), "without": float("inf")}
     n_ops = 0

@@ -13,7 +13,7 @@
 # [exchange] max_ranks).  More ranks than units of work gives idle ranks: use [sampling] copies or more scan
 # points to have at least as many units as ranks.
 #
-# Time limit: on SIGTERM every rank writes a checkpoint of its running task and the job exits with status 0.
+# Time limit: on SIGTERM every rank writes a checkpoint of its running task and the job exits with status 75.
 # Submitting the same script again resumes exactly where it stopped (unfinished tasks only; finished ones
 # are never rerun), with bit-identical results.  `--max-time SECONDS` is an alternative when the scheduler
 # sends no signal before killing the job: set it a few minutes below the walltime.
@@ -47,8 +47,9 @@ export OMP_NUM_THREADS=1                      # one core per rank
 export OPENBLAS_NUM_THREADS=1
 # export NUMBA_CACHE_DIR=$PWD/.numba-cache     # shared, writable compile cache (see above)
 
-# The run itself.  Exit status 0: all tasks done or stopped cleanly by the time limit (resubmit to go on);
-# 1: some task failed (see run.log in the run directory; the other tasks ran); 2: bad input.
+# The run itself.  Exit status 0: all tasks done; 75: stopped cleanly by the time limit, unfinished
+# (resubmit to go on); 1: some task failed (see run.log in the run directory; the other tasks ran);
+# 2: bad input.
 # It runs in the background so that a SIGTERM sent only to this script is passed on to mpiexec (which
 # passes it to every rank); the scheduler's own launcher works the same way in place of mpiexec.
 mpiexec -n "$RANKS" qmc run "$CONFIG" --quiet &

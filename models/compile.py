@@ -5,13 +5,26 @@ Every term entry becomes one *group*, of one vertex kind (``group_kind``, see
 
 * ``HeisenbergTerm(bonds, J)``: ``J S_i.S_j = J/4 - J P_ij``, so each bond of the class gives a k = 1 term
   with ``C_t = J`` and the group constant is ``J/4 * n_bonds``;
+* ``ProjectorTerm(bonds, J)``: each bond of the class gives a k = 1 term with ``C_t = J``; constant 0;
 * ``ProjectorProductTerm(shape, Q)``: each placement gives a k-bond term with ``C_t = Q``; constant 0.
 
-Both are of the ``"projector"`` kind.
+* ``XXZTerm(bonds, J, delta)``: each bond a k = 1 term of the ``"directed"`` kind with ``C_t = J`` and its
+  row (J, delta, h_i, h_j, C_b) in ``term_xxz``; the group constant is sum_b C_b (:mod:`models.directed`);
+* ``FieldTerm(h, staggered)``: no operators; its field is folded into the directed bonds touching each site
+  (``group_field`` records the shares).  In a model with a field, ``heisenberg`` terms become directed
+  bonds with delta = 1 so that every site can carry its share.
+
+With ``colours = 2`` (S = 1/2 spins, the default) the groups are of the ``"projector"`` kind, except those of
+the ``"directed"`` kind above.  With ``colours = N > 2`` (SU(N): N colours per site, fundamental
+representation on sublattice A, conjugate on B) every group is of the ``"colour"`` kind; ``P_ij`` is then the
+SU(N) singlet projector, and a Heisenberg, XXZ or field term (defined through S = 1/2 spin operators) is
+refused (a Heisenberg term with a pointer to ``ProjectorTerm``).
 
 Sign-problem guard (the decomposition ``H = E_const - sum_t C_t prod P`` is sign-free when every
 ``C_t > 0`` and every bond joins opposite sublattices): J must be > 0 and Q >= 0; a zero coupling drops
-the term's operators but keeps its group (constant 0).  Any violation raises :class:`ModelError` naming
+the term's operators but keeps its group (constant 0).  An ``xxz`` J may be negative (ferromagnetic in
+the xy plane) on any bonds; then :func:`models.directed.check_gauge` checks that all hops can be made
+positive.  Any violation raises :class:`ModelError` naming
 the term (index and group name) and, for a bond, its sites.
 
 Bonds are deduplicated into ``bond_sites`` by (site0, site1, displacement), in order of first use, so a
@@ -26,26 +39,38 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .compiled import KIND_PROJECTOR, CompiledModel
+from . import directed
+from .compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, CompiledModel
 from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
-from .terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .terms import FieldTerm, HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term, XXZTerm
 from .walls import DomainWall, wall_factors
 
-__all__ = ["compile_model", "group_names"]
+__all__ = ["compile_model", "group_names", "MAX_COLOURS"]
 
 _MAX_NAME = 64  # group names are stored as 64-byte strings (CompiledModel.to_arrays)
+_TERMS = (HeisenbergTerm, ProjectorTerm, ProjectorProductTerm, XXZTerm, FieldTerm)
+MAX_COLOURS = 100
+"""The largest number of colours per site (the engine stores a colour, plus one, in a byte)."""
 
 
-def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | None = None) -> CompiledModel:
-    """Validate ``terms`` on ``lattice`` and flatten them into a CompiledModel (see module docstring).
+def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2, wall: DomainWall | None = None
+                  ) -> CompiledModel:
+    """Validate ``terms`` on ``lattice`` with ``colours`` colours per site (2: S = 1/2 spins; N > 2: SU(N))
+    and flatten them into a CompiledModel (see module docstring).
 
     With ``wall`` the couplings of the edge terms that carry its pinned patterns are multiplied by its
-    factor (:mod:`models.walls`; per placement, constants included)."""
+    factor (:mod:`models.walls`; per placement, constants included).  Walls are pinned on S = 1/2 models of
+    the projector kind only (heisenberg, projector and projector-product terms with 2 colours)."""
     if not isinstance(lattice, Lattice):
         raise ModelError(f"expected a Lattice, got {type(lattice).__name__}", "lattice")
-    if isinstance(terms, HeisenbergTerm | ProjectorProductTerm):
+    if (isinstance(colours, bool) or not isinstance(colours, numbers.Integral)
+            or not 2 <= colours <= MAX_COLOURS):
+        raise ModelError(f"the number of colours per site must be an integer from 2 to {MAX_COLOURS}, got "
+                         f"{colours!r}", "colors")
+    colours = int(colours)
+    if isinstance(terms, _TERMS):
         terms = [terms]
     terms = list(terms)
     if not terms:
@@ -53,15 +78,32 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | No
     names = group_names(terms)
     sites_parts, disp_parts, couplings, groups, k_per_term = [], [], [], [], []
     constants = np.zeros(len(terms))
+    fielded = any(isinstance(term, FieldTerm) for term in terms)
+    kinds = [_kind(term, fielded, colours) for term in terms]
+    if wall is not None:
+        _check_wall_kinds(terms, names, kinds, colours)
+    site_field = np.zeros((len(terms), lattice.n_sites))
+    deltas, hops = [], []
     for t, term in enumerate(terms):
         label = f"term {t} ({names[t]!r})"
+        if colours > 2 and isinstance(term, HeisenbergTerm):
+            raise ModelError(f"{label}: a heisenberg term (S_i.S_j of S = 1/2 spins) needs 2 colours, "
+                             f"not {colours}; for SU({colours}) write it as a projector term, -J sum P_ij "
+                             "(for two colours that is J S_i.S_j - J/4)", f"terms[{t}].type")
+        if colours > 2 and isinstance(term, XXZTerm | FieldTerm):
+            kind = "an xxz" if isinstance(term, XXZTerm) else "a field"
+            raise ModelError(f"{label}: {kind} term (S = 1/2 spin operators) needs 2 colours, not {colours}",
+                             f"terms[{t}].type")
+        if isinstance(term, FieldTerm):
+            site_field[t] = _field(lattice, term, t)
+            continue
         try:
             sites, disp, coupling = _expand(lattice, term)
         except ModelError as err:
             raise ModelError(f"{label}: {err.message}", err.where).within(f"terms[{t}]") from None
         sub = lattice.sublattice
         same = np.flatnonzero(np.any(sub[sites[..., 0]] == sub[sites[..., 1]], axis=1))
-        if same.size:
+        if same.size and coupling >= 0.0:
             i, j = sites[same[0]][np.argmax(sub[sites[same[0], :, 0]] == sub[sites[same[0], :, 1]])]
             raise ModelError(f"{label}: bond ({i}, {j}) joins two sites of the same sublattice; such a term "
                              "has a sign problem", f"terms[{t}].{_bond_field(term)}")
@@ -76,8 +118,10 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | No
                 scaled *= wall_factors(lattice, sites, wall)
             except ModelError as err:
                 raise ModelError(err.message, err.where).within("domain_wall") from None
-        if isinstance(term, HeisenbergTerm):
+        if isinstance(term, HeisenbergTerm) and kinds[t] == KIND_PROJECTOR:
             constants[t] = 0.25 * float(np.sum(scaled))
+        deltas.append(np.full(sites.shape[0], getattr(term, "delta", 1.0)))
+        hops.append((sites, coupling > 0.0, label, f"terms[{t}].coupling"))
         sites_parts.append(sites.reshape(-1, 2))
         disp_parts.append(disp.reshape(sites.shape[0] * sites.shape[1], lattice.n_dirs))
         couplings.append(scaled)
@@ -89,6 +133,11 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | No
     all_sites, all_disp = np.concatenate(sites_parts), np.concatenate(disp_parts)
     first, bond_of = _first_use_ids(all_sites, all_disp, lattice.n_sites)
     k = np.concatenate(k_per_term)
+    term_group = np.concatenate(groups)
+    group_kind = np.array(kinds, dtype=np.int8)
+    term_xxz, group_field = _directed_tables(lattice, terms, names, constants, site_field, group_kind,
+                                             term_group, np.concatenate(couplings), np.concatenate(deltas),
+                                             all_sites, k, hops)
     dir_lengths = np.ascontiguousarray(lattice.dir_lengths, dtype=np.float64)
     return CompiledModel(
         n_sites=lattice.n_sites,
@@ -101,10 +150,13 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | No
         term_start=np.concatenate([[0], np.cumsum(k)]).astype(np.int32),
         term_bonds=bond_of.astype(np.int32),
         term_coupling=np.concatenate(couplings),
-        term_group=np.concatenate(groups),
+        term_group=term_group,
         group_names=tuple(names),
         group_constant=constants,
-        group_kind=np.array([_kind(term) for term in terms], dtype=np.int8),
+        group_kind=group_kind,
+        n_colours=colours,
+        term_xxz=term_xxz,
+        group_field=group_field,
         vbs_bonds=np.ascontiguousarray(lattice.vbs_bonds, dtype=np.int32),
         vbs_dir=np.ascontiguousarray(lattice.vbs_dir, dtype=np.int8),
         vbs_phase=np.ascontiguousarray(lattice.vbs_phase, dtype=np.int8),
@@ -112,7 +164,7 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], wall: DomainWall | No
         linear_size=int(dir_lengths[0]) if dir_lengths.size else 0,
         open_boundaries=lattice.open_boundaries,
         lattice_kind=lattice.kind,
-        site_column=_site_column(lattice),
+        site_column=_site_column(lattice, kinds),
         extra={"size": tuple(lattice.size), "boundary": lattice.boundary},
     )
 
@@ -124,12 +176,14 @@ def group_names(terms: Sequence[Term]) -> list[str]:
     """
     raw = []
     for t, term in enumerate(terms):
-        if not isinstance(term, HeisenbergTerm | ProjectorProductTerm):
-            raise ModelError(f"expected a HeisenbergTerm or ProjectorProductTerm, got {type(term).__name__}",
-                             f"terms[{t}]")
+        if not isinstance(term, _TERMS):
+            raise ModelError(f"expected a HeisenbergTerm, ProjectorTerm, ProjectorProductTerm, XXZTerm or "
+                             f"FieldTerm, got {type(term).__name__}", f"terms[{t}]")
         if term.name is not None:
             raw.append(term.name)
-        elif isinstance(term, HeisenbergTerm):
+        elif isinstance(term, FieldTerm):
+            raw.append("field_stag" if term.staggered is True else "field")
+        elif isinstance(term, HeisenbergTerm | ProjectorTerm | XXZTerm):
             raw.append(term.bonds if isinstance(term.bonds, str) else "bonds")
         else:
             try:
@@ -154,10 +208,14 @@ def group_names(terms: Sequence[Term]) -> list[str]:
 
 def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float]:
     """(sites int[P, k, 2], disp float[P, k, D], coupling) of one validated term."""
-    if isinstance(term, HeisenbergTerm):
+    if isinstance(term, HeisenbergTerm | ProjectorTerm | XXZTerm):
         if not isinstance(term.bonds, str):
             raise ModelError(f"bonds must be the name of a bond class, got {term.bonds!r}", "bonds")
-        coupling = _coupling(term.coupling, strict=True)
+        if isinstance(term, XXZTerm):
+            coupling = _real(term.coupling, "coupling")
+            _real(term.delta, "delta")
+        else:
+            coupling = _coupling(term.coupling, strict=isinstance(term, HeisenbergTerm), symbol="J")
         try:
             sites, disp = lattice.bonds(term.bonds)
         except ModelError as err:
@@ -170,15 +228,68 @@ def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float
     return sites, disp, coupling
 
 
-def _coupling(value, strict: bool) -> float:
-    """A finite real coupling, > 0 (Heisenberg J) or >= 0 (projector Q); zero is allowed for both."""
+def _real(value, where: str) -> float:
+    """A finite real number of either sign."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
+        raise ModelError(f"{where} must be a finite real number, got {value!r}", where)
+    return float(value)
+
+
+def _field(lattice: Lattice, term: FieldTerm, t: int) -> np.ndarray:
+    """h (or h phi_i) on every site for a validated field term."""
+    h = _real(term.coupling, f"terms[{t}].coupling")
+    if not isinstance(term.staggered, bool | np.bool_):
+        raise ModelError(f"staggered must be true or false, got {term.staggered!r}", f"terms[{t}].staggered")
+    phi = np.where(lattice.sublattice == 0, 1.0, -1.0)
+    return h * phi if term.staggered else np.full(lattice.n_sites, h)
+
+
+def _directed_tables(lattice: Lattice, terms: Sequence[Term], names: list[str], constants: np.ndarray,
+                     site_field: np.ndarray, group_kind: np.ndarray, term_group: np.ndarray,
+                     coupling: np.ndarray, delta: np.ndarray, sites: np.ndarray, k: np.ndarray,
+                     hops: list) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """term_xxz and group_field of a model with directed terms (None, None without); adds each directed
+    group's sum of C_b to ``constants`` and checks the field's bonds and the hops' gauge."""
+    if not np.any(group_kind == KIND_DIRECTED):
+        return None, None
+    n = lattice.n_sites
+    if any(c < 0.0 for c in coupling[group_kind[term_group] == KIND_DIRECTED]):
+        directed.check_gauge(n, hops)
+    rows = np.flatnonzero(group_kind[term_group] == KIND_DIRECTED)
+    start = np.concatenate([[0], np.cumsum(k)])[rows]
+    bond_sites = sites[start]
+    total = site_field.sum(axis=0)
+    lonely = directed.unfolded_sites(n, bond_sites, total)
+    if lonely.size:
+        t = int(np.flatnonzero(site_field[:, lonely[0]])[0])
+        raise ModelError(f"term {t} ({names[t]!r}): site {int(lonely[0])} has a field but no xxz or "
+                         "heisenberg bond to carry it; the directed loops fold the field into those bonds",
+                         f"terms[{t}].coupling")
+    h_i, h_j = directed.fold_fields(n, bond_sites, total)
+    J, D = coupling[rows], delta[rows]
+    C = directed.bond_constant(J, D, h_i, h_j)
+    term_xxz = np.zeros((coupling.size, 5))
+    term_xxz[rows] = np.column_stack([J, D, h_i, h_j, C])
+    group_field = -site_field
+    for g in np.unique(term_group[rows]):
+        mine = np.flatnonzero(term_group[rows] == g)  # positions in rows
+        constants[g] += float(np.sum(C[mine]))
+        np.add.at(group_field[g], bond_sites[mine, 0], h_i[mine])
+        np.add.at(group_field[g], bond_sites[mine, 1], h_j[mine])
+    return term_xxz, group_field
+
+
+def _coupling(value, strict: bool, symbol: str = "Q") -> float:
+    """A finite real coupling, > 0 (Heisenberg J) or >= 0 (projector J or Q); zero is allowed for all."""
     if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
         raise ModelError(f"the coupling must be a finite real number, got {value!r}", "coupling")
     value = float(value)
     if value < 0.0:
-        what = ("a negative (ferromagnetic) Heisenberg J" if strict else "a negative projector coupling Q")
-        raise ModelError(f"{what} = {value} has a sign problem in this formulation; use "
-                         f"{'J > 0' if strict else 'Q >= 0'} (or 0 to switch the term off)", "coupling")
+        what = ("a negative (ferromagnetic) Heisenberg J" if strict
+                else f"a negative projector coupling {symbol}")
+        use = "J > 0" if strict else f"{symbol} >= 0"
+        raise ModelError(f"{what} = {value} has a sign problem in this formulation; use {use} (or 0 to "
+                         "switch the term off)", "coupling")
     return value
 
 
@@ -204,11 +315,29 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     return np.sort(first), ids
 
 
-def _site_column(lattice: Lattice) -> np.ndarray | None:
+def _check_wall_kinds(terms: Sequence[Term], names: list[str], kinds: list[int], colours: int) -> None:
+    """ModelError unless every term is of the projector kind: the pinned edges, the profiles along x and
+    their checks against exact diagonalization are made for S = 1/2 singlet projectors."""
+    if colours > 2:
+        raise ModelError(f"domain walls are pinned on S = 1/2 models (2 colours), not on SU({colours}) "
+                         "models", "colors")
+    for t, kind in enumerate(kinds):
+        if kind != KIND_PROJECTOR:
+            what = {XXZTerm: "an xxz term", FieldTerm: "a field term"}.get(
+                type(terms[t]), "a heisenberg term of a model with a field")
+            raise ModelError(f"term {t} ({names[t]!r}) is {what} (directed loops); domain walls are pinned "
+                             "on models of heisenberg, projector and projector-product terms only",
+                             f"terms[{t}].type")
+
+
+def _site_column(lattice: Lattice, kinds: list[int]) -> np.ndarray | None:
     """int32[N] column x of each site on a strip open along x and periodic along every other winding axis
-    (where profiles along x are measured), else None."""
+    (where profiles along x are measured), else None; also None unless every term is of the projector kind
+    (S = 1/2 singlet projectors: the per-column energies leave out the field shares of directed loops)."""
     cell, wraps = lattice.cell, lattice.periodic
     if cell is None or not wraps or wraps[0] or 0 not in cell.winding_axes:
+        return None
+    if any(kind != KIND_PROJECTOR for kind in kinds):
         return None
     others = [a for a in cell.winding_axes if a != 0]
     if not others or not all(wraps[a] for a in others):
@@ -216,13 +345,19 @@ def _site_column(lattice: Lattice) -> np.ndarray | None:
     return np.ascontiguousarray(np.rint(lattice.coords[:, 0]), dtype=np.int32)
 
 
-def _kind(term: Term) -> int:
-    """The vertex kind of a term's operators (every term type so far is a product of singlet projectors)."""
+def _kind(term: Term, fielded: bool, colours: int) -> int:
+    """The vertex kind of a term's operators: SU(N) colours for N > 2 colours; directed loops for xxz and
+    field terms, and for heisenberg terms of a model with a field (which is folded into their bonds);
+    singlet projectors otherwise."""
+    if colours > 2:
+        return KIND_COLOUR
+    if isinstance(term, XXZTerm | FieldTerm) or (fielded and isinstance(term, HeisenbergTerm)):
+        return KIND_DIRECTED
     return KIND_PROJECTOR
 
 
 def _bond_field(term: Term) -> str:
-    return "bonds" if isinstance(term, HeisenbergTerm) else "shape"
+    return "shape" if isinstance(term, ProjectorProductTerm) else "bonds"
 
 
 def _describe(lattice: Lattice) -> str:

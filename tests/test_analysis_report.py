@@ -164,10 +164,12 @@ def test_detect_coupling():
     for s in sums:  # a parameter that only follows L is not a coupling
         s["params"]["N"] = s["params"]["L"] ** 2
     assert detect_coupling(sums) == "J"
-    for i, s in enumerate(sums):  # an independent second parameter is ambiguous
+    for i, s in enumerate(sums):  # independent parameters: the one with most values, then the first name
         s["params"]["h"] = float(i % 2)
-    with pytest.raises(AnalysisError, match="several parameters vary"):
-        detect_coupling(sums)
+    assert detect_coupling(sums) == "J"
+    for i, s in enumerate(sums):
+        s["params"]["h"] = float(i % 3)
+    assert detect_coupling(sums) == "h"
     assert detect_coupling(sums, "g") == "g"
     with pytest.raises(AnalysisError, match="not set in every task"):
         detect_coupling(sums, "Q")
@@ -250,3 +252,49 @@ def test_analyze_run_bad_input(tmp_path):
         analyze_run([make_task(8, 1.0, 8, full=False)], tmp_path, quantity="nonsense")
     res = analyze_run([make_task(8, 1.0, 8, full=False)], tmp_path)
     assert res["coupling"] is None and res["crossings"] is None and res["warnings"]
+
+
+def test_other_varying_parameters_split_the_crossing_analysis(tmp_path):
+    """Two values of a second parameter J at every (L, g, beta): one crossing analysis per J, each finding
+    the g_c = 1 of the synthetic Binder ratio; plots per J; beta-doubling pairs only within one J."""
+    tasks = []
+    for J in (0.5, 1.0):
+        for L in (8, 16):
+            for k, g in enumerate(GS):
+                for beta in (L, 2 * L):
+                    seed = int(1000 * L + 10 * k + 2 * J + beta)
+                    t = make_task(L, g, beta, seed=seed, full=False, vbs=False)
+                    t.params["J"] = J
+                    t.task_id += f"_J{J}"
+                    tasks.append(t)
+    res = analyze_run(tasks, tmp_path, plot=True, n_boot=50)
+    assert res["coupling"] == "g" and res["crossings"] is None
+    groups = res["crossing_groups"]
+    assert [c["group"] for c in groups] == [{"J": 0.5}, {"J": 1.0}]
+    for c in groups:
+        (pair,) = c["crossings"]["pairs"]
+        assert abs(pair["g"] - 1.0) < 4 * pair["g_err"]
+    assert res["ground_state"]["pairs_checked"] == 2 * 2 * len(GS)
+    names = {p.split("/")[-1] for p in res["files"]}
+    assert {"obs_binder_stag_J_0.5.png", "obs_binder_stag_J_1.0.png", "crossings_binder_stag_J_1.0.png"} \
+        <= names
+    text = format_result(res)
+    assert "crossings of binder_stag at J=0.5:" in text and "crossings of binder_stag at J=1.0:" in text
+    assert any(w.startswith("coupling g; J also varies") for w in res["warnings"])
+
+
+def test_fewer_than_64_bins_give_one_warning_line(tmp_path):
+    tasks = [make_task(L, g, L, seed=k, nbins=40) for L in (8, 16) for k, g in enumerate(GS[:4])]
+    s = summarize_task(tasks[0])
+    assert s["info"]["few_bins"] and not any("not converged" in w for w in s["warnings"])
+    res = analyze_run(tasks, tmp_path, n_boot=20)
+    few = [w for w in res["warnings"] if "fewer than 64 bins" in w]
+    assert few == ["8 of 8 task(s) have fewer than 64 bins (the fewest: 40): their error bars are naive "
+                   "lower bounds, as the binning analysis needs at least 64 bins; ask for more (bins = 64 "
+                   "with measure_steps = 6400 keeps the bin length of 100 steps, and qmc run continues the "
+                   "finished tasks)"]
+    assert not any("not converged" in w for w in res["warnings"])
+    # with 64 bins and more the per-task warnings are as before: none for these uncorrelated bins
+    enough = [make_task(8, g, 8, seed=k, nbins=64) for k, g in enumerate(GS[:4])]
+    res = analyze_run(enough, tmp_path, n_boot=20)
+    assert not any("64 bins" in w for w in res["warnings"])

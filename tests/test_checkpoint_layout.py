@@ -19,7 +19,8 @@ from qmc.config.parser import load_config
 from qmc.engine.rng import stream_seed
 from qmc.engine.slots import ACC_LAYOUT
 from qmc.errors import UserError
-from qmc.run.serial import StopFlag, run_task
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
 from qmc.storage.task_file import read_task
 
 KW = dict(warmup_steps=200, measure_steps=600, bins=6)
@@ -37,8 +38,9 @@ def _sim():
 def test_the_layout_is_pinned_to_what_the_checkpoint_holds():
     """Changing the accumulator slots or the state arrays without raising CHECKPOINT_LAYOUT (and adding a
     migration or a refusal for the old layout) fails here."""
-    assert CHECKPOINT_LAYOUT == 3
-    assert STATE_KEYS == ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
+    assert CHECKPOINT_LAYOUT == 5
+    assert _sim().state()["counters"].shape == (4,)
+    assert STATE_KEYS == ("spins", "ops", "counters", "rng", "acc", "hist", "steps", "above")
     assert ACC_LAYOUT == ("n_ops", "n_ops_sq", "mz2", "ms2", "ms4", "chi_stag", "sq_shifted", "dx2", "dy2",
                           "d4", "cos4", "w2_0", "w2_1", "w2_2")
 
@@ -58,36 +60,80 @@ def test_an_unnumbered_layout_1_state_is_migrated():
     sim = _sim()
     first = sim.advance(450)
     old = {k: v for k, v in sim.state().items() if k != LAYOUT_KEY}  # what files written before hold
+    old["counters"] = old["counters"][:1]
     resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
     assert int(resumed.state()[LAYOUT_KEY]) == CHECKPOINT_LAYOUT
     assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
 
 
-def test_a_layout_2_state_is_migrated():
-    """Layout 2 had no profile block; its states continue bit-identically under layout 3."""
+def test_a_layout_2_state_without_per_slot_colours_is_migrated():
     whole = _sim().advance(800)
     sim = _sim()
     first = sim.advance(450)
-    old = {**sim.state(), LAYOUT_KEY: np.asarray(2, dtype=np.int64)}
+    old = {k: v for k, v in sim.state().items() if k != "above"}
+    old[LAYOUT_KEY] = np.asarray(2)  # what task files written before SU(N) models hold
+    old["counters"] = old["counters"][:1]
+    resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
+    assert resumed.state()["above"].shape == (0,)
+    assert resumed.state()["counters"].shape == (4,)
+    assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
+
+
+def test_a_layout_3_state_gets_the_directed_loop_counters():
+    """Layout 3 (one counter) continues bit-identically as layout 4 (four counters, zeros added)."""
+    whole = _sim().advance(800)
+    sim = _sim()
+    first = sim.advance(450)
+    old = {**sim.state(), LAYOUT_KEY: np.asarray(3)}
+    old["counters"] = old["counters"][:1]
+    resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
+    assert resumed.state()["counters"].shape == (4,)
+    assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
+
+
+def test_a_layout_4_state_is_migrated():
+    """Layout 4 had no profile block; its states continue bit-identically under layout 5."""
+    whole = _sim().advance(800)
+    sim = _sim()
+    first = sim.advance(450)
+    old = {**sim.state(), LAYOUT_KEY: np.asarray(4, dtype=np.int64)}
     resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
     assert int(resumed.state()[LAYOUT_KEY]) == CHECKPOINT_LAYOUT
     assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
+
+
+def _strip_model():
+    model = compile_model(build_lattice("square", (4, 4), ("open", "periodic")),
+                          [HeisenbergTerm("nn", 1.0), ProjectorProductTerm("column-of-three", 1.0)])
+    assert model.n_columns == 4
+    return model
+
+
+def _strip_sim():
+    return Simulation(_strip_model(), 2.0, seed_words=stream_seed(3, "profiles"), **KW)
 
 
 def test_a_chain_with_profiles_restores_bit_identically():
     """The profile block of a strip open along x is part of the checkpoint."""
-    model = compile_model(build_lattice("square", (4, 4), ("open", "periodic")),
-                          [HeisenbergTerm("nn", 1.0), ProjectorProductTerm("column-of-three", 1.0)])
-    assert model.n_columns == 4
-
-    def sim():
-        return Simulation(model, 2.0, seed_words=stream_seed(3, "profiles"), **KW)
-
-    whole = sim().advance(800)
-    part = sim()
+    whole = _strip_sim().advance(800)
+    part = _strip_sim()
     first = part.advance(450)
-    rest = Simulation.restore(model, 2.0, state=part.state(), **KW).advance(800)
+    rest = Simulation.restore(_strip_model(), 2.0, state=part.state(), **KW).advance(800)
     assert np.array_equal(np.vstack([first, rest]), whole)
+
+
+def test_a_profile_state_of_the_wall_branch_layout_3_is_migrated():
+    """The domain-wall development branch numbered its profile checkpoints 3 (one counter, no ``above``):
+    the steps 3 -> 4 -> 5 continue them bit-identically."""
+    whole = _strip_sim().advance(800)
+    sim = _strip_sim()
+    first = sim.advance(450)
+    old = {k: v for k, v in sim.state().items() if k != "above"}
+    old[LAYOUT_KEY] = np.asarray(3)
+    old["counters"] = old["counters"][:1]
+    resumed = Simulation.restore(_strip_model(), 2.0, state=old, **KW)
+    assert int(resumed.state()[LAYOUT_KEY]) == CHECKPOINT_LAYOUT
+    assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
 
 
 @pytest.mark.parametrize("layout, words", [
@@ -165,8 +211,8 @@ def test_task_files_of_layout_1_resume_and_unknown_layouts_fail_the_task(tmp_pat
     assert out.status == "stopped"
     _set_layout(out.path, CHECKPOINT_LAYOUT + 7)
     failed = run_task(task, tmp_path / "run")
-    assert failed.status == "failed" and (f"newer layout {CHECKPOINT_LAYOUT + 7}, this program reads layout "
-                                          f"{CHECKPOINT_LAYOUT}") in failed.message
+    assert failed.status == "failed" and (f"newer layout {CHECKPOINT_LAYOUT + 7}, this program reads "
+                                          f"layout {CHECKPOINT_LAYOUT}") in failed.message
     assert read_task(out.path).steps_done == out.steps_done  # the file is kept as it was
     _set_layout(out.path, None)  # as written before layouts were numbered
     assert run_task(task, tmp_path / "run").status == "done"

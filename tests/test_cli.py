@@ -16,8 +16,9 @@ from click.testing import CliRunner
 from qmc.cli.main import cli
 from qmc.config.parser import load_config
 from qmc.config.templates import TEMPLATES
-from qmc.run.serial import StopFlag, run_task
-from qmc.storage.task_file import TASK_FORMAT, load_index, read_task, task_path
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.storage.task_file import load_index, read_task, task_path
 
 CONFIG = """
 [run]
@@ -132,25 +133,72 @@ def test_keys_of_earlier_releases_are_refused_naming_the_new_key(tmp_path, line,
     assert not (tmp_path / "run").exists()
 
 
-def test_different_config_refused_then_forced(tmp_path, done_run):
+def test_new_scan_points_grow_the_run(tmp_path, done_run):
     import shutil
 
     run = tmp_path / "run"
     shutil.copytree(done_run, run)
-    other = write_config(tmp_path, J="[0.5, 1.0]", name="other.toml")
+    before = {p.name: p.read_bytes() for p in (run / "tasks").iterdir()}
+    more = write_config(tmp_path, J="[0.5, 1.0]", name="more.toml")
+    result = invoke("run", more, "--out", run)
+    assert result.exit_code == 0, result.output
+    assert "done: all 4 task(s) finished" in result.stderr and "[2/4 done]" in result.stderr
+    assert set(load_index(run)["tasks"]) == {"L4_J0.5_beta1_c0", "L4_J1_beta1_c0", "L6_J0.5_beta1_c0",
+                                             "L6_J1_beta1_c0"}
+    # the J = 1 tasks are kept as they were, nothing was renamed aside
+    assert all((run / "tasks" / name).read_bytes() == data for name, data in before.items())
+    assert not [p for p in run.rglob("*.old")]
+    # back to the first configuration: the J = 0.5 tasks stay in the run, noted as not configured
+    result = invoke("run", done_run.parent / "config.toml", "--out", run)
+    assert result.exit_code == 0 and "2 task(s) of this run are not in the configuration" in result.stderr
+    assert load_index(run)["tasks"]["L4_J0.5_beta1_c0"]["note"].startswith("not in the current configuration")
+
+
+def test_other_physics_refused_then_forced(tmp_path, done_run):
+    import shutil
+
+    run = tmp_path / "run"
+    shutil.copytree(done_run, run)
+    other = tmp_path / "other.toml"  # another master seed, and J = 0.5 added
+    other.write_text(CONFIG.format(J="[0.5, 1.0]", measure=1000).replace("seed = 5", "seed = 6"))
     before = sorted(p.name for p in run.rglob("*"))
     result = invoke("run", other, "--out", run)
-    assert_user_error(result, str(run), "different configuration", "--force")
+    assert_user_error(result, str(run), "other physics", "master seed, lattice or terms", "--force")
     assert sorted(p.name for p in run.rglob("*")) == before
     result = invoke("run", other, "--out", run, "--quiet", "--force")
     assert result.exit_code == 0, result.output
     names = [p.name for p in run.rglob("*")]
     assert any(n.startswith("index.json.") and n.endswith(".old") for n in names)
-    # J = 1 tasks are unchanged by the new scan: kept and not rerun; J = 0.5 ones are new
-    assert set(load_index(run)["tasks"]) == {"L4_J0.5_beta1_c0", "L4_J1_beta1_c0", "L6_J0.5_beta1_c0",
-                                             "L6_J1_beta1_c0"}
-    assert read_task(task_path(run, "L4_J1_beta1_c0")).provenance["sessions"][-1]["ended"] == "done"
+    assert sum(n.startswith("L4_J1_beta1_c0.h5.") and n.endswith(".old") for n in names) == 1
+    notes = [line for line in result.stderr.splitlines() if line.startswith("note: --force")]
+    assert len(notes) == 1, result.stderr  # even with --quiet: what was set aside, and why
+    assert "renamed aside (never deleted) 4 file(s), because the master seed, lattice or terms differ" \
+        in notes[0]
+    assert "L4_J1_beta1_c0.h5 -> L4_J1_beta1_c0.h5." in notes[0] and "index.json -> index.json." in notes[0]
+    index = load_index(run)
+    assert set(index["tasks"]) == {"L4_J0.5_beta1_c0", "L4_J1_beta1_c0", "L6_J0.5_beta1_c0", "L6_J1_beta1_c0"}
     assert len(read_task(task_path(run, "L4_J1_beta1_c0")).provenance["sessions"]) == 1
+
+
+def test_force_says_what_it_keeps(tmp_path):
+    first = tmp_path / "first.toml"  # beta = L/4: 1 at L = 4, 1.5 at L = 6
+    first.write_text(CONFIG.format(J="1.0", measure=1000).replace("beta = 1.0", 'beta = "L/4"'))
+    assert invoke("run", first, "--quiet").exit_code == 0
+    run = tmp_path / "run"
+    other = tmp_path / "other.toml"  # beta = L*L/16: still 1 at L = 4, now 2.25 at L = 6
+    other.write_text(CONFIG.format(J="1.0", measure=1000).replace("beta = 1.0", 'beta = "L*L/16"'))
+    result = invoke("run", other, "--out", run)
+    assert_user_error(result, "1 task file(s) cannot continue (L6_J1_c0)", "different model, lattice, beta",
+                      "--force", "the other 1 task file(s) would be kept")
+    kept = task_path(run, "L4_J1_c0")
+    result = invoke("run", other, "--out", run, "--force")
+    assert result.exit_code == 0, result.output
+    assert "note: --force: renamed aside (never deleted) 1 file(s), because written for another" \
+        in result.stderr
+    assert "L6_J1_c0.h5 -> L6_J1_c0.h5." in result.stderr
+    assert "note: --force: kept 1 task file(s) whose chains are unchanged: L4_J1_c0" in result.stderr
+    assert read_task(kept).status == "done" and len(read_task(kept).provenance["sessions"]) == 1
+    assert read_task(task_path(run, "L6_J1_c0")).beta == 2.25
 
 
 @pytest.mark.parametrize("text,fragments", [
@@ -184,7 +232,7 @@ def test_usage_errors_are_one_line(tmp_path):
 
 
 def test_task_failure_exit_code_and_message(tmp_path, monkeypatch):
-    import qmc.run.serial as runner
+    import qmc.run.single as runner
 
     def broken(task):
         raise RuntimeError("boom")
@@ -261,7 +309,7 @@ def test_inspect(done_run):
     for fragment in ("task           L6_J1_beta1_c0", "status         done", "bins           20 of 20 done",
                      "steps          1050 of 1050", "checkpoint", "numba_version", "git_revision",
                      "master_seed      5", "sessions (1)", "[sampling]", "L = 6",
-                     f"format         {TASK_FORMAT}, version"):
+                     "format         seriesloop/task, version"):
         assert fragment in out, fragment
 
 
@@ -328,7 +376,7 @@ def test_entry_point_in_a_subprocess(tmp_path):
                           timeout=120)
     assert proc.returncode == 2 and proc.stdout == ""
     assert proc.stderr.strip() == f"error: {path}: not an HDF5 file; a task file is written by 'qmc run' " \
-                                  f"(format {TASK_FORMAT})"
+                                  "(format seriesloop/task)"
 
 
 def test_serial_run_of_an_exchange_ladder(tmp_path):
@@ -343,3 +391,15 @@ def test_serial_run_of_an_exchange_ladder(tmp_path):
     result = invoke("inspect", task_path(tmp_path / "run", "L4_J1_beta1_c0"))
     assert result.exit_code == 0 and "exchange" in result.stdout
     assert invoke("summary", tmp_path / "run").exit_code == 0
+
+
+def test_run_help_documents_the_exit_status():
+    from qmc.cli.run import EXIT_UNFINISHED
+
+    text = invoke("run", "--help").stdout
+    assert f"{EXIT_UNFINISHED}  stopped before the end (SIGTERM, Ctrl-C, --max-time)" in text
+    assert "run the same command again to continue" in text and "2   bad input" in text
+    assert "74  the machine refused a write" in text
+    assert f"exit status {EXIT_UNFINISHED}" in " ".join(text.split())  # --max-time
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    assert f"**{EXIT_UNFINISHED} when it stopped before the end**" in readme

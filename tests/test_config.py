@@ -7,6 +7,7 @@ and the problem.  Positive checks compare with hand-counted task lists.
 from __future__ import annotations
 
 import itertools
+import re
 from pathlib import Path
 
 import pytest
@@ -278,6 +279,36 @@ def test_beta_expression_resolves(tmp_path):
     assert all(isinstance(t.beta, float) for t in tasks)
 
 
+def test_a_list_of_expressions_runs_every_point_at_each(tmp_path):
+    scan = '[scan]\nL = [4, 6]\ng = [2.5]\nbeta = ["L", "2*L", 3]\n'
+    config = load_config(write(tmp_path, text(scan=scan)))
+    tasks = config.tasks()
+    assert [(t.task_id, t.beta) for t in tasks] == [
+        ("L4_g2.5_beta4_c0", 4.0), ("L4_g2.5_beta8_c0", 8.0), ("L4_g2.5_beta3_c0", 3.0),
+        ("L6_g2.5_beta6_c0", 6.0), ("L6_g2.5_beta12_c0", 12.0), ("L6_g2.5_beta3_c0", 3.0)]
+    # the same tasks as written out by hand: same streams
+    by_hand = load_config(write(tmp_path, text(scan='[scan]\nL = [4]\ng = [2.5]\nbeta = [4, 8, 3]\n'),
+                                name="h.toml")).tasks()
+    assert [t.seed_key for t in by_hand] == [t.seed_key for t in tasks[:3]]
+    other = load_config(write(tmp_path, text(scan=scan.replace('"2*L"', '"3*L"')), name="o.toml"))
+    assert config_fingerprint(other) != config_fingerprint(config)
+
+
+@pytest.mark.parametrize("beta, problem", [
+    ('["L", "2*h"]', "'2*h' uses 'h', which is not a scan name"),
+    ('["L", "L"]', "the value 'L' appears twice"),
+    ('["L", 4]', "'L' and '4' are both 4 (for L=4, g=2.5): one task would be run twice"),
+    ('["L", "2*b2"]', "uses 'b2', which is itself an expression"),
+])
+def test_a_bad_list_of_expressions_is_refused(tmp_path, beta, problem):
+    scan = f'[scan]\nL = [4, 6]\ng = [2.5]\nb2 = "2*L"\nbeta = {beta}\n'
+    if "b2" not in beta:
+        scan = scan.replace('b2 = "2*L"\n', "")
+    with pytest.raises(UserError) as info:
+        load_and_validate(write(tmp_path, text(scan=scan)))
+    assert problem in str(info.value) and "scan.beta" in str(info.value)
+
+
 def test_task_contents(tmp_path):
     tasks = load_config(write(tmp_path, text())).tasks()
     t = tasks[4]  # L = 6 (slowest), g = 2.5, copy 0
@@ -344,7 +375,7 @@ def test_fingerprint(tmp_path):
     assert config_fingerprint(load_config(write(tmp_path, changed, name="c.toml"))) != base
     reordered = text(scan='[scan]\ng = [2.4, 2.5, 2.6]\nL = [4, 6]\nbeta = "L"\n')
     assert config_fingerprint(load_config(write(tmp_path, reordered, name="d.toml"))) != base  # ids change
-    assert len(base) == 64 and int(base, 16) >= 0
+    assert re.fullmatch("[0-9a-f]{64}", base), base  # a SHA-256 hex digest
 
 
 def test_exchange_groups(tmp_path):
@@ -491,7 +522,8 @@ def test_templates_load_and_validate(tmp_path, kind):
 
 
 def test_template_kinds():
-    assert set(TEMPLATES) == {"heisenberg", "bilayer", "columnar-dimer", "jq2", "jq3", "jq3-walls"}
+    assert set(TEMPLATES) == {"heisenberg", "bilayer", "columnar-dimer", "jq2", "jq3", "jq3-walls", "su3-jq2",
+                              "bilayer-field"}
     with pytest.raises(UserError, match="did you mean 'bilayer'"):
         template("bilayr")
 

@@ -59,9 +59,55 @@ def test_bilayer_sweep_crossing_brackets_published_critical_coupling(tmp_path):
     assert result.exit_code == 0, result.output
     analysis = json.loads((tmp_path / "run" / "analysis" / "analysis.json").read_text())
     crossing = analysis["crossings"]
-    g_star, err = crossing["g_c"]["limit"], crossing["g_c"]["limit_err"]
+    # one pair of sizes: its crossing is the estimate, and no extrapolation to L -> infinity is claimed
+    assert len(crossing["pairs"]) == 1 and crossing["g_c"]["limit"] is None
+    g_star, err = crossing["pairs"][0]["g"], crossing["pairs"][0]["g_err"]
     assert err < 0.05, f"crossing error bar {err} too large to test anything"
     assert abs(g_star - G_C) <= 4 * err + SYSTEMATIC, f"g* = {g_star} +- {err}, published {G_C}"
     # the tables hold every size and coupling
     table = (tmp_path / "run" / "analysis" / "observables.csv").read_text().splitlines()
     assert len(table) - 1 == 10
+
+
+SCAN_OF_TWO = """
+[run]
+seed = 99
+output = "run"
+[lattice]
+kind = "square"
+size = ["L", "L"]
+[[terms]]
+type = "heisenberg"
+bonds = "nn"
+coupling = "J"
+[[terms]]
+type = "projector-product"
+shape = "plaquette-pair"
+coupling = "Q"
+[scan]
+L = [4, 6]
+Q = [0.5, 1.0, 1.5]
+J = [0.5, 1.0]
+beta = ["L", "2*L"]
+[sampling]
+warmup_steps = 100
+measure_steps = 640
+bins = 64
+"""
+
+
+def test_analyze_groups_by_a_second_parameter_and_checks_beta_pairs(tmp_path):
+    """Q is scanned at two values of J, every point at beta = L and 2L (a list of expressions): the
+    analysis runs per J and compares every (L, Q, J) at beta and 2 beta."""
+    config = tmp_path / "two.toml"
+    config.write_text(SCAN_OF_TWO)
+    runner = CliRunner()
+    result = runner.invoke(cli, ["run", str(config), "--quiet"])
+    assert result.exit_code == 0, result.output
+    result = runner.invoke(cli, ["analyze", str(tmp_path / "run"), "--json"])
+    assert result.exit_code == 0, result.output
+    res = json.loads(result.stdout)
+    assert res["coupling"] == "Q" and res["n_points"] == 2 * 3 * 2 * 2
+    assert [g["group"] for g in res["crossing_groups"]] == [{"J": 0.5}, {"J": 1.0}]
+    assert res["ground_state"]["pairs_checked"] == 2 * 3 * 2
+    assert sorted(res["betas"]) == [4, 6, 8, 12]

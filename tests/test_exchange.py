@@ -1,4 +1,5 @@
-"""Replica exchange along a coupling (qmc.exchange.tasks): exact results, bookkeeping, files, resuming.
+"""Replica exchange along a coupling (qmc.exchange, qmc.run.ladder_run): exact results, bookkeeping, files,
+resuming.
 
 Physics: on the 4x4 J-Q2 model (J = 1, beta = 2) at four values of Q, the energy per site and m_stag2 with
 exchange agree with exact diagonalization (qmc/validation/exact, independent of the engine) within 4 error
@@ -24,15 +25,12 @@ from qmc.chain.simulation import Simulation
 from qmc.config.parser import build_model, load_config
 from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
-from qmc.exchange.tasks import (
-    GROUP_STATE_KEYS,
-    Ladder,
-    check_ladders,
-    exchange_summary,
-    run_group,
-    work_units,
-)
-from qmc.run.serial import StopFlag, run_task
+from qmc.exchange.ladder import GROUP_STATE_KEYS, Ladder, check_ladders
+from qmc.exchange.records import exchange_summary
+from qmc.run.ladder_run import run_group
+from qmc.run.outcome import StopFlag
+from qmc.run.single import run_task
+from qmc.run.units import work_units
 from qmc.storage.task_file import read_task, task_path
 
 JQ2 = """
@@ -289,6 +287,21 @@ def test_stop_resume_and_a_kill_between_file_rewrites_are_bit_identical(tmp_path
         assert ended == (["stopped", "done"] if i in (0, 2) else ["stopped", "stopped", "done"])
 
 
+def test_a_ladder_stopped_in_its_warm_up_resumes(tmp_path):
+    # no bins yet at the stop: the files hold an empty bin table (c48469a failed here on resuming)
+    config, unit = ladder_of(write_config(tmp_path, warmup=500, measure=1000, bins=10, every=5))
+    rows, walk, _ = reference(unit)
+    run_dir = tmp_path / "run"
+    out = run_until(unit, run_dir, len(unit) * 100, config.text)
+    assert {o.status for o in out} == {"stopped"} and 0 < out[0].steps_done < 500 and out[0].bins_done == 0
+    out = run_group(unit, run_dir, config_text=config.text)
+    assert {o.status for o in out} == {"done"}, out[0].message
+    for i, t in enumerate(unit):
+        table, d = stored(task_path(run_dir, t.task_id))
+        assert np.array_equal(table, rows[i]), t.task_id
+        assert list(np.asarray(d.exchange["walker"]).reshape(-1)) == walk[i]
+
+
 def test_a_missing_file_restarts_the_ladder(tmp_path):
     config, unit = ladder_of(write_config(tmp_path, measure=1000, bins=10))
     rows, _, _ = reference(unit)
@@ -376,7 +389,13 @@ def test_json_helpers_are_plain(tmp_path):
     config, unit = ladder_of(write_config(tmp_path, measure=200, bins=10))
     run_group(unit, tmp_path / "run", config_text=config.text)
     d = read_task(task_path(tmp_path / "run", unit[1].task_id))
-    json.dumps(exchange_summary(d.exchange))  # every value is a plain number, list or text
+    summary = exchange_summary(d.exchange)
+    assert summary is not None and summary["parameter"] == "Q" and len(summary["values"]) == len(unit)
+    pairs = zip(summary["accepted"], summary["attempted"], strict=True)
+    assert sum(summary["attempted"]) > 0 and all(0 <= a <= n for a, n in pairs)
+    finite = {k: v for k, v in summary.items() if k not in ("acceptance_up", "acceptance_down")}
+    json.dumps(finite, allow_nan=False)  # plain numbers, lists and text only (NaN only at the ladder's ends)
+    assert json.loads(json.dumps(summary)).keys() == summary.keys()
 
 
 # ------------------------------------------------------------------------------------------- command line

@@ -22,9 +22,9 @@ import pytest
 from test_exchange import StopAt, ladder_of, reference, stored, write_config
 
 from qmc.chain.simulation import Simulation
-from qmc.exchange.tasks import run_group
 from qmc.exchange.team import SoloTeam, chain_blocks
-from qmc.run.serial import StopFlag
+from qmc.run.ladder_run import run_group
+from qmc.run.outcome import StopFlag
 from qmc.storage.task_file import task_path
 
 Q5 = [0.6, 0.8, 1.0, 1.2, 1.4]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import inspect
 import io
 import threading
 import time
@@ -9,20 +10,27 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from stop_sink import StopAfter
 
 import qmc.run.pacing as pacing
-import qmc.run.serial as runner
+import qmc.run.single as single
+import qmc.run.task_book as task_book
 from qmc.chain.simulation import Simulation
 from qmc.config.parser import load_config
 from qmc.engine.rng import stream_seed
 from qmc.errors import UserError
+from qmc.run.outcome import StopFlag
+from qmc.run.plan import prepare_run
 from qmc.run.progress import Progress, format_duration
-from qmc.run.serial import StopFlag, prepare_run, run_serial, run_task, task_fingerprint
-from qmc.storage.task_file import load_index, read_task, task_path, write_task
+from qmc.run.serial import run_serial
+from qmc.run.single import run_task
+from qmc.run.task_identity import task_fingerprint
+from qmc.storage.run_index import load_index
+from qmc.storage.task_file import read_task, task_path, write_task
 
 CONFIG = """
 [run]
-seed = 11
+seed = {seed}
 output = "run"
 [lattice]
 kind = "{kind}"
@@ -38,13 +46,14 @@ beta = 1.5
 [sampling]
 warmup_steps = 50
 measure_steps = {measure}
-bins = 20
+bins = {bins}
 """
 
 
-def config_file(tmp: Path, *, sizes="[4]", J="1.0", measure=2000, kind="square", name="config.toml") -> Path:
+def config_file(tmp: Path, *, sizes="[4]", J="1.0", measure=2000, bins=20, kind="square", seed=11,
+                name="config.toml") -> Path:
     path = tmp / name
-    path.write_text(CONFIG.format(sizes=sizes, J=J, measure=measure, kind=kind))
+    path.write_text(CONFIG.format(sizes=sizes, J=J, measure=measure, bins=bins, kind=kind, seed=seed))
     return path
 
 
@@ -62,24 +71,6 @@ def direct_bins(task) -> np.ndarray:
 def stored_rows(path: Path, names) -> np.ndarray:
     d = read_task(path)
     return np.column_stack([d.bins[n] for n in names])
-
-
-class StopAfter:
-    """Progress sink that sets a stop flag once a number of steps is done."""
-
-    def __init__(self, flag: StopFlag, steps: int) -> None:
-        self.flag, self.steps, self.calls = flag, steps, 0
-
-    def task_started(self, *a):
-        pass
-
-    def task_advanced(self, steps_done, bins_done):
-        self.calls += 1
-        if steps_done >= self.steps:
-            self.flag.set("test stop")
-
-    def task_finished(self, status):
-        pass
 
 
 def test_run_task_matches_an_unchunked_simulation(tmp_path):
@@ -138,26 +129,26 @@ def test_writes_are_throttled(tmp_path, monkeypatch):
     cfg = load_config(config_file(tmp_path, measure=40000))
     task = cfg.tasks()[0]
     calls = []
-    real = runner.write_task
-    monkeypatch.setattr(runner, "write_task", lambda p, rec: (calls.append(rec.status), real(p, rec)))
+    real = task_book.write_task
+    monkeypatch.setattr(task_book, "write_task", lambda p, rec: (calls.append(rec.status), real(p, rec)))
     t0 = time.monotonic()
     run_task(task, tmp_path / "run", checkpoint_seconds=0.001)
     elapsed = time.monotonic() - t0
     # first file + at most one per second + the final one, although a bin completes every few ms
     assert calls[0] == "running" and calls[-1] == "done"
-    assert len(calls) <= 2 + int(elapsed / runner.MIN_WRITE_INTERVAL) + 1
+    assert len(calls) <= 2 + int(elapsed / pacing.MIN_WRITE_INTERVAL) + 1
 
 
 def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
     cfg = load_config(config_file(tmp_path, sizes="[4, 6]"))
-    real = runner.build_model
+    real = single.build_model
 
     def broken(task):
         if task.params["L"] == 6:
             raise RuntimeError("simulated crash")
         return real(task)
 
-    monkeypatch.setattr(runner, "build_model", broken)
+    monkeypatch.setattr(single, "build_model", broken)
     plan = prepare_run(cfg)
     report = run_serial(plan)
     assert [o.status for o in report.outcomes] == ["failed", "done"]  # largest first
@@ -166,7 +157,7 @@ def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
     entry = index["tasks"]["L6_J1_beta1.5_c0"]
     assert entry["status"] == "failed" and "RuntimeError: simulated crash" in entry["message"]
     assert index["tasks"]["L4_J1_beta1.5_c0"]["status"] == "done"
-    monkeypatch.setattr(runner, "build_model", real)
+    monkeypatch.setattr(single, "build_model", real)
     plan = prepare_run(cfg)  # rerun: only the failed task
     assert [t.task_id for t in plan.tasks] == ["L6_J1_beta1.5_c0"] and plan.done == ["L4_J1_beta1.5_c0"]
     report = run_serial(plan)
@@ -179,11 +170,11 @@ def test_failure_after_a_checkpoint_marks_the_file(tmp_path, monkeypatch):
     real = Simulation.advance
     n = {"calls": 0}
 
-    def advance(self, k):
+    def advance(self, k, **kw):
         n["calls"] += 1
         if n["calls"] == 6:
             raise FloatingPointError("bad step")
-        return real(self, k)
+        return real(self, k, **kw)
 
     monkeypatch.setattr(Simulation, "advance", advance)
     out = run_task(task, tmp_path / "run")
@@ -224,29 +215,33 @@ def test_prepare_refuses_bad_output(tmp_path):
     assert foreign.read_text() == "my notes" and not (run / "index.json").exists()
 
 
-def test_different_config_is_refused_unless_forced(tmp_path):
+def test_other_bin_length_is_refused_unless_forced(tmp_path):
     first = load_config(config_file(tmp_path, sizes="[4, 6]"))
     plan = prepare_run(first)
     run_serial(plan)
     kept = task_path(plan.run_dir, "L4_J1_beta1.5_c0").read_bytes()
+    index_before = (plan.run_dir / "index.json").read_bytes()
+    # 4000 steps in 20 bins: 200 steps per bin instead of 100
     second = load_config(config_file(tmp_path, sizes="[4, 6]", measure=4000, name="other.toml"))
-    with pytest.raises(UserError, match="different configuration") as info:
+    with pytest.raises(UserError, match="cannot change its bin length") as info:
         prepare_run(second, plan.run_dir)
     assert info.value.where == str(plan.run_dir)
-    assert load_index(plan.run_dir)["fingerprint"] == first.fingerprint()
-    # forced: old index and the changed task files renamed aside, nothing deleted
+    assert "bins = 40 with measure_steps = 4000" in info.value.message and "--force" in info.value.message
+    assert (plan.run_dir / "index.json").read_bytes() == index_before
+    # forced: the task files of the old bin length renamed aside, nothing deleted; the index is kept
     plan2 = prepare_run(second, plan.run_dir, force=True)
     names = sorted(p.name for p in plan.run_dir.rglob("*"))
-    assert any(n.startswith("index.json.") and n.endswith(".old") for n in names)
+    assert not any(n.startswith("index.json.") for n in names)
     assert sum(n.startswith("L4_J1_beta1.5_c0.h5.") for n in names) == 1
     assert [t.task_id for t in plan2.tasks] == ["L6_J1_beta1.5_c0", "L4_J1_beta1.5_c0"]
+    assert {why for _, _, why in plan2.set_aside} == {"bin length"}
     old = next(p for p in (plan.run_dir / "tasks").iterdir() if p.name.startswith("L4_J1_beta1.5_c0.h5."))
     assert old.read_bytes() == kept
     # a task whose chain is unchanged keeps its file
     third = load_config(config_file(tmp_path, sizes="[4, 6, 8]", measure=4000, name="third.toml"))
     run_serial(prepare_run(second, plan.run_dir))
     kept6 = task_path(plan.run_dir, "L6_J1_beta1.5_c0").read_bytes()
-    plan3 = prepare_run(third, plan.run_dir, force=True)
+    plan3 = prepare_run(third, plan.run_dir)
     assert [t.task_id for t in plan3.tasks] == ["L8_J1_beta1.5_c0"]
     assert task_path(plan.run_dir, "L6_J1_beta1.5_c0").read_bytes() == kept6
 
@@ -271,13 +266,16 @@ def test_foreign_task_file_in_run_is_reported_by_run_task(tmp_path):
     assert path.read_text() == "not ours"
 
 
-def test_mismatched_task_file_is_not_resumed(tmp_path):
+@pytest.mark.parametrize("other, says", [
+    (dict(seed=12), "different model, lattice, beta, seed or exchange ladder"),
+    (dict(measure=4000), "cannot change its bin length")])
+def test_mismatched_task_file_is_not_resumed(tmp_path, other, says):
     cfg = load_config(config_file(tmp_path))
-    other = load_config(config_file(tmp_path, measure=4000, name="o.toml"))
-    run_task(other.tasks()[0], tmp_path / "run")
+    written = load_config(config_file(tmp_path, name="o.toml", **other))
+    run_task(written.tasks()[0], tmp_path / "run")
     before = task_path(tmp_path / "run", cfg.tasks()[0].task_id).read_bytes()
     out = run_task(cfg.tasks()[0], tmp_path / "run")
-    assert out.status == "failed" and "different model" in out.message
+    assert out.status == "failed" and says in out.message
     assert task_path(tmp_path / "run", cfg.tasks()[0].task_id).read_bytes() == before
 
 
@@ -298,14 +296,73 @@ def test_progress_eta_from_rates():
     p = Progress(out, clock=clock, tty=False, plain_interval=1e9)
     p.plan([("a", 2.0, 1000, 0), ("b", 1.0, 1000, 500)])  # work 2000 + 500
     p.task_started("a", 0, 1000, 10)
+    clock.t = 2.0
+    p.task_advanced(50, 0)  # the first chunk: its time (start-up) is not a rate
+    assert p.task_eta() is None and p.run_eta() is None
     clock.t = 10.0
     p.task_advanced(250, 2)
-    assert p.task_eta() == pytest.approx(30.0)  # 750 steps left at 25 steps/s
-    assert p.run_eta() == pytest.approx(40.0)  # 2000 of work left at 50 per second
+    assert p.task_eta() == pytest.approx(30.0)  # 750 steps left at 200 steps / 8 s
+    assert p.run_eta() == pytest.approx(40.0)  # 2000 of work left at 400 / 8 s
     p.task_finished("done")
     text = out.getvalue().splitlines()
-    assert text[0].startswith("start [1/2] a") and text[1].startswith("done [1/2] a")
+    assert text[0].startswith("start [0/2 done] a") and text[1].startswith("done [1/2 done] a")
     assert "bins 2/10" in text[1] and "ETA 0:00:30" in text[1] and "all  20% ETA 0:00:40" in text[1]
+
+
+def test_progress_of_a_short_run_has_no_long_estimates():
+    """A 15 s run whose first chunk of 16 steps takes 3 s (compiled kernels loaded, files written) and whose
+    later chunks run 1000 steps in 0.3 s: never an estimate of more than a few times the true time."""
+    clock = Clock()
+    p = Progress(io.StringIO(), clock=clock, tty=False, plain_interval=1e9)
+    total = 40016
+    p.plan([("a", 1.0, total, 0)])
+    p.task_started("a", 0, total, 100)
+    clock.t, steps = 3.0, 16
+    p.task_advanced(steps, 0)
+    etas = []
+    while steps < total:
+        clock.t += 0.3
+        steps += 1000
+        p.task_advanced(steps, steps // 400)
+        true_left = (total - steps) / 1000 * 0.3
+        etas.append((p.task_eta(), p.run_eta(), true_left))
+    assert all(e is not None and abs(e - left) <= 0.05 * left + 1e-9 for e, _, left in etas)
+    assert all(r is not None and abs(r - left) <= 0.05 * left + 1e-9 for _, r, left in etas)
+
+
+def test_progress_counts_tasks_done_on_any_rank():
+    from qmc.run.outcome import TaskOutcome
+
+    clock = Clock()
+    out = io.StringIO()
+    p = Progress(out, clock=clock, tty=False, plain_interval=1e9)
+    p.plan([("a", 1.0, 100, 0), ("b", 1.0, 100, 0), ("c", 1.0, 100, 40)])
+    p.task_started("a", 0, 100, 4)
+    p.outcome(TaskOutcome("b", "done", bins_done=4, bins_total=4, steps_done=100, steps_total=100), rank=1)
+    assert "done b on rank 1 (4/4 bins, 0.0 s) [1/3 done]" in out.getvalue()
+    assert p.work_done == pytest.approx(100.0)
+    p.task_advanced(100, 4)
+    p.task_finished("done")
+    p.outcome(TaskOutcome("a", "done", steps_done=100), rank=0)  # rank 0's own task: counted once
+    p.outcome(TaskOutcome("c", "stopped", steps_done=70), rank=2)
+    assert p.count() == "[2/3 done]" and p.work_done == pytest.approx(230.0)
+    assert out.getvalue().count("\n") == 4  # start a, b's line, done a, c's line
+
+
+def test_progress_of_a_ladder_counts_its_work_once():
+    """A ladder of three chains reports the steps of all its chains under its first task; the outcomes
+    of its three tasks then count them as done without counting their work again."""
+    from qmc.run.outcome import TaskOutcome
+
+    p = Progress(io.StringIO(), clock=Clock(), tty=False, plain_interval=1e9)
+    p.plan([(f"x{i}", 2.0, 100, 0) for i in range(3)])
+    p.task_started("x0", 0, 300, 10)
+    p.task_advanced(300, 10)
+    p.task_finished("done")
+    for i in range(3):
+        p.outcome(TaskOutcome(f"x{i}", "done", steps_done=100))
+    assert p.work_done == pytest.approx(p.work_total) == pytest.approx(600.0)
+    assert p.count() == "[3/3 done]"
 
 
 def test_progress_terminal_redraws_in_place():
@@ -320,7 +377,7 @@ def test_progress_terminal_redraws_in_place():
     p.task_finished("done")
     text = out.getvalue()
     assert text.count("\r") == 4 and text.endswith("\n")  # start, two throttled redraws, end
-    assert "|####################|" in text and "done [1/1] a" in text
+    assert "|####################|" in text and "done [1/1 done] a" in text
 
 
 def test_format_duration():
@@ -329,9 +386,35 @@ def test_format_duration():
     assert format_duration(None) == format_duration(float("nan")) == "--:--:--"
 
 
+def _hdf5_writers() -> list[str]:
+    """Every place in the installed qmc package that opens an HDF5 file in a mode other than "r"."""
+    import ast
+
+    import qmc
+
+    root = Path(qmc.__file__).parent
+    found = []
+    for path in sorted(root.rglob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text(), str(path))):
+            if not (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+                    and node.func.attr == "File" and getattr(node.func.value, "id", "") == "h5py"):
+                continue
+            mode = node.args[1] if len(node.args) > 1 else next(
+                (k.value for k in node.keywords if k.arg == "mode"), None)
+            if not (isinstance(mode, ast.Constant) and mode.value == "r"):
+                found.append(f"{path.relative_to(root)}:{node.lineno}")
+    return found
+
+
 def test_write_task_is_the_only_writer_of_task_files(tmp_path):
-    """run_task never leaves a temporary file behind after a normal stop."""
+    """Only write_task opens HDF5 files for writing, and a normal run leaves no temporary file behind."""
+    writers = _hdf5_writers()
+    assert len(writers) == 1 and writers[0].startswith("storage/task_file.py:"), writers
+    line = int(writers[0].split(":")[1])
+    source = inspect.getsource(write_task)
+    first = inspect.getsourcelines(write_task)[1]
+    assert first <= line < first + len(source.splitlines()), "the writer is not write_task"
     cfg = load_config(config_file(tmp_path))
     run_task(cfg.tasks()[0], tmp_path / "run")
-    assert not list((tmp_path / "run" / "tasks").glob("*.tmp"))
-    assert callable(write_task)
+    tasks = tmp_path / "run" / "tasks"
+    assert list(tasks.glob("*.h5")) and not list(tasks.glob("*.tmp"))

@@ -1,4 +1,5 @@
-"""Task files and the run index: round trip, atomic replacement, refusal of foreign and damaged files."""
+"""Task files and the run index: round trip, atomic replacement, refusal of foreign and damaged files, and
+files written under the earlier format names (read, with one note per process)."""
 
 from __future__ import annotations
 
@@ -14,18 +15,17 @@ import h5py
 import numpy as np
 import pytest
 
+import qmc.storage.formats as formats
 import qmc.storage.task_file as storage
 from qmc.errors import UserError
+from qmc.storage.formats import INDEX_FORMAT, TASK_FORMAT
+from qmc.storage.run_index import load_index, new_index, write_index
 from qmc.storage.task_file import (
-    TASK_FORMAT,
     TaskRecord,
-    load_index,
-    new_index,
     read_run,
     read_task,
     task_header,
     task_path,
-    write_index,
     write_task,
 )
 
@@ -76,14 +76,15 @@ def test_round_trip(tmp_path):
     assert np.array_equal(d.checkpoint["rng"], rec.checkpoint["rng"])
     assert d.checkpoint["rng"].dtype == np.uint64
     assert d.model_info["group_names"] == ["nn", "q2"] and d.exchange is None
+    assert d.file_format == "seriesloop/task" and d.format_version == 1
     with h5py.File(path, "r") as f:  # the documented layout
-        assert f.attrs["format"] == TASK_FORMAT and f.attrs["format_version"] == 1
+        assert f.attrs["format"] == TASK_FORMAT == "seriesloop/task" and f.attrs["format_version"] == 1
         assert f["bins/energy"].maxshape == (None,)
         assert f["bins/stiffness:x"].attrs["name"] == "stiffness/x"
         assert f["vbs_histogram"].dtype == np.int64
         assert f["checkpoint"].attrs["bins_done"] == 3
         assert f["config"].attrs["path"] == "/x/config.toml"
-    assert not (tmp_path / "t.h5.tmp").exists()
+    assert not list(tmp_path.glob("*.tmp"))
 
 
 def test_no_vbs_histogram_reads_as_none(tmp_path):
@@ -107,7 +108,7 @@ def test_failed_write_leaves_previous_file(tmp_path, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         write_task(path, make_record(n_bins=3))
     assert path.read_bytes() == before
-    assert not (tmp_path / "t.h5.tmp").exists()
+    assert not list(tmp_path.glob("*.tmp"))
     assert read_task(path).bins_done == 2
 
 
@@ -234,13 +235,81 @@ def test_index_round_trip_and_bad_index(tmp_path):
                                                  "steps_total": 85}])
     write_index(tmp_path, index)
     back = load_index(tmp_path)
-    assert back["fingerprint"] == "fp" and back["format"] == "dsqmc-run-index"
+    assert back["fingerprint"] == "fp" and back["format"] == INDEX_FORMAT == "seriesloop/run-index"
     assert back["tasks"]["t1"] == {**index["tasks"]["t1"]}
     assert back["tasks"]["t1"]["status"] == "pending" and back["tasks"]["t1"]["file"] == "tasks/t1.h5"
-    assert not (tmp_path / "index.json.tmp").exists()
+    assert not list(tmp_path.glob("*.tmp"))
     (tmp_path / "index.json").write_text("{broken")
     with pytest.raises(UserError, match="cannot be read"):
         load_index(tmp_path)
     (tmp_path / "index.json").write_text(json.dumps({"tasks": []}))
     with pytest.raises(UserError, match="not a run index"):
         load_index(tmp_path)
+
+
+# ------------------------------------------------------------------------------------------- old format names
+
+
+@pytest.fixture
+def fresh_notes(monkeypatch):
+    """A process that has not yet reported an old file (the note is said once per process)."""
+    monkeypatch.setattr(formats, "_noted", set())
+    monkeypatch.setattr(formats, "_quiet", False)
+
+
+def _old_notes(caplog) -> list[str]:
+    return [r.getMessage() for r in caplog.records
+            if r.name == "qmc.storage" and "older format" in r.getMessage()]
+
+
+def test_task_files_of_the_old_format_open_with_one_note(tmp_path, caplog, fresh_notes):
+    run = tmp_path / "run"
+    (run / "tasks").mkdir(parents=True)
+    for tid in ("a", "b"):  # written as the release before the rename did: same layout, old format name
+        path = task_path(run, tid)
+        write_task(path, make_record(task_id=tid))
+        with h5py.File(path, "r+") as f:
+            f.attrs["format"] = "dsqmc-task"
+    caplog.set_level("WARNING", logger="qmc.storage")
+    got = read_run(run)
+    assert [d.task_id for d in got] == ["a", "b"] and got[0].bins_done == 3
+    assert np.array_equal(got[1].bins["energy"], make_record().bins[:, 0])
+    assert got[0].file_format == TASK_FORMAT  # same layout: shown under the current name
+    assert task_header(task_path(run, "a"))["format"] == "dsqmc-task"
+    notes = _old_notes(caplog)
+    assert len(notes) == 1 and "'dsqmc-task'" in notes[0] and "'seriesloop/task'" in notes[0]
+    assert formats.old_format_noted(TASK_FORMAT) and not formats.old_format_noted(INDEX_FORMAT)
+    write_task(task_path(run, "a"), make_record(task_id="a", n_bins=4))  # a rewrite uses the new name
+    with h5py.File(task_path(run, "a"), "r") as f:
+        assert f.attrs["format"] == TASK_FORMAT
+    assert read_task(task_path(run, "a")).bins_done == 4
+    assert len(_old_notes(caplog)) == 1
+
+
+def test_run_index_of_the_old_format_opens_with_one_note(tmp_path, caplog, fresh_notes):
+    index = new_index("fp", "/x.toml", "demo", [{"task_id": "t1", "params": {}, "bins_total": 8,
+                                                 "steps_total": 85}])
+    index["format"] = "dsqmc-run-index"
+    (tmp_path / "index.json").write_text(json.dumps(index))
+    caplog.set_level("WARNING", logger="qmc.storage")
+    for _ in range(3):
+        back = load_index(tmp_path)
+        assert back["format"] == INDEX_FORMAT and back["tasks"]["t1"]["bins_total"] == 8
+    notes = _old_notes(caplog)
+    assert len(notes) == 1 and "'dsqmc-run-index'" in notes[0]
+    write_index(tmp_path, back)
+    assert json.loads((tmp_path / "index.json").read_text())["format"] == INDEX_FORMAT
+
+
+def test_a_quiet_process_reads_old_files_without_a_note(tmp_path, caplog, fresh_notes):
+    write_task(tmp_path / "t.h5", make_record())
+    with h5py.File(tmp_path / "t.h5", "r+") as f:
+        f.attrs["format"] = "dsqmc-task"
+    formats.quiet_old_format_notes()
+    caplog.set_level("WARNING", logger="qmc.storage")
+    assert read_task(tmp_path / "t.h5").task_id == "L4_beta2_r0"
+    assert _old_notes(caplog) == []
+    with h5py.File(tmp_path / "t.h5", "r+") as f:  # any other name is still foreign
+        f.attrs["format"] = "dsqmc-task-2"
+    with pytest.raises(UserError, match="foreign"):
+        read_task(tmp_path / "t.h5")

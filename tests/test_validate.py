@@ -18,9 +18,11 @@ import sys
 import numpy as np
 import pytest
 
+from qmc.analysis import error_estimate
+from qmc.analysis.powerfit import fit_powers
 from qmc.errors import UserError
 from qmc.validation import references as refs
-from qmc.validation.cases import Case, build_cases, chain_energy_case, cluster_case
+from qmc.validation.cases import Case, build_cases, chain_energy_case, cluster_case, square_ground_state_cases
 from qmc.validation.checks import SIGMAS, Check, failed_check
 from qmc.validation.exact import (
     ExactSpectrum,
@@ -31,8 +33,7 @@ from qmc.validation.exact import (
     cluster_observables,
     stiffness_by_twist,
 )
-from qmc.validation.fits import fit_powers
-from qmc.validation.jobs import ExactJob
+from qmc.validation.jobs import ExactJob, SimResult
 from qmc.validation.progress import SuiteProgress
 from qmc.validation.runner import collect_jobs, run_cases
 from qmc.validation.suite import run_validation
@@ -153,6 +154,28 @@ def test_power_fit_recovers_exact_data_and_chain_bias_is_small():
     assert 1e-6 < abs(bias) < 5e-5
     with pytest.raises(ValueError):
         fit_powers(L[:1], [1.0], [0.1], (2.0,))
+
+
+def test_square_ground_state_cases_evaluate_synthetic_bins():
+    """The square-lattice e_0 and m_s checks on invented bins with known limits (m_s^2 = 3 * 0.0315,
+    e_0 = -0.6694) and exactly the fitted forms: the checks return those limits and a zero shift."""
+    sizes = (8, 12, 16, 24)
+    e_case, m_case = square_ground_state_cases(sizes)
+    results = {}
+    for job in e_case.jobs:
+        L = job.model.size[0]
+        noise = np.array([-1.0, 1.0] * 50)
+        bins = {"energy": -0.6694 + 0.7 / L**3 - 1.0 / L**4 + 1e-5 * noise,
+                "m_stag2": 0.0315 * (1 + 1.5 / L + 0.4 / L**2) + 1e-5 * noise}
+        results[job.key] = SimResult(bins, L * L, L, job.beta, 0.0)
+    (e0,) = e_case.evaluate(results)
+    (ms,) = m_case.evaluate(results)
+    assert e0.value == pytest.approx(-0.6694, abs=1e-9) and e0.systematic < 1e-9
+    assert ms.value == pytest.approx(math.sqrt(3 * 0.0315), abs=1e-8) and ms.systematic < 1e-8
+    # error of m_s = 3 err(c_0) / (2 m_s), c_0 from the per-size means and binning errors of m_stag2
+    m2 = [error_estimate(results[j.key].bins["m_stag2"]) for j in m_case.jobs]
+    fit = fit_powers(sizes, [x.mean for x in m2], [x.error for x in m2], (1, 2))
+    assert ms.error == pytest.approx(3 * fit.limit_err / (2 * math.sqrt(3 * fit.limit)), rel=1e-9)
 
 
 def test_cluster_stiffness_matches_finite_difference():

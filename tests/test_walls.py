@@ -17,9 +17,12 @@ import pytest
 from qmc.models import (
     WALLS,
     DomainWall,
+    FieldTerm,
     HeisenbergTerm,
     ModelError,
     ProjectorProductTerm,
+    ProjectorTerm,
+    XXZTerm,
     build_lattice,
     compile_model,
 )
@@ -86,7 +89,7 @@ def test_profiles_are_measured_on_open_periodic_strips_only():
 def test_pinned_couplings_agree_with_the_independent_construction(wall):
     """Every term and coupling of a pinned 6 x 4 J-Q3 strip as the exact-diagonalization code builds it."""
     terms = [HeisenbergTerm("nn", 0.7), ProjectorProductTerm("column-of-three", 1.3)]
-    model = compile_model(build_lattice("square", (6, 4), STRIP), terms, DomainWall(wall, 2.5))
+    model = compile_model(build_lattice("square", (6, 4), STRIP), terms, wall=DomainWall(wall, 2.5))
     heis, q3 = strip_terms(6, 4, 0.7, 1.3, wall, 2.5)
     assert _terms_of(model) == _terms_of_exact(heis, q3)
     assert model.group_constant[0] == pytest.approx(0.25 * sum(J for J, _, _ in heis), rel=1e-13)
@@ -100,12 +103,28 @@ def test_pinning_needs_an_open_periodic_square_strip():
                            (build_lattice("chain", 8, "open"), "domain_wall.lattice")]:
         terms = [HeisenbergTerm("nn", 1.0)]
         with pytest.raises(ModelError) as err:
-            compile_model(lattice, terms, DomainWall("pi", 2.0))
+            compile_model(lattice, terms, wall=DomainWall("pi", 2.0))
         assert err.value.where == where
     with pytest.raises(ModelError, match="finite number > 0"):
         DomainWall("pi", 0.0)
     with pytest.raises(ModelError, match="unknown wall"):
         DomainWall("pi/4", 2.0)
+
+
+@pytest.mark.parametrize("terms, colours, where", [
+    ([ProjectorTerm("nn", 1.0), ProjectorProductTerm("column-of-three", 1.0)], 3, "colors"),
+    ([XXZTerm("nn", 1.0, 0.5), ProjectorProductTerm("column-of-three", 1.0)], 2, "terms[0].type"),
+    ([HeisenbergTerm("nn", 1.0), FieldTerm(0.1)], 2, "terms[0].type"),
+])
+def test_walls_and_profiles_are_for_s_half_projector_models(terms, colours, where):
+    """SU(N) colours and directed loops (xxz, field) get neither pinned edges nor profiles: the per-column
+    energies of the profile block hold the operator counts and constants of singlet projectors only."""
+    lattice = build_lattice("square", (6, 4), STRIP)
+    assert compile_model(lattice, terms, colours=colours).site_column is None
+    with pytest.raises(ModelError) as err:
+        compile_model(lattice, terms, colours=colours, wall=DomainWall("pi", 2.0))
+    assert err.value.where == where
+    assert "domain walls" in err.value.message
 
 
 # ------------------------------------------------------------------------------------------ against ED
@@ -125,7 +144,7 @@ def simulated():
     lattice = build_lattice("square", (L_X, L_Y), STRIP)
     out = {}
     for w in WALLS:
-        sim = Simulation(compile_model(lattice, JQ3, DomainWall(w, PIN)), BETA,
+        sim = Simulation(compile_model(lattice, JQ3, wall=DomainWall(w, PIN)), BETA,
                          seed_words=stream_seed(2024, f"walls-ed:{w}"), **STEPS)
         rows = sim.advance(10**9)
         out[w] = dict(zip(sim.bin_names, rows.T, strict=True))

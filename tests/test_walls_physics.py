@@ -39,7 +39,7 @@ def _kappas(terms, name: str) -> dict[str, dict[int, tuple[float, float]]]:
         lattice = build_lattice("square", (L, L), ("open", "periodic"))
         energy = {}
         for w in WALLS:
-            sim = Simulation(compile_model(lattice, terms, DomainWall(w, 2.0)), float(L),
+            sim = Simulation(compile_model(lattice, terms, wall=DomainWall(w, 2.0)), float(L),
                              seed_words=stream_seed(77, f"{name}:L{L}:{w}"), **STEPS[name])
             rows = sim.advance(10**9)
             est = error_estimate(rows[:, sim.bin_names.index("energy")])

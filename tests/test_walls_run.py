@@ -103,6 +103,47 @@ def test_bad_domain_wall_input_is_named(tmp_path, change, key, words):
         assert w in err.value.message, err.value.message
 
 
+PROJECTOR = STRIP_CONFIG.replace('type = "heisenberg"', 'type = "projector"')
+
+
+@pytest.mark.parametrize("text, key, words", [
+    (PROJECTOR + '[model]\ncolors = 3\n' + WALLS, "model.colors", ["needs colors = 2", "not 3"]),
+    (PROJECTOR.replace("J = [0.5]", "J = [0.5]\nN = [2, 3]") + '[model]\ncolors = "N"\n' + WALLS,
+     "model.colors", ["needs colors = 2", "not 3 (for L=4, J=0.5, N=3"]),
+    (STRIP_CONFIG.replace('type = "heisenberg"', 'type = "xxz"\ndelta = 0.5') + WALLS, "terms[0].type",
+     ["cannot be combined with xxz terms", "directed loops"]),
+    (STRIP_CONFIG + '[[terms]]\ntype = "field"\ncoupling = 0.1\n' + WALLS, "terms[2].type",
+     ["cannot be combined with field terms"]),
+])
+def test_domain_walls_refuse_su_n_and_directed_loop_models(tmp_path, text, key, words):
+    """The edges and profiles are made (and checked against exact diagonalization) for S = 1/2 models of
+    singlet projectors; SU(N) colours and xxz/field terms are refused by name, also from the CLI."""
+    with pytest.raises(UserError) as err:
+        load_config(_write(tmp_path, text))
+    assert err.value.where.endswith(key), err.value.where
+    for w in words:
+        assert w in err.value.message, err.value.message
+    result = CliRunner().invoke(cli, ["validate", str(_write(tmp_path, text))])
+    assert result.exit_code == 2 and "Traceback" not in result.output
+
+
+def test_domain_walls_with_a_ground_state_search(tmp_path):
+    """[ground_state] with [domain_wall]: every wall task doubles its own beta; the analysis still pairs each
+    wall with its reference (no beta in the parameters)."""
+    text = (STRIP_CONFIG.replace("L = [4, 6]", "L = [4]").replace("beta = 2\n", "")
+            + WALLS.replace('["pi", "pi/2"]', '["pi"]')
+            + "[ground_state]\nstart_beta = 1.0\nmax_beta = 4.0\n")
+    config = load_config(_write(tmp_path, text))
+    assert [t.task_id for t in config.tasks()] == ["L4_J0.5_wall-none_c0", "L4_J0.5_wall-pi_c0"]
+    assert all(t.ground_state is not None and t.beta == 1.0 for t in config.tasks())
+    runner = CliRunner()
+    assert runner.invoke(cli, ["run", str(_write(tmp_path, text)), "--quiet"]).exit_code == 0
+    result = runner.invoke(cli, ["analyze", str(tmp_path / "run"), "--json"])
+    assert result.exit_code == 0, result.output
+    (entry,) = json.loads(result.output)["domain_wall"]
+    assert entry["wall"] == "pi" and np.isfinite(entry["kappa"]) and entry["kappa_err"] > 0
+
+
 def test_domain_walls_refuse_replica_exchange(tmp_path):
     text = STRIP_CONFIG.replace("J = [0.5]", "J = [0.5, 0.6]") + WALLS + '[exchange]\nalong = "J"\n'
     with pytest.raises(UserError, match="cannot be combined with"):

@@ -5,8 +5,9 @@ Model:  y(L) = y_inf + a L^(-omega)    (e.g. crossing points g*(L) -> g_c, or 1/
 fitted by weighted least squares (``scipy.optimize.curve_fit``, ``absolute_sigma=True``).  With at
 least four points ``omega`` is fitted too (bounded to ``omega_bounds``); with two or three points,
 or when the three-parameter fit fails or leaves ``omega`` undetermined, ``omega`` is fixed to
-``omega_fixed`` and only ``(y_inf, a)`` are fitted.  When chi^2/dof > 1 the parameter errors are
-scaled by sqrt(chi^2/dof) (common practice, no source).  A single point is returned as it is.
+``omega_fixed`` and only ``(y_inf, a)`` are fitted (linear: :func:`qmc.analysis.powerfit.fit_powers`).
+When chi^2/dof > 1 the parameter errors are scaled by sqrt(chi^2/dof) (common practice, no source).
+A single point cannot be extrapolated: its limit is NaN (``n_points = 1``).
 """
 
 from __future__ import annotations
@@ -16,6 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import curve_fit
+
+from .powerfit import fit_powers
 
 __all__ = ["Extrapolation", "extrapolate"]
 
@@ -45,25 +48,18 @@ def _chi2(L: np.ndarray, y: np.ndarray, e: np.ndarray, p: np.ndarray) -> float:
 
 
 def _fixed(L: np.ndarray, y: np.ndarray, e: np.ndarray, omega: float) -> Extrapolation:
-    x = L ** (-omega)
-    # weighted linear least squares y = y_inf + a x (exact, no iteration)
-    A = np.column_stack([np.ones_like(x), x]) / e[:, None]
-    coef, *_ = np.linalg.lstsq(A, y / e, rcond=None)
-    cov = np.linalg.pinv(A.T @ A)
-    chi2 = _chi2(L, y, e, np.array([coef[0], coef[1], omega]))
-    dof = L.size - 2
-    scale = np.sqrt(max(1.0, chi2 / dof)) if dof > 0 else 1.0
-    err = np.sqrt(np.diag(cov)) * scale
+    """Only (y_inf, a) fitted at fixed omega: the weighted linear fit of :mod:`qmc.analysis.powerfit`."""
+    fit = fit_powers(L, y, e, (omega,))
     return Extrapolation(
-        float(coef[0]),
-        float(err[0]),
-        float(coef[1]),
-        float(err[1]),
+        fit.limit,
+        fit.limit_err,
+        float(fit.coef[1]),
+        float(fit.errors[1]),
         float(omega),
         float("nan"),
         False,
-        chi2,
-        dof,
+        fit.chi2,
+        fit.dof,
         int(L.size),
     )
 
@@ -85,9 +81,8 @@ def extrapolate(
         nan = float("nan")
         return Extrapolation(nan, nan, nan, nan, nan, nan, False, nan, 0, 0)
     if n == 1:
-        return Extrapolation(
-            float(y_[0]), float(e_[0]), 0.0, float("nan"), float(omega_fixed), float("nan"), False, 0.0, 0, 1
-        )
+        nan = float("nan")
+        return Extrapolation(nan, nan, nan, nan, float(omega_fixed), nan, False, nan, 0, 1)
     fixed = _fixed(L_, y_, e_, omega_fixed)
     if n < 4:
         return fixed

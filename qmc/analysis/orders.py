@@ -53,7 +53,8 @@ def wall_report(points: list[dict], out: Path, warnings: list[str]) -> tuple[lis
 def order_plots(points: list[dict], coupling: str | None, walls: dict, u1: dict, hist_of: dict, out: Path
                  ) -> list[Path]:
     """kappa(L), the profiles of every point, |<cos 4 theta>|(L) and the histogram panels per coupling."""
-    from .u1 import plot_cos4_vs_L, plot_histogram_panels
+    from .plots import plot_vbs_histograms
+    from .u1 import plot_cos4_vs_L
     from .wall_plots import plot_kappa, plot_profiles
 
     pdir = out / "plots"
@@ -73,16 +74,16 @@ def order_plots(points: list[dict], coupling: str | None, walls: dict, u1: dict,
         files += plot_cos4_vs_L(u1, pdir / "cos4_vs_L")
     by_g: dict[Any, list] = {}
     for r in u1["points"]:
-        hist, rng = hist_of.get(r["task"], (None, None))
+        hist, rng, grid = hist_of.get(r["task"], (None, None, None))
         if hist is not None and rng is not None and np.asarray(hist).size and np.asarray(hist).sum() > 0:
             cos4 = f"{r['cos4']:.3f}" if np.isfinite(r["cos4"]) else "n/a"
             by_g.setdefault((r["g"], repr(r["params"])), []).append(
-                (f"L={r['L']:g}: <cos 4 theta> = {cos4}", hist, rng))
+                (f"L={r['L']:g}: <cos 4 theta> = {cos4}", hist, rng, grid))
     for (g, _), items in by_g.items():
         name = f"{coupling}{g:g}" if coupling is not None and g is not None else "all"
         title = (f"(D_x, D_y) histograms at {coupling} = {g:g}, one per size" if coupling is not None
                  and g is not None else "(D_x, D_y) histograms, one per size")
-        files += plot_histogram_panels(items, title, pdir / f"vbs_{_safe(name)}")
+        files += plot_vbs_histograms(items, pdir / f"vbs_{_safe(name)}", title=title)
     return files
 
 

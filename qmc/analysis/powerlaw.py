@@ -10,11 +10,12 @@ and leave nothing to test it, so the result then only says why.
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import curve_fit
+from scipy.optimize import OptimizeWarning, curve_fit
 
 __all__ = ["MIN_SIZES", "PowerLaw", "fit_power_law"]
 
@@ -68,8 +69,10 @@ def fit_power_law(L: Sequence[float], y: Sequence[float], y_err: Sequence[float]
     A = np.column_stack([np.ones_like(x), -x]) * w[:, None]
     (lnA, a0), *_ = np.linalg.lstsq(A, ly * w, rcond=None)
     try:
-        p, cov = curve_fit(_model, L_, y_, p0=[sign * np.exp(lnA), a0], sigma=e_, absolute_sigma=True,
-                           maxfev=20000)
+        with warnings.catch_warnings():  # an undetermined covariance is reported below, not warned about
+            warnings.simplefilter("ignore", OptimizeWarning)
+            p, cov = curve_fit(_model, L_, y_, p0=[sign * np.exp(lnA), a0], sigma=e_, absolute_sigma=True,
+                               maxfev=20000)
     except (RuntimeError, ValueError):
         return _none(int(L_.size), "the power-law fit did not converge")
     chi2 = float(np.sum(((y_ - _model(L_, *p)) / e_) ** 2))

@@ -4,7 +4,9 @@ The coupling is the scan parameter that varies between tasks other than the size
 copy index.  Candidates are numeric scalar parameters, present in every task, taking at least
 two values, and varying at fixed L (a parameter that only follows L is not a coupling).  With
 several candidates that are one-to-one functions of each other (e.g. J = 1 - Q) the
-alphabetically first is taken; otherwise the caller must name one.
+alphabetically first is taken; with independent ones, the one with the most values (then the
+alphabetically first), and the analysis is done separately for every value of the others
+(:func:`group_points`); the caller may name the coupling instead.
 
 A scan point is a dict ``{"task", "L", "beta", "g", "params", "observables", "vbs", "info"}`` built
 from a task summary (see :mod:`qmc.analysis.summary`); ``g`` is None when no coupling varies.
@@ -20,7 +22,8 @@ import numpy as np
 from .errors import AnalysisError
 from .tasks import COPY_PARAMS
 
-__all__ = ["NOT_COUPLINGS", "curves_for", "detect_coupling", "other_varying", "scan_points"]
+__all__ = ["NOT_COUPLINGS", "curves_for", "detect_coupling", "group_points", "grouping_params",
+           "other_varying", "scan_points"]
 
 NOT_COUPLINGS = ("beta", *COPY_PARAMS, "lattice", "size", "boundary", "L", "linear_size", "n_sites", "seed")
 """Parameter names never taken as the scanned coupling."""
@@ -74,9 +77,8 @@ def detect_coupling(summaries: Sequence[dict], coupling: str | None = None) -> s
         return None
     if all(_one_to_one(summaries, cands[0], k) for k in cands[1:]):
         return cands[0]
-    raise AnalysisError(
-        f"several parameters vary ({', '.join(cands)}); choose the coupling explicitly", "coupling"
-    )
+    counts = {k: len({s["params"][k] for s in summaries}) for k in cands}
+    return min(cands, key=lambda k: (-counts[k], k))
 
 
 def other_varying(summaries: Sequence[dict], coupling: str | None) -> list[str]:
@@ -88,6 +90,31 @@ def other_varying(summaries: Sequence[dict], coupling: str | None) -> list[str]:
         if len(vals) > 1:
             out.append(k)
     return out
+
+
+def grouping_params(points: Sequence[dict], extra: Sequence[str]) -> list[str]:
+    """The parameters of ``extra`` that take several values at one (L, coupling, beta): those the analysis
+    must be split by (a parameter that follows L or the coupling, e.g. N = L^2 or J = 1 - g, is not)."""
+    out = []
+    for k in extra:
+        seen: dict[tuple, str] = {}
+        for p in points:
+            v = repr(p["params"].get(k))
+            if seen.setdefault((p["L"], p["g"], p["beta"]), v) != v:
+                out.append(k)
+                break
+    return out
+
+
+def group_points(points: Sequence[dict], extra: Sequence[str]) -> list[tuple[dict[str, Any], list[dict]]]:
+    """The points split by the values of the parameters ``extra`` (each value combination once, in order of
+    first appearance), as ``(values, points)``; one group ``({}, points)`` without ``extra``."""
+    groups: dict[tuple, tuple[dict[str, Any], list[dict]]] = {}
+    for p in points:
+        values = {k: p["params"].get(k) for k in extra}
+        key = tuple(repr(v) for v in values.values())
+        groups.setdefault(key, (values, []))[1].append(p)
+    return list(groups.values())
 
 
 def scan_points(summaries: Sequence[dict], coupling: str | None) -> list[dict]:

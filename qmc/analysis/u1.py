@@ -26,7 +26,7 @@ import numpy as np
 from .powerlaw import fit_power_law
 from .walls import WALL_PARAM
 
-__all__ = ["u1_analysis", "plot_cos4_vs_L", "plot_histogram_panels"]
+__all__ = ["u1_analysis", "plot_cos4_vs_L"]
 
 
 def u1_analysis(points: Sequence[dict], coupling: str | None, extra: Sequence[str] = ()) -> dict[str, Any]:
@@ -100,15 +100,3 @@ def plot_cos4_vs_L(result: dict, base: str | Path) -> list[Path]:
     ax.legend(fontsize="x-small")
     return save_figure(fig, base)
 
-
-def plot_histogram_panels(items: Sequence[tuple[str, np.ndarray, float]], title: str,
-                          base: str | Path) -> list[Path]:
-    """One row of (D_x, D_y) histograms, one panel per size, under a common ``title``."""
-    from .plots import draw_vbs_histogram, new_figure, save_figure
-
-    n = len(items)
-    fig, axes = new_figure(1, n, size=(3.0 * n, 3.4))
-    for ax, (label, hist, r) in zip(axes[0], items, strict=True):
-        draw_vbs_histogram(ax, hist, r, label)
-    fig.suptitle(title, fontsize="small")
-    return save_figure(fig, base)

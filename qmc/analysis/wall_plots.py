@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .plots import new_figure, save_figure
+from . import plots  # looked up at call time (tests replace plots.save_figure)
 from .walls import REFERENCES, profiles_of, series_label
 
 __all__ = ["plot_kappa", "plot_profiles", "log_axes"]
@@ -41,7 +41,7 @@ def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[st
                ) -> list[Path]:
     """Left: kappa versus L (log-log) with the fits; right: kappa L versus L.  Non-positive kappa values are
     drawn on the right panel only."""
-    fig, axes = new_figure(1, 2, size=(11.0, 4.2))
+    fig, axes = plots.new_figure(1, 2, size=(11.0, 4.2))
     left, right = axes[0]
     groups: list[dict] = []
     for f in fits:  # one colour per coupling, one marker and line style per wall
@@ -78,7 +78,7 @@ def plot_kappa(entries: Sequence[dict], fits: Sequence[dict], sizes: Sequence[st
     right.set_ylabel("kappa L")
     right.set_xticks(sorted({float(e["L"]) for e in entries}))
     right.set_title("kappa L: grows with L in a valence-bond solid", fontsize="small")
-    return save_figure(fig, base)
+    return plots.save_figure(fig, base)
 
 
 def plot_profiles(points: Sequence[dict], title: str, base: str | Path) -> list[Path]:
@@ -86,7 +86,7 @@ def plot_profiles(points: Sequence[dict], title: str, base: str | Path) -> list[
     per site relative to the reference with the same edge, e(x) - e_ref(x) (for the pi/2 wall: "none" on
     the left half, "none-x" on the right half), whose sum over x is kappa up to statistical errors (n_c =
     L_y sites per column; exactly so on average, by the mirror symmetry of the references)."""
-    fig, axes = new_figure(1, 3, size=(13.0, 3.8))
+    fig, axes = plots.new_figure(1, 3, size=(13.0, 3.8))
     panels = (("D_x", "x-dimer order D_x(x)"), ("D_y", "y-dimer order D_y(x)"))
     order = {"none": 0, "none-x": 1, "pi/2": 2, "pi": 3}
     by_wall = {str(p["params"].get("wall")): p for p in points}
@@ -125,4 +125,4 @@ def plot_profiles(points: Sequence[dict], title: str, base: str | Path) -> list[
     if axes[0][2].has_data():
         axes[0][2].legend(fontsize="x-small")
     fig.suptitle(title, fontsize="small")
-    return save_figure(fig, base)
+    return plots.save_figure(fig, base)

@@ -9,11 +9,20 @@ message names both layouts and the release that can continue them).
 Layouts:
 
 1. checkpoints without a ``layout`` entry (seriesloop 0.1.0): spins, ops, counters, rng, acc, hist, steps;
-2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number.
-3. the accumulator ``acc`` may end in a profile block (:func:`qmc.engine.slots.profile_start`: dimer
-   sums per column and operator counts per term), present only for models that measure profiles along x
-   (strips open along x, new with this layout).  Layout 2 is
-   migrated by raising the number: no model of layout 2 had profiles, so its arrays mean the same.
+2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number;
+3. layout 2 plus ``above`` (int32, the per-slot colours of the SU(N) colour kind, ``Chain.above``; empty for
+   S = 1/2 models).  Layout 2 is migrated by adding an empty ``above`` (it only held S = 1/2 models).
+4. layout 3, and ``counters`` has four entries (n, directed loops per step, frozen flag, unused; see
+   :mod:`qmc.chain.simulation`); models with directed loops have accumulator slots after the groups
+   (:mod:`qmc.engine.slots`).  Layout 3 (no directed-loop models) is migrated by padding ``counters`` with
+   zeros (a layout-3 state without ``above``, as the directed-loop development branch wrote it, also gets
+   the empty ``above``).
+5. layout 4, and the accumulator ``acc`` may end in a profile block (:func:`qmc.engine.slots.profile_start`:
+   dimer sums per column and operator counts per term), present only for models that measure profiles
+   along x (strips open along x, new with this layout).  Layout 4 is migrated by raising the number: no
+   model of layout 4 had profiles, so its arrays mean the same.  (The domain-wall development branch wrote
+   such profile blocks under its own number 3, without ``above`` and with one counter; the 3 -> 4 step
+   above pads those the same way, so its checkpoints also continue.)
 """
 
 from __future__ import annotations
@@ -26,12 +35,14 @@ from qmc.errors import UserError
 
 __all__ = ["CHECKPOINT_LAYOUT", "STATE_KEYS", "LAYOUT_KEY", "current_layout"]
 
-CHECKPOINT_LAYOUT = 3
-STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
+CHECKPOINT_LAYOUT = 5
+STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps", "above")
 LAYOUT_KEY = "layout"
 
-_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without profiles",
-             3: "the releases with profiles along x"}
+_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without SU(N) models",
+             3: "the releases with SU(N) models but without directed loops",
+             4: "the releases with directed loops but without profiles along x",
+             5: "the releases with profiles along x"}
 """The releases that write each layout (named in the refusal message)."""
 
 
@@ -40,11 +51,26 @@ def _from_layout_1(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
 
 
 def _from_layout_2(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    return {**state, LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
+    return {**state, "above": np.zeros(0, dtype=np.int32), LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
+
+
+def _from_layout_3(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    counters = np.zeros(4, dtype=np.int64)
+    old = np.asarray(state["counters"], dtype=np.int64).reshape(-1)
+    counters[:old.size] = old
+    out = {**state, "counters": counters, LAYOUT_KEY: np.asarray(4, dtype=np.int64)}
+    out.setdefault("above", np.zeros(0, dtype=np.int32))
+    return out
+
+
+def _from_layout_4(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    return {**state, LAYOUT_KEY: np.asarray(5, dtype=np.int64)}
 
 
 _MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1,
-                                                                                    2: _from_layout_2}
+                                                                                     2: _from_layout_2,
+                                                                                     3: _from_layout_3,
+                                                                                     4: _from_layout_4}
 """layout n -> function turning a layout-n state into a layout-(n+1) state."""
 
 

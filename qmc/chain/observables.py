@@ -1,5 +1,12 @@
 """Per-bin observables from the raw sums of :mod:`qmc.engine.steps` (names are the project's contract).
 
+The formulas below are written for S = 1/2 spins.  For N colours per site (the SU(N) colour kind) every name
+is kept and the same formulas hold with S^z_i replaced through the staggered colour order,
+phi_i S^z_i -> delta(c_i, 0) - 1/N (so M_s/N -> m_s = N^(-1) sum_i (delta(c_i, 0) - 1/N)), the uniform
+sum_i S^z_i -> the conserved colour-0 charge sum_i phi_i (delta(c_i, 0) - 1/N), the up-spin winding -> the
+winding of colour 0, and S^z_i S^z_j -> -B_ij / 2 with B_ij = delta(c_i, c_j) - 1/N; at N = 2 each of these
+is the S = 1/2 quantity itself (derivation in :mod:`qmc.engine.colour`).
+
 N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t prod P as in
 :mod:`models.compiled`; a bin holds averages over ``steps_per_bin`` Monte Carlo steps.
 
@@ -7,7 +14,9 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``energy``         <H>/N = (E_const - <n>/beta)/N  (H exactly as written, constants included)
 ``n_ops``          <n>, expansion order (raw moment)
 ``n_ops_sq``       <n^2> (raw moment); specific heat per site C/N = (<n^2> - <n>^2 - <n>)/N by jackknife
-``chi_uniform``    beta <(sum_i S^z_i)^2>/N
+``chi_uniform``    beta <(sum_i S^z_i)^2>/N (models without directed loops: <sum_i S^z_i> = 0)
+``magnetization``  <M>/N, M = sum_i S^z_i (models with directed loops: xxz or field terms)
+``m_uniform2``     <(M/N)^2> (directed loops); chi_uniform = beta N (m_uniform2 - magnetization^2), jackknife
 ``m_stag2``        <(M_s/N)^2>, M_s = sum_i phi_i S^z_i, time-averaged over the propagated states
 ``m_stag4``        <(M_s/N)^4>; binder_stag = m_stag4 / m_stag2^2 by jackknife
 ``chi_stag``       (1/N) int_0^beta <M_s(tau) M_s(0)> dtau
@@ -22,8 +31,9 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``vbs_x2``         <D_x^2>, D_x = (1/N) sum_r (-1)^x S^z_r S^z_{r+x}; likewise ``vbs_y2``
 ``vbs4``           <(D_x^2 + D_y^2)^2>; VBS Binder ratio vbs4 / (vbs_x2 + vbs_y2)^2
 ``vbs_cos4``       <cos 4 theta> of (D_x, D_y) = |D| (cos theta, sin theta)
-``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N; a group is the
-                   terms of one [[terms]] block or one bond class (Heisenberg and projector-product alike)
+``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta + sum_i f_{g,i} <S^z_i>)/N
+                   (f: ``group_field``, the field folded into the directed bonds, zero without fields); a
+                   group is the terms of one [[terms]] block or one bond class (all term types alike)
 =================  ===========================================================================================
 
 On strips open along x and periodic along y (models with ``site_column``) the bins also hold the profiles
@@ -37,7 +47,8 @@ import numpy as np
 
 from qmc.chain.profiles import profile_names, profile_size, profile_values
 from qmc.engine import slots as S
-from qmc.models.compiled import CompiledModel
+from qmc.engine.directed import X_FIELD, X_MZ
+from qmc.models.compiled import KIND_DIRECTED, CompiledModel
 
 __all__ = ["RENAMED_OBSERVABLES", "bin_names", "bin_row"]
 
@@ -48,7 +59,8 @@ task files written before the rename."""
 
 def bin_names(model: CompiledModel) -> tuple[str, ...]:
     """Column names of a bin row for this model (order matches :func:`bin_row`)."""
-    names = ["energy", "n_ops", "n_ops_sq", "chi_uniform", "m_stag2", "m_stag4", "chi_stag", "s_q"]
+    uniform = ["magnetization", "m_uniform2"] if _directed(model) else ["chi_uniform"]
+    names = ["energy", "n_ops", "n_ops_sq", *uniform, "m_stag2", "m_stag4", "chi_stag", "s_q"]
     if _has_winding(model):
         names += ["s_q_shifted", "stiffness"] + [f"stiffness/{d}" for d in model.dir_names]
     elif model.n_dirs > 0:
@@ -64,6 +76,10 @@ def bin_names(model: CompiledModel) -> tuple[str, ...]:
     names += [f"term_energy/{g}" for g in model.group_names]
     names += profile_names(model)
     return tuple(names)
+
+
+def _directed(model: CompiledModel) -> bool:
+    return bool(np.any(model.group_kind == KIND_DIRECTED))
 
 
 def _has_winding(model: CompiledModel) -> bool:
@@ -94,10 +110,16 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
         vals["stiffness"] = float(np.mean(rho))
         for d, name in enumerate(model.dir_names):
             vals[f"stiffness/{name}"] = rho[d]
+    n_groups = len(model.group_names)
+    if _directed(model):
+        kind = S.A_GROUP + n_groups
+        vals["magnetization"] = a[kind + X_MZ] / n
+        vals["m_uniform2"] = a[S.A_MZ2] / n**2
     for g, name in enumerate(model.group_names):
         vals[f"term_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
+        if _directed(model):
+            vals[f"term_energy/{name}"] += a[S.A_GROUP + n_groups + X_FIELD + g] / n
     if model.n_columns:
-        start = S.profile_start(len(model.group_names))
-        block = a[start:S.acc_size(len(model.group_names), *profile_size(model))]
+        block = a[a.size - S.profile_length(*profile_size(model)):]  # the last block (qmc.engine.slots)
         vals.update(zip(profile_names(model), profile_values(model, beta, block), strict=True))
     return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import re
+from collections.abc import Iterator
 from typing import Any
 
 import qmc.models as models
@@ -12,7 +13,7 @@ from qmc.config.tasks import Task
 from qmc.errors import UserError
 from qmc.models import CompiledModel, ModelError
 
-__all__ = ["build_model", "validate"]
+__all__ = ["build_model", "distinct_models", "validate"]
 
 
 def build_model(task: Task) -> CompiledModel:
@@ -29,9 +30,12 @@ def build_model(task: Task) -> CompiledModel:
     except ModelError as exc:
         raise _located(exc.within("lattice"), task) from None
     terms = []
+    classes = {"heisenberg": models.HeisenbergTerm, "projector": models.ProjectorTerm,
+               "projector-product": models.ProjectorProductTerm, "xxz": models.XXZTerm,
+               "field": models.FieldTerm}
     for i, d in enumerate(task.terms):
         kwargs = {k: v for k, v in d.items() if k != "type"}
-        cls = models.HeisenbergTerm if d["type"] == "heisenberg" else models.ProjectorProductTerm
+        cls = classes[d["type"]]
         try:
             terms.append(cls(**kwargs))
         except ModelError as exc:
@@ -41,7 +45,7 @@ def build_model(task: Task) -> CompiledModel:
         d = task.domain_wall
         wall = models.DomainWall(wall=d["wall"], pin=d["pin"], pattern=d["pattern"])
     try:
-        return models.compile_model(lat, terms, wall)
+        return models.compile_model(lat, terms, colours=task.colors, wall=wall)
     except ModelError as exc:
         raise _located(exc, task) from None
 
@@ -64,16 +68,20 @@ def _located(exc: ModelError, task: Task) -> UserError:
     return UserError(f"{exc.message} (task {task.task_id})", where)
 
 
+def distinct_models(config: RunConfig) -> Iterator[tuple[Task, CompiledModel]]:
+    """Every distinct model of the run, built once (one after the other), with the first task that has it."""
+    seen: set[str] = set()
+    for task in config.tasks():
+        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms,
+                          task.colors, task.domain_wall], sort_keys=True, default=list)
+        if key not in seen:
+            seen.add(key)
+            yield task, build_model(task)
+
+
 def validate(config: RunConfig) -> int:
     """Build every distinct model of the run once, so that model errors surface before any run starts.
 
     Returns the number of distinct models built.
     """
-    seen: set[str] = set()
-    for task in config.tasks():
-        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms,
-                          task.domain_wall], sort_keys=True, default=list)
-        if key not in seen:
-            seen.add(key)
-            build_model(task)
-    return len(seen)
+    return sum(1 for _ in distinct_models(config))

@@ -6,8 +6,17 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from qmc.config.fingerprint import fingerprint
-from qmc.config.schema import DomainWallSpec, LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.fingerprint import fingerprint, physics_fingerprint
+from qmc.config.schema import (
+    DomainWallSpec,
+    GroundState,
+    LatticeSpec,
+    ModelSection,
+    RunSection,
+    Sampling,
+    ScanEntry,
+    TermSpec,
+)
 from qmc.config.tasks import Task, expand_tasks
 
 __all__ = ["RunConfig", "config_fingerprint"]
@@ -15,8 +24,9 @@ __all__ = ["RunConfig", "config_fingerprint"]
 
 @dataclass(eq=False)
 class RunConfig:
-    """A loaded configuration: parsed sections (``domain_wall`` None without that section), the raw ``text``
-    and ``data``, the file ``path`` and the resolved absolute ``output_dir``."""
+    """A loaded configuration: parsed sections (``model`` is [model]), the raw ``text`` and ``data``, the file
+    ``path``, the resolved absolute ``output_dir``, ``[ground_state]`` and ``[domain_wall]`` (None without
+    them)."""
 
     path: Path
     text: str
@@ -27,6 +37,8 @@ class RunConfig:
     scan: tuple[ScanEntry, ...]
     sampling: Sampling
     output_dir: Path
+    model: ModelSection = field(default_factory=ModelSection)
+    ground_state: GroundState | None = None
     domain_wall: DomainWallSpec | None = None
     _tasks: tuple[Task, ...] | None = field(default=None, repr=False)
 
@@ -46,12 +58,17 @@ class RunConfig:
         """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner."""
         if self._tasks is None:
             self._tasks = tuple(expand_tasks(str(self.path), self.run, self.lattice, self.terms, self.scan,
-                                             self.sampling, self.domain_wall))
+                                             self.sampling, self.model, self.ground_state, self.domain_wall))
         return list(self._tasks)
 
     def fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.fingerprint`."""
-        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.domain_wall)
+        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.model,
+                           self.ground_state, self.domain_wall)
+
+    def physics_fingerprint(self) -> str:
+        """See :func:`qmc.config.fingerprint.physics_fingerprint`."""
+        return physics_fingerprint(self.run, self.lattice, self.terms, self.model, self.domain_wall)
 
 
 def config_fingerprint(config: RunConfig) -> str:

@@ -1,5 +1,7 @@
-"""The [scan] section: scanned values, ranges and derived expressions, and the checks that tie scan names
-to the rest of the configuration (every name used exists and is used; the exchanged coupling is valid).
+"""The [scan] section: scanned values, ranges, derived expressions and lists of expressions (e.g.
+``beta = ["L", "2*L"]``: every point twice, at beta = L and at beta = 2L), and the checks that tie scan
+names to the rest of the configuration (every name used exists and is used; the exchanged coupling is
+valid).
 """
 
 from __future__ import annotations
@@ -9,7 +11,16 @@ from typing import Any
 
 from qmc.config.expressions import Number, format_number
 from qmc.config.reader import TableReader
-from qmc.config.schema import MAX_TASKS, NAME_RE, RESERVED_NAMES, LatticeSpec, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import (
+    MAX_TASKS,
+    NAME_RE,
+    RESERVED_NAMES,
+    LatticeSpec,
+    ModelSection,
+    Sampling,
+    ScanEntry,
+    TermSpec,
+)
 from qmc.errors import describe_value, did_you_mean
 
 __all__ = ["parse_scan", "check_names", "check_exchange", "round_value"]
@@ -23,10 +34,15 @@ def round_value(v: Number) -> Number:
     return 0.0 if v == 0 else v
 
 
-def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
-    """The ``[scan]`` entries in file order; checks names, values and references between entries."""
+def parse_scan(r: TableReader, ground_state: bool = False) -> tuple[ScanEntry, ...]:
+    """The ``[scan]`` entries in file order; checks names, values and references between entries.  With a
+    ``[ground_state]`` section (``ground_state``) beta is set by beta doubling and must not be scanned."""
     t = r.table("scan", required=False)
-    if "beta" not in t:
+    if ground_state and "beta" in t:
+        raise r.fail("scan.beta", "with [ground_state] every task finds its own beta by doubling it from "
+                                  "start_beta up to max_beta: remove beta from [scan], or remove "
+                                  "[ground_state] to run at the scanned temperatures")
+    if "beta" not in t and not ground_state:
         raise r.fail("scan.beta", "missing required key 'beta' in [scan]: the inverse temperature "
                                   '(a number, a list, a range table, or an expression such as "2*L")')
     entries = []
@@ -39,6 +55,9 @@ def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
             raise r.fail(key, f"'{name}' is a reserved name ({RESERVED_NAMES[name]})")
         if isinstance(value, str):
             entries.append(ScanEntry(name=name, expression=r.expression(key, value)))
+            continue
+        if isinstance(value, list) and any(isinstance(v, str) for v in value):
+            entries.append(_choices(r, key, name, value))
             continue
         if isinstance(value, bool) or not isinstance(value, int | float | list | dict):
             raise r.fail(key, "must be a number, a list of numbers, a range {start, stop, num} or an "
@@ -59,21 +78,32 @@ def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
                                   f"(entries {seen[v]} and {i})")
             seen[v] = i
         entries.append(ScanEntry(name=name, values=tuple(values)))
-    base = {e.name for e in entries if not e.derived}
+    base = {e.name for e in entries if not e.derived and not e.choices}
     for e in entries:
-        if e.derived:
-            for ref in e.expression.names:
+        for i, expr in enumerate((e.expression,) if e.derived else e.choices):
+            key = f"scan.{e.name}" if e.derived else f"scan.{e.name}[{i}]"
+            for ref in expr.names:
                 if ref not in t:
-                    raise r.fail(f"scan.{e.name}", e.expression.unknown_name_message(ref)
-                                 + did_you_mean(ref, base))
+                    raise r.fail(key, expr.unknown_name_message(ref) + did_you_mean(ref, base))
                 if ref not in base:
-                    raise r.fail(f"scan.{e.name}", f"{e.expression.text!r} uses '{ref}', which is "
-                                                   "itself an expression; use scanned values only")
-    count = math.prod(len(e.values) for e in entries if not e.derived)
+                    raise r.fail(key, f"{expr.text!r} uses '{ref}', which is itself an expression; use "
+                                      "scanned values only")
+    count = math.prod(e.count for e in entries)
     if count > MAX_TASKS:
         raise r.fail("scan", f"the scan has {count} parameter points; more than {MAX_TASKS} is "
                              "surely a mistake")
     return tuple(entries)
+
+
+def _choices(r: TableReader, key: str, name: str, value: list[Any]) -> ScanEntry:
+    """A list with expressions of other entries: one task per item at every point of the others."""
+    exprs = tuple(r.expression(f"{key}[{i}]", v) for i, v in enumerate(value))
+    seen: dict[str, int] = {}
+    for i, e in enumerate(exprs):
+        if e.canonical in seen:
+            raise r.fail(key, f"the value {e.text!r} appears twice (entries {seen[e.canonical]} and {i})")
+        seen[e.canonical] = i
+    return ScanEntry(name=name, choices=exprs)
 
 
 def _range(r: TableReader, key: str, value: dict[str, Any]) -> list[Number]:
@@ -94,11 +124,15 @@ def _range(r: TableReader, key: str, value: dict[str, Any]) -> list[Number]:
 
 
 def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling) -> None:
-    """Every scan name used in lattice.size, a coupling or beta exists, and every scan entry is used."""
+                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None) -> None:
+    """Every scan name used in model.colors, lattice.size, a coupling or beta exists, and every scan entry is
+    used."""
+    model = model or ModelSection()
     entries = {e.name: e for e in scan}
-    uses = [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
+    uses = [("model.colors", model.colors)] if model.colors is not None else []
+    uses += [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
     uses += [(f"terms[{i}].coupling", t.coupling) for i, t in enumerate(terms)]
+    uses += [(f"terms[{i}].delta", t.delta) for i, t in enumerate(terms) if t.delta is not None]
     for key, expr in uses:
         for ref in expr.names:
             if ref not in entries:
@@ -108,35 +142,45 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     for _, expr in uses:
         used.update(expr.names)
     for name in list(used):
-        if name in entries and entries[name].derived:
-            used.update(entries[name].expression.names)
+        if name in entries:
+            used.update(entries[name].needs)
     for e in scan:
         if e.name not in used:
             raise r.fail(f"scan.{e.name}", f"scan.{e.name} is never used: refer to it in "
-                                           "lattice.size, a [[terms]] coupling or beta, or remove it")
-    check_exchange(r, sampling.exchange, lattice, terms, entries)
+                                           "model.colors, lattice.size, a [[terms]] coupling or delta, "
+                                           "or beta, or remove it")
+    check_exchange(r, sampling.exchange, lattice, terms, entries, model)
 
 
 def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                   entries: dict[str, ScanEntry]) -> None:
+                   entries: dict[str, ScanEntry], model: ModelSection | None = None) -> None:
     """``[exchange] along`` names a scanned coupling with at least two values that changes neither the
-    lattice nor beta (swaps are only defined between chains of the same lattice and temperature)."""
+    lattice, nor the number of colours, nor beta (swaps are only defined between chains of the same lattice,
+    states and temperature)."""
     if name is None:
         return
     key = "exchange.along"
+    directed = [i for i, t in enumerate(terms) if t.type in ("xxz", "field")]
+    if directed:
+        raise r.fail(key, f"replica exchange is not available with {terms[directed[0]].type} terms "
+                          f"(terms[{directed[0]}]): their directed-loop weights are not powers of one "
+                          "coupling, which the swap rule assumes; remove [exchange]")
     if name not in entries:
         raise r.fail(key, f"'{name}' is not a scan name{did_you_mean(name, entries)}")
     entry = entries[name]
-    if entry.derived:
+    if entry.derived or entry.choices:
         raise r.fail(key, f"'{name}' is an expression; replica exchange needs a scanned coupling")
     if not any(name in t.coupling.names for t in terms):
         raise r.fail(key, f"'{name}' is not a scanned coupling: replica exchange needs a scan name used "
                           "as a [[terms]] coupling")
-    affected = {name} | {e.name for e in entries.values() if e.derived and name in e.expression.names}
+    affected = {name} | {e.name for e in entries.values() if name in e.needs}
     for i, expr in enumerate(lattice.size):
         if affected & set(expr.names):
             raise r.fail(key, f"'{name}' changes {lattice.size_key(i)}; configurations can only be "
                               "exchanged between tasks on the same lattice")
+    if model is not None and model.colors is not None and affected & set(model.colors.names):
+        raise r.fail(key, f"'{name}' changes model.colors; configurations can only be exchanged between "
+                          "tasks with the same number of colours")
     if "beta" in affected:
         raise r.fail(key, f"'{name}' changes beta; replica exchange is only along a coupling at fixed beta")
     if len(entry.values) < 2:

@@ -1,6 +1,8 @@
 """Scan expansion: every point of the scan times every independent copy is one :class:`Task`.
 
-Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``.
+Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``; an
+entry that lists expressions enters with its value at the point (``beta = ["L", "2*L"]`` gives
+``L8_beta8_c0`` and ``L8_beta16_c0``; ``c0`` alone for a ground-state search without scanned values).
 The random stream of a task is ``stream_seed(seed, seed_key)`` with ``seed_key`` built from the sorted
 parameter values and the copy index only, so it depends neither on the order of the scan, nor on the
 task id's text, nor on where the task runs.
@@ -16,19 +18,24 @@ import itertools
 from dataclasses import dataclass
 from typing import Any
 
+import qmc.models as models
 from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    SIGNED_TERMS,
     WALL_PARAM,
     DomainWallSpec,
+    GroundState,
     LatticeSpec,
+    ModelSection,
     RunSection,
     Sampling,
     ScanEntry,
     TermSpec,
     check_coupling,
 )
+from qmc.config.walls import check_wall_colors
 from qmc.errors import UserError
 
 __all__ = ["Task", "expand_tasks", "canonical_number", "WALL_TAGS"]
@@ -46,12 +53,14 @@ class Task:
     ``terms`` are dicts whose keys other than ``type`` are the keyword arguments of the models term
     classes (``bonds``/``shape``, numeric ``coupling``, optional ``symmetrize``, ``name``).  ``explicit`` is
     ``{"sites", "bonds", "classes"}`` for an explicit lattice, else None.  ``params`` holds the scan values
-    and ``copy``.  The random stream of the task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
+    and ``copy``; ``colors`` is the number of colours per site (2: S = 1/2 spins).  The random stream of the
+    task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
     names the replica-exchange ladder the task belongs to (tasks that differ only in the exchanged
     parameter ``exchange`` share it), or is None without exchange; the ladder's swap decisions draw from
-    ``stream_seed(seed, exchange_seed_key)``.  ``boundary`` is one word or one per direction;
-    ``domain_wall`` is ``{"wall", "pattern", "pin"}`` for a task of ``[domain_wall]`` (``params["wall"]``
-    then holds the wall), else None.
+    ``stream_seed(seed, exchange_seed_key)``.  With ``ground_state`` (``[ground_state]``) ``beta`` is the
+    first stage's, ``start_beta``, and the task doubles it (:mod:`qmc.chain.doubling`).  ``boundary`` is one
+    word or one per direction; ``domain_wall`` is ``{"wall", "pattern", "pin"}`` for a task of
+    ``[domain_wall]`` (``params["wall"]`` then holds the wall), else None.
     """
 
     task_id: str
@@ -70,6 +79,8 @@ class Task:
     exchange_seed_key: str | None = None
     explicit: dict[str, Any] | None = None
     source: str = ""
+    colors: int = 2
+    ground_state: GroundState | None = None
     domain_wall: dict[str, Any] | None = None
 
 
@@ -79,7 +90,8 @@ def canonical_number(v: Number) -> str:
 
 
 def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                 scan: tuple[ScanEntry, ...], sampling: Sampling, domain_wall: DomainWallSpec | None = None
+                 scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None,
+                 ground_state: GroundState | None = None, domain_wall: DomainWallSpec | None = None
                  ) -> list[Task]:
     """All tasks: cartesian product of the scan entries in file order (first slowest), the walls of
     ``domain_wall`` (if any) next, copies inner.
@@ -89,29 +101,37 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
     """
     base = [e for e in scan if not e.derived]
     derived = [e for e in scan if e.derived]
+    plain = [e for e in base if not e.choices]
     exchange = sampling.exchange
     explicit = None
     if lattice.kind == EXPLICIT:
         explicit = {"sites": lattice.sites, "bonds": lattice.bonds, "classes": lattice.classes}
     tasks: list[Task] = []
-    for combo in itertools.product(*(e.values for e in base)):
-        values: dict[str, Number] = dict(zip((e.name for e in base), combo, strict=True))
+    for combo in itertools.product(*(e.choices or e.values for e in base)):
+        picked = dict(zip((e.name for e in base), combo, strict=True))
+        values: dict[str, Number] = {e.name: picked[e.name] for e in plain}
         context = " (for " + ", ".join(f"{k}={format_number(v)}" for k, v in values.items()) + ")"
+        for e in base:
+            if e.choices:
+                values[e.name] = _choice(source, e, picked[e.name], values, context)
         for e in derived:
             values[e.name] = e.expression.evaluate(values, f"{source}: scan.{e.name}")
         params = {e.name: values[e.name] for e in scan}
-        beta = values["beta"]
+        beta = values["beta"] if ground_state is None else ground_state.start_beta
         if not beta > 0:
             others = ", ".join(f"{k}={format_number(v)}" for k, v in values.items() if k != "beta")
             raise UserError(f"beta = {format_number(beta)}" + (f" (for {others})" if others else "")
                             + " must be positive", f"{source}: scan.beta")
         size = _resolve_size(source, lattice, values, context)
+        colors = _resolve_colors(source, model or ModelSection(), terms, values, context)
         resolved = [_resolve_term(source, i, t, values, context) for i, t in enumerate(terms)]
         label = "_".join(f"{e.name}{format_number(values[e.name])}" for e in base)
         key = ";".join(f"{k}={canonical_number(params[k])}" for k in sorted(params))
         rest = [f"{e.name}{format_number(values[e.name])}" for e in base if e.name != exchange]
         if domain_wall is not None:
             _check_strip(source, lattice, size, context)
+            if colors > 2:
+                check_wall_colors(colors, f"{source}: model.colors", context if model.colors.names else "")
         for wall in domain_wall.tasks if domain_wall is not None else (None,):
             point, wall_key, edges = dict(params), key, None
             if wall is not None:
@@ -119,18 +139,21 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
                 wall_key = (f"{key};wall={wall};pattern={domain_wall.pattern};"
                             f"pin={canonical_number(domain_wall.pin)}")
                 edges = {"wall": wall, "pattern": domain_wall.pattern, "pin": domain_wall.pin}
-            tag = label if wall is None else f"{label}_wall-{WALL_TAGS[wall]}"
+            tag = [label] if label else []
+            if wall is not None:
+                tag.append(f"wall-{WALL_TAGS[wall]}")
             for c in range(sampling.copies):
                 group = "_".join([*rest, f"c{c}"]) if exchange is not None else None
                 # The seed keys below are frozen: their text fixes every random stream, so it keeps the
                 # word "replica" (the copy index's name in earlier releases) and the old group label.
                 ladder_key = "exchange:" + "_".join([*rest, f"r{c}"]) if exchange is not None else None
                 tasks.append(Task(
-                    task_id=f"{tag}_c{c}", params={**point, COPY_PARAM: c}, lattice_kind=lattice.kind,
+                    task_id="_".join([*tag, f"c{c}"]), params={**point, COPY_PARAM: c},
+                    lattice_kind=lattice.kind,
                     size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
                     copy=c, sampling=sampling, seed_key=f"{wall_key};replica={c}", exchange=exchange,
                     seed=run.seed, exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit,
-                    source=source, domain_wall=edges))
+                    source=source, colors=colors, ground_state=ground_state, domain_wall=edges))
     return tasks
 
 
@@ -146,17 +169,59 @@ def _check_strip(source: str, lattice: LatticeSpec, size: tuple[int, ...], conte
                         f"{source}: {lattice.size_key(1)}")
 
 
+def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], context: str) -> Number:
+    """The value of one choice of a list of expressions; two choices of equal value at one point would
+    make two equal tasks, and are refused."""
+    where = f"{source}: scan.{e.name}"
+    value = expr.evaluate(values, where)
+    others = [c for c in e.choices if c is not expr and c.evaluate(values, where) == value]
+    if others:
+        raise UserError(f"{expr.text!r} and {others[0].text!r} are both {format_number(value)}{context}: one "
+                        "task would be run twice", where)
+    return value
+
+
+def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...], values: dict[str, Number],
+                    context: str) -> int:
+    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg,
+    xxz or field term (they are defined through S = 1/2 spin operators)."""
+    if model.colors is None:
+        return 2
+    where = f"{source}: model.colors"
+    v = model.colors.evaluate(values, where)
+    if float(v) != int(v) or not 2 <= v <= models.MAX_COLOURS:
+        raise UserError(f"colors = {format_number(v)}{context if model.colors.names else ''} must be a whole "
+                        f"number from 2 to {models.MAX_COLOURS}", where)
+    v = int(v)
+    for i, t in enumerate(terms):
+        if v > 2 and t.type == "heisenberg":
+            raise UserError(f"a heisenberg term (S_i.S_j of S = 1/2 spins) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}; for SU({v}) use type = \"projector\" "
+                            "(-J sum P_ij, which for two colours is J S_i.S_j - J/4)",
+                            f"{source}: terms[{i}].type")
+        if v > 2 and t.type in ("xxz", "field"):
+            article = "an" if t.type == "xxz" else "a"
+            raise UserError(f"{article} {t.type} term (S = 1/2 spin operators) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}", f"{source}: terms[{i}].type")
+    return v
+
+
 def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
                   context: str) -> dict[str, Any]:
     where = f"{source}: terms[{i}].coupling"
     coupling = t.coupling.evaluate(values, where)
-    check_coupling(coupling, where, context)
+    if t.type not in SIGNED_TERMS:
+        check_coupling(coupling, where, context)
     d: dict[str, Any] = {"type": t.type}
-    if t.type == "heisenberg":
+    if t.type in ("heisenberg", "projector", "xxz"):
         d["bonds"] = t.bonds
-    else:
+    elif t.type == "projector-product":
         d["shape"] = t.shape
     d["coupling"] = float(coupling)
+    if t.delta is not None:
+        d["delta"] = float(t.delta.evaluate(values, f"{source}: terms[{i}].delta"))
+    if t.staggered is not None:
+        d["staggered"] = t.staggered
     if t.symmetrize is not None:
         d["symmetrize"] = t.symmetrize
     if t.name is not None:

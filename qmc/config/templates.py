@@ -7,6 +7,8 @@ Sources of the transition points named in the comments (they only set the scan w
 bilayer g_c = 2.5220(1), Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006) (also the reference of
 tests/test_end_to_end.py); columnar dimer g_c ~ 1.91, J-Q2 (J/Q)_c ~ 0.045 and J-Q3 (J/Q)_c ~ 0.67 are
 from memory (a scan window that misses a transition shows up as crossings at its edge in ``qmc analyze``).
+The SU(3) J-Q2 window (Q/J = 0.3 ... 0.8 around 0.5) comes from short runs of this program at L = 8, 16
+(crossing of stiffness * L).
 """
 
 from __future__ import annotations
@@ -65,25 +67,51 @@ bins = {bins}
 copies = 1
 # checkpoint_seconds: how often a running task saves its full state, so an interrupted run resumes.
 checkpoint_seconds = 300
-{ex}'''
+# target (optional): stop measuring a task as soon as these error bars are reached, absolute or relative
+# to the mean with %.  The check starts at 64 bins (the binning analysis needs them to judge its own
+# error) and looks at every bin after that; measure_steps is then only the upper limit.  A task that
+# stops this way holds exactly the first bins of the same run without a target.
+# target = {{ energy = 1e-4, m_stag2 = "0.5%" }}
+{ex}
+# Ground state instead of fixed temperatures (optional): remove beta from [scan] and uncomment the
+# section below.  Each task starts at start_beta; when its bins are done it doubles beta (its operator
+# string joined with its mirror image is a configuration at 2 beta), warms up and measures again, until
+# the observables at beta and 2 beta agree within two error bars for two doublings in a row.  At
+# max_beta it stops and `qmc summary` says that the ground state was not reached.
+# [ground_state]
+# start_beta = 2.0
+# max_beta = 512.0
+# observables = ["energy", "m_stag2"]
+'''
 
 
 _SCAN_HELP = '''\
 # Every entry is a number (fixed), a list of values, a range {start, stop, num} (num evenly spaced
-# values, both ends included), or a text expression of other entries such as "2*L", "L/2" or "0.5*g".
+# values, both ends included), a text expression of other entries such as "2*L", "L/2" or "0.5*g", or a
+# list of such expressions: beta = ["L", "2*L"] runs every point at beta = L and at beta = 2L (the
+# ground-state check of `qmc analyze` compares such pairs).
 # Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
-# temperature, in inverse units of the couplings) is required.  Every entry must be used somewhere.
+# temperature, in inverse units of the couplings) is required, unless a [ground_state] section finds each
+# task's ground state by doubling beta (see the end of this file).  Every entry must be used somewhere.
 '''
 
 _TERMS_HELP = '''\
 # The Hamiltonian is the sum of the [[terms]] blocks (numbered terms[0], terms[1], ... in messages).
 #   type = "heisenberg":        +J S_i.S_j on every bond of the bond class `bonds`; coupling = J >= 0.
-#   type = "projector-product": -Q prod (1/4 - S_i.S_j) over the bonds of `shape`, placed at every unit
-#                               cell; coupling = Q >= 0.  symmetrize = true (default) also places the
-#                               shape rotated by 90 degrees.
-# A coupling is a number or a scan name (or an expression such as "2*g").  Negative couplings have a
-# sign problem and are refused.  Each block's energy per site is measured as term_energy/<name>;
-# name = "..." sets that name.
+#   type = "projector":         -J P_ij on every bond of `bonds`, P_ij = 1/4 - S_i.S_j the singlet
+#                               projector (for N colours per site the SU(N) singlet projector).
+#   type = "projector-product": -Q prod P_ij over the bonds of `shape`, placed at every unit cell;
+#                               coupling = Q >= 0.  symmetrize = true (default) also places the shape
+#                               rotated by 90 degrees.  A shape is a name or a list of bonds, each two
+#                               unit-cell offsets with one number per lattice direction.
+#   type = "xxz":               J (S^x S^x + S^y S^y + delta S^z S^z) on every bond of `bonds`;
+#                               coupling = J, delta = the anisotropy (both numbers or scan names).
+#   type = "field":             -h sum_i S^z_i (staggered = true: -h sum_i phi_i S^z_i, phi = +-1 on
+#                               the two sublattices); coupling = h.  xxz and field terms need 2 colours.
+# A coupling is a number or a scan name (or an expression such as "2*g").  Negative heisenberg and
+# projector couplings have a sign problem and are refused; a negative xxz J (ferromagnetic in the xy
+# plane) and a field of either sign are allowed where the model stays free of the sign problem.
+# Each block's energy per site is measured as term_energy/<name>; name = "..." sets that name.
 '''
 
 _LATTICE_HELP = '''\
@@ -98,9 +126,10 @@ _CRITICAL_BETA = ("# beta = L: at these transitions time scales like length (dyn
                   "# dimensionless quantities of different sizes cross at the critical coupling.\n")
 
 
-def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling: str) -> str:
-    return "\n".join([title, run, "[lattice]\n" + _LATTICE_HELP + lattice, _TERMS_HELP + terms,
-                      "[scan]\n" + _SCAN_HELP + scan, sampling])
+def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling: str,
+             model: str = "") -> str:
+    return "\n".join([title, run, *([model] if model else []), "[lattice]\n" + _LATTICE_HELP + lattice,
+                      _TERMS_HELP + terms, "[scan]\n" + _SCAN_HELP + scan, sampling])
 
 
 TEMPLATES: dict[str, str] = {
@@ -186,6 +215,50 @@ TEMPLATES: dict[str, str] = {
         "L = [8, 12, 16]\n# J: Heisenberg coupling in units of Q, 7 values from 0.50 to 0.80.\n"
         "J = { start = 0.50, stop = 0.80, num = 7 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="J"),
+    ),
+    "su3-jq2": _compose(
+        "# SU(3) J-Q2 model: three colours per site (SU(3), fundamental representation on sublattice A,\n"
+        "# conjugate on B), H = -J sum_<ij> P_ij - Q sum P_ij P_kl with P_ij the projector on the SU(3)\n"
+        "# singlet of the bond and the projector pairs on the two parallel bonds of every 2x2 plaquette;\n"
+        "# J = 1 sets the energy unit.  With Q = 0 the colours order antiferromagnetically (m_stag2 finite,\n"
+        "# from the staggered colour order m_s = sum_i (delta(c_i, 0) - 1/3) / N); the Q term drives the\n"
+        "# model into columnar valence-bond order (vbs_x2, vbs_y2 finite).  The two meet near Q/J = 0.5 at\n"
+        "# these sizes; the scan 0.3 ... 0.8 brackets it.  The same file with colors = 2 is the S = 1/2 J-Q\n"
+        "# model, and colors may be a scan name to compare several N in one run.\n",
+        _run("su3-jq2-transition", 2718, "Neel to valence-bond-solid transition of the SU(3) J-Q2 model"),
+        'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
+        '[[terms]]\ntype = "projector"\nbonds = "nn"\ncoupling = 1.0\n\n'
+        '[[terms]]\ntype = "projector-product"\nshape = "plaquette-pair"\nsymmetrize = true\n'
+        'coupling = "Q"\n',
+        "L = [8, 12, 16]\n# Q: four-site coupling in units of J, 11 values from 0.3 to 0.8.\n"
+        "Q = { start = 0.3, stop = 0.8, num = 11 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
+        _sampling(2000, 20000, 100, exchange="Q"),
+        model="[model]\n# colors: colours per site, 2 (S = 1/2 spins, the default) or N > 2 for SU(N); an\n"
+              "# integer or a scan name.  A heisenberg term needs colors = 2: for N > 2 write\n"
+              "# type = \"projector\".\n"
+              "colors = 3\n",
+    ),
+    "bilayer-field": _compose(
+        "# Square-lattice bilayer in a magnetic field: H = sum_intra S_i.S_j + g sum_rungs S_i.S_j\n"
+        "# - h sum_i S^z_i, at g = 4, deep in the rung-singlet (dimer) phase (the layers order only below\n"
+        "# g = 2.522).  The field lowers the S^z = +1 rung triplet: while its gap stays open the\n"
+        "# magnetization stays zero; once it closes the triplets condense, the magnetization rises and the\n"
+        "# spins order antiferromagnetically in the xy plane (the triplet condensate, whose superfluid\n"
+        "# density is the stiffness); above the saturation field h = g + 4 = 8 every spin points up.\n"
+        "# Terms with a field are simulated with directed loops; `qmc analyze --coupling h --plot` draws\n"
+        "# magnetization(h) and stiffness(h).\n",
+        _run("bilayer-field", 2718, "magnetization curve of the dimerized bilayer"),
+        'kind = "bilayer"\nsize = ["L", "L"]\nboundary = "periodic"\n',
+        '[[terms]]\ntype = "heisenberg"\n# bonds: "intra" = in-plane bonds of both layers.\n'
+        'bonds = "intra"\ncoupling = 1.0\n\n'
+        '[[terms]]\ntype = "xxz"\n# bonds: "inter" = the rungs; delta = 1 is the isotropic rung coupling.\n'
+        'bonds = "inter"\ncoupling = 4.0\ndelta = 1.0\n\n'
+        '[[terms]]\ntype = "field"\n# coupling: the field h, in units of the in-plane coupling.\n'
+        'coupling = "h"\n',
+        "L = [8]\n# h: 19 fields from 0 to 9, across both critical fields.\n"
+        "h = { start = 0.0, stop = 9.0, num = 19 }\n"
+        "# beta: a temperature low enough for flat magnetization plateaus.\nbeta = 16\n",
+        _sampling(2000, 20000, 100),
     ),
 }
 

@@ -13,25 +13,32 @@ edges of each are described in :mod:`qmc.models.walls`).  A task records its wal
 id gains ``_wall-<tag>`` and its random stream is keyed by the wall, the pattern and the factor as well as
 by the scan values (:mod:`qmc.config.tasks`).  Only the square lattice with ``boundary = ["open",
 "periodic"]`` is supported, and not together with ``[exchange]`` (the pinned edge terms make the couplings
-of a term group non-uniform, which the swap rule assumes).
+of a term group non-uniform, which the swap rule assumes).  The edges pin S = 1/2 models: ``xxz`` and
+``field`` terms (directed loops; the per-column energies would miss the field) are refused here, and
+``colors`` > 2 (SU(N)) per task (:mod:`qmc.config.tasks`), as neither the pinned edges nor the profiles of
+those models have been checked against exact results.
 """
 
 from __future__ import annotations
 
 from qmc.config.reader import TableReader
-from qmc.config.schema import DOMAIN_WALL_KEYS, DomainWallSpec, LatticeSpec, Sampling
-from qmc.errors import describe_value
+from qmc.config.schema import DOMAIN_WALL_KEYS, DomainWallSpec, LatticeSpec, Sampling, TermSpec
+from qmc.errors import UserError, describe_value
 from qmc.models import WALL_PATTERNS, WALLS
 
-__all__ = ["parse_domain_wall", "STRIP"]
+__all__ = ["parse_domain_wall", "check_wall_colors", "STRIP", "UNPINNED_TERMS"]
 
 STRIP = ("open", "periodic")
 """The boundary that domain walls need: open along x, periodic along y."""
+UNPINNED_TERMS = ("xxz", "field")
+"""Term types refused with [domain_wall] (directed loops)."""
 _ASKABLE = tuple(w for w in WALLS if not w.startswith("none"))
 
 
-def parse_domain_wall(r: TableReader, lattice: LatticeSpec, sampling: Sampling) -> DomainWallSpec | None:
-    """The ``[domain_wall]`` section (None when absent), checked against the lattice and [exchange]."""
+def parse_domain_wall(r: TableReader, lattice: LatticeSpec, sampling: Sampling,
+                      terms: tuple[TermSpec, ...]) -> DomainWallSpec | None:
+    """The ``[domain_wall]`` section (None when absent), checked against the lattice, the terms and
+    [exchange] (the colours are checked per task, :func:`check_wall_colors`)."""
     if "domain_wall" not in r.data:
         return None
     t = r.table("domain_wall")
@@ -57,6 +64,20 @@ def parse_domain_wall(r: TableReader, lattice: LatticeSpec, sampling: Sampling) 
         raise r.fail("exchange.along", "[exchange] cannot be combined with [domain_wall]: the pinned edge "
                                        "terms have other couplings than the rest of their term, and replica "
                                        "exchange needs one coupling per term")
+    for i, term in enumerate(terms):
+        if term.type in UNPINNED_TERMS:
+            raise r.fail(f"terms[{i}].type", f"[domain_wall] cannot be combined with {term.type} terms: the "
+                                             "walls are pinned on S = 1/2 models of heisenberg, projector "
+                                             "and projector-product terms (an xxz or field term runs by "
+                                             "directed loops, whose per-column energies leave out the field)")
     order = [w for w in _ASKABLE if w in chosen]
     return DomainWallSpec(walls=tuple(order), pattern=pattern, pin=pin)
 
+
+
+def check_wall_colors(colors: int, where: str, context: str) -> None:
+    """UserError for domain walls on a model with more than two colours per site (SU(N))."""
+    if colors > 2:
+        raise UserError(f"[domain_wall] needs colors = 2 (S = 1/2 spins), not {colors}{context}: the pinned "
+                        "edges and the profiles along x are made and checked for S = 1/2 models only; remove "
+                        "[domain_wall] or [model] colors", where)

@@ -1,7 +1,8 @@
 """Profiles along x on strips open along x: dimer order and operator counts per column of sites.
 
-Measured only for models with ``site_column`` (:class:`qmc.models.CompiledModel`), once per measured step,
-into the profile block of the accumulator (:func:`qmc.engine.slots.profile_start`, C columns, T terms):
+Measured only for models with ``site_column`` (:class:`qmc.models.CompiledModel`; S = 1/2 models of the
+projector kind, whose spins are +-1), once per measured step, into the profile block at the end of the
+accumulator (:func:`qmc.engine.slots.profile_start`, C columns, T terms):
 
 - C slots from PROFILE_DX:  for column c, the sum over the x-bonds b = (i, j) touching column c of
   (1/2) (-1)^(x_b) S^z_i S^z_j, each bond shared equally by the columns of its two sites (x_b the column of

@@ -6,12 +6,15 @@ compile), the kernels take a few records and read every array by field name.  Bu
 wrong array is refused where the record is made, not silently used.
 
 ==============  =============================================================================================
-``Chain``       the Markov chain itself: ``spins`` int8[N] (+-1, the state at slice 0), ``ops`` int32[M]
-                (operator string, see :mod:`qmc.engine.vertices`), ``counters`` int64[1] (n), ``rng``
-                uint64[4] (xoshiro256** words)
+``Chain``       the Markov chain itself: ``spins`` int8[N] (the state at slice 0: +-1 spins, or colours
+                0..N-1 of the colour kind), ``ops`` int32[M] (operator string, see
+                :mod:`qmc.engine.vertices`), ``counters`` int64[1] (n), ``rng`` uint64[4] (xoshiro256**
+                words), ``above`` int32[M] (colour kind: the colours above the bonds of slot p, 8 bits per
+                bond; int32[0] for kinds without per-slot colours)
 ``Vertices``    the linked vertex list rebuilt by every sweep: ``links`` int32[4 M k_max], ``vflip``
                 uint8[M k_max] (loop flips not yet applied to ``ops``), ``first``/``last`` int32[N]
-                (first and last leg of each site's world line)
+                (first and last leg of each site's world line), ``state`` int32[M k_max or 0] (what the
+                vertex kind records per vertex; empty for kinds that record nothing)
 ``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
                 ``alias_prob`` float64[T], ``alias_idx`` int32[T] (:mod:`qmc.chain.alias`), ``beta``,
                 ``beta_wtot`` = beta sum_t w_t
@@ -19,9 +22,9 @@ wrong array is refused where the record is made, not silently used.
                 ``cos_tab``/``sin_tab`` float64[D, N], ``vbs_bonds`` int32[nv, 2], ``vbs_dir``/``vbs_phase``
                 int8[nv], ``hist_range``; for profiles along x (else empty) ``site_column`` int32[N]
                 (:mod:`qmc.engine.profiles`)
-``Tallies``     where results go: ``acc`` float64[acc_size(G, C, T)], ``hist`` int64[h, h], and the per-step
-                scratch ``group_counts`` int64[G] (G >= 1), ``sweep_out`` float64[SW_SIZE], ``et_out``
-                float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
+``Tallies``     where results go: ``acc`` float64[acc_size(G, K, C, T)], ``hist`` int64[h, h], and the
+                per-step scratch ``group_counts`` int64[G] (G >= 1), ``sweep_out`` float64[SW_SIZE],
+                ``et_out`` float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
 ==============  =============================================================================================
 
 The vertex kind's own record (e.g. :class:`qmc.engine.projector.ProjectorKind`) is a further argument; see
@@ -43,6 +46,7 @@ class Chain(NamedTuple):
     ops: np.ndarray
     counters: np.ndarray
     rng: np.ndarray
+    above: np.ndarray
 
 
 class Vertices(NamedTuple):
@@ -50,6 +54,7 @@ class Vertices(NamedTuple):
     vflip: np.ndarray
     first: np.ndarray
     last: np.ndarray
+    state: np.ndarray
 
 
 class Terms(NamedTuple):
@@ -82,8 +87,10 @@ class Tallies(NamedTuple):
 
 _I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uint64, np.float64
 _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndim 0 is a Python float
-    Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1)},
-    Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1)},
+    Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1),
+            "above": (_I32, 1)},
+    Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1),
+               "state": (_I32, 1)},
     Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "beta": (float, 0),
             "beta_wtot": (float, 0)},
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),

@@ -27,10 +27,12 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
 - A_DX2, A_DY2, A_D4, A_COS4   D_x^2, D_y^2, (D_x^2 + D_y^2)^2, cos 4 theta
 - A_W2 + a                 w_a^2 (a < MAX_DIRS)
 - A_GROUP + g              n_g, operators of term group g (g < G)
-- profile_start(G) + ...   profiles along x, only for models with C = ``n_columns`` > 0 columns
-                           (:func:`qmc.engine.profiles.column_profiles`): C slots PROFILE_DX and C slots
-                           PROFILE_DY (dimer order summed over the bonds touching column c, each bond shared
-                           equally by its two sites' columns), then T slots n_t (operators of each term t)
+- A_GROUP + G + x          the vertex kind's own slots (``acc_slots(G)`` of its module; none for projectors)
+- profile_start(G, K) + .. profiles along x, last, only for models with C = ``n_columns`` > 0 columns
+                           (:func:`qmc.engine.profiles.column_profiles`; K the kind's slots): C slots
+                           PROFILE_DX and C slots PROFILE_DY (dimer order summed over the bonds touching
+                           column c, each bond shared equally by its two sites' columns), then T slots n_t
+                           (operators of each term t)
 
 The accumulator is part of the checkpoint (:meth:`qmc.chain.simulation.Simulation.state`): changing
 ``ACC_LAYOUT`` means raising the checkpoint layout version there.
@@ -44,7 +46,7 @@ __all__ = [
     "ET_MZ2", "ET_SQN", "ET_DX", "ET_DY", "ET_SIZE",
     "A_NOPS", "A_NOPS2", "A_MZ2", "A_MS2", "A_MS4", "A_CHIS", "A_SQN",
     "A_DX2", "A_DY2", "A_D4", "A_COS4", "A_W2", "A_GROUP", "ACC_LAYOUT", "acc_size",
-    "PROFILE_DX", "PROFILE_DY", "PROFILE_TERMS", "profile_start",
+    "PROFILE_DX", "PROFILE_DY", "PROFILE_TERMS", "profile_start", "profile_length",
 ]
 
 MAX_DIRS = 3
@@ -72,13 +74,18 @@ PROFILE_DX, PROFILE_DY, PROFILE_TERMS = 0, 1, 2
 """Offsets, in units of C slots, of the D_x and D_y rows and of the start of the T term counts."""
 
 
-def profile_start(n_groups: int) -> int:
-    """First slot of the profile block (after the group slots)."""
-    return A_GROUP + n_groups
+def profile_start(n_groups: int, kind_slots: int = 0) -> int:
+    """First slot of the profile block (after the group slots and the kind's own slots)."""
+    return A_GROUP + n_groups + kind_slots
 
 
-def acc_size(n_groups: int, n_columns: int = 0, n_terms: int = 0) -> int:
-    """Length of the accumulator for a model with ``n_groups`` term groups and, when it measures profiles,
-    ``n_columns`` columns and ``n_terms`` terms (``n_columns`` = 0: no profiles, the layout of models
-    without them is unchanged)."""
-    return A_GROUP + n_groups + (PROFILE_TERMS * n_columns + n_terms if n_columns else 0)
+def acc_size(n_groups: int, kind_slots: int = 0, n_columns: int = 0, n_terms: int = 0) -> int:
+    """Length of the accumulator for a model with ``n_groups`` term groups, a vertex kind that adds
+    ``kind_slots`` slots of its own and, when it measures profiles, ``n_columns`` columns and ``n_terms``
+    terms (``n_columns`` = 0: no profiles, the layout of models without them is unchanged)."""
+    return profile_start(n_groups, kind_slots) + profile_length(n_columns, n_terms)
+
+
+def profile_length(n_columns: int, n_terms: int) -> int:
+    """Slots of the profile block, the last block of the accumulator (0 without columns)."""
+    return PROFILE_TERMS * n_columns + n_terms if n_columns else 0

@@ -28,6 +28,7 @@ from numba import njit, typeof
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.equal_time import equal_time
 from qmc.engine.kinds import loop_update
+from qmc.engine.kinds import measure as kind_measure
 from qmc.engine.profiles import column_profiles
 from qmc.engine.slots import (
     A_CHIS,
@@ -73,10 +74,11 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
     sweep_out, et_out = tallies.sweep_out, tallies.et_out
     spins, counters = chain.spins, chain.counters
     beta = terms.beta
-    n_groups = group_counts.shape[0]
-    n_cols = 0
-    if probes.site_column.shape[0] > 0:
-        n_cols = (acc.shape[0] - A_GROUP - n_groups - terms.table.shape[0]) // PROFILE_TERMS
+    n_groups = group_counts.shape[0]  # the kind may add slots after the groups (qmc.engine.slots)
+    n_cols = 0  # profiles along x: the last block of the accumulator (qmc.engine.slots)
+    for i in range(probes.site_column.shape[0]):
+        n_cols = max(n_cols, probes.site_column[i] + 1)
+    profile_at = acc.shape[0] - PROFILE_TERMS * n_cols - terms.table.shape[0]
     n_dirs = probes.bond_disp.shape[1]
     M = chain.ops.shape[0]
     for step in range(n_steps):
@@ -103,7 +105,8 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
             for d in range(n_dirs):
                 w = sweep_out[SW_WINDING + d]
                 acc[A_W2 + d] += w * w
-            equal_time(spins, probes, tallies)
+            kind_measure(kind, chain, tallies)
+            equal_time(kind, spins, probes, tallies)
             acc[A_MZ2] += et_out[ET_MZ2]
             acc[A_SQN] += et_out[ET_SQN]
             dx2 = et_out[ET_DX] * et_out[ET_DX]
@@ -115,7 +118,7 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
             if d2 > 0.0:
                 acc[A_COS4] += (dx2 * dx2 - 6.0 * dx2 * dy2 + dy2 * dy2) / (d2 * d2)
             if n_cols > 0:
-                column_profiles(chain.ops, spins, probes, acc, A_GROUP + n_groups, n_cols)
+                column_profiles(chain.ops, spins, probes, acc, profile_at, n_cols)
         if stop_when_full and 3 * (M - n) < n:
             return step + 1
     return n_steps

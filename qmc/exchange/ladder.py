@@ -21,26 +21,33 @@ position i.  A round trip is counted when a configuration that went from the low
 coupling comes back to the lowest.  Acceptance counts, round trips and the up/down occupation (``n_up``,
 ``n_down``: exchange points at which the configuration at position i last visited the lowest / highest
 coupling) cover the measurement phase; the warm-up attempts are counted separately.
+
+Precision target: each local chain's :class:`~qmc.chain.target.TargetWatch` is fed with its bins as they
+complete; at every meeting each member says whether the target of all its chains is met by their bins at
+that step, and the ladder is finished (:attr:`Ladder.finished`) at the first meeting at which every chain
+meets it.  The decision depends only on the bins at the meeting's step, never on timing or on the team.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 
 from qmc.chain.simulation import Simulation
+from qmc.chain.target import TargetWatch
 from qmc.config.parser import Task, build_model
 from qmc.engine.rng import draw_doubles, stream_seed
 from qmc.errors import UserError
+from qmc.exchange.meeting import LadderError, Vote, meet, trade_configuration
 from qmc.exchange.rule import group_couplings, swap_log_ratio
 from qmc.exchange.team import LadderTeam, SoloTeam, chain_blocks
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "chain_costs", "exchange_seed_key",
-           "GROUP_STATE_KEYS"]
+__all__ = ["Ladder", "LadderError", "ladder_tasks", "check_ladder_models", "check_ladders", "chain_costs",
+           "exchange_seed_key", "GROUP_STATE_KEYS"]
 
 GROUP_STATE_KEYS = ("rng", "labels", "direction", "round_trips", "attempted", "accepted",
                     "warmup_attempted", "warmup_accepted", "n_up", "n_down")
@@ -106,15 +113,21 @@ def check_ladder_models(tasks: Sequence[Task], models: Sequence[CompiledModel]) 
     return np.array(out, dtype=np.float64)
 
 
+def check_ladders(tasks: Sequence[Task]) -> int:
+    """Check every exchange ladder among ``tasks`` (same terms at every point, uniform group couplings)
+    before anything runs; raises UserError.  Returns the number of ladders."""
+    groups: dict[str, list[Task]] = {}
+    for t in tasks:
+        if t.exchange_group is not None:
+            groups.setdefault(t.exchange_group, []).append(t)
+    for members in groups.values():
+        ordered = ladder_tasks(members)
+        check_ladder_models(ordered, [build_model(t) for t in ordered])
+    return len(groups)
+
+
 # ----------------------------------------------------------------------------------------------------------
 # the ladder in memory
-
-
-_ROW_HEAD = 5  # error, stop, vote error, write, cutoff; then operator counts per position and group
-
-
-class LadderError(RuntimeError):
-    """A chain of the ladder failed on some team member; raised on every member at the same step."""
 
 
 class Ladder:
@@ -129,16 +142,18 @@ class Ladder:
     :attr:`walker_rows` collects, per local chain, the configuration label at that chain when each of
     those bins closed.
 
-    Synchronisation points are the end of the warm-up and every exchange point; there the members share
-    their :attr:`vote` (set by the caller before :meth:`advance`: a dict with ``stop`` (a reason, "" for
-    none), ``error`` (a message or None) and ``write`` (bool)), and afterwards :attr:`votes` holds every
-    member's vote and :attr:`voted_at` the step.  A chain that raises makes
-    every member raise :class:`LadderError` at the next synchronisation point.
+    Synchronisation points are the end of the warm-up and every exchange point; there the members meet
+    (:func:`qmc.exchange.meeting.meet`) and share their :attr:`vote` (a :class:`~qmc.exchange.meeting.Vote`
+    set by the caller before :meth:`advance`); afterwards :attr:`votes` holds every member's vote and
+    :attr:`voted_at` the step.  A chain that raises makes every member raise :class:`LadderError` at the
+    next synchronisation point.  ``watches`` are the precision-target watches of the local chains (ladder
+    order; by default new ones from the tasks' targets, fed with nothing); the ladder feeds them.
     """
 
     def __init__(self, tasks: Sequence[Task], models: Sequence[CompiledModel] | None = None, *,
                  chain_states: Sequence[dict[str, np.ndarray]] | None = None,
-                 group_state: dict[str, np.ndarray] | None = None, team: LadderTeam | None = None) -> None:
+                 group_state: dict[str, np.ndarray] | None = None, team: LadderTeam | None = None,
+                 watches: Sequence[TargetWatch] | None = None) -> None:
         self.tasks = list(tasks)
         if ladder_tasks(self.tasks) != self.tasks:
             raise ValueError("tasks must be in ladder order (sorted by the exchanged parameter)")
@@ -184,9 +199,15 @@ class Ladder:
                 raise ValueError("the chains of a ladder checkpoint are at different steps")
             self.state = self._check_state(group_state)
         self.walker_rows: list[list[int]] = [[] for _ in self.local]
+        if watches is None:
+            watches = [TargetWatch(self.tasks[i].sampling.target, self.sims[i].bin_names) for i in self.local]
+        if len(watches) != len(self.local):
+            raise ValueError("a ladder needs one target watch per local chain")
+        self.watches = list(watches)
+        self.finished = False
         self._n_groups = len(self.sims[self.local.start].group_op_counts())
-        self.vote: Any = None
-        self.votes: list[Any] = []
+        self.vote: Vote | None = None
+        self.votes: list[Vote] = []
         self.voted_at = -1
         self._padded = False
 
@@ -220,7 +241,8 @@ class Ladder:
 
     @property
     def done(self) -> bool:
-        return self.steps_done >= self.total_steps
+        """At the last step, or finished by the precision target."""
+        return self.steps_done >= self.total_steps or self.finished
 
     def next_stop(self) -> int:
         """The next step at which the ladder is at an exchange point (or the warm-up end, or the end)."""
@@ -233,6 +255,16 @@ class Ladder:
     def is_sync_point(self, s: int) -> bool:
         """Whether the members meet at step ``s`` (end of the warm-up, or an exchange point)."""
         return s == self.warmup_steps or (s % self.every == 0 and 0 < s < self.total_steps)
+
+    def rejoin(self) -> None:
+        """Hold the meeting of the current step if it is a synchronisation point before the end.
+
+        A run's last step is no exchange point, so a ladder restored from the end of a finished, shorter
+        run (the configuration now asks for more steps) has missed the meeting, and swap round, that a run
+        of the new length holds there; held now, the continued run is bit-identical to that run."""
+        s = self.steps_done
+        if s < self.total_steps and self.is_sync_point(s):
+            self._sync(s, None)
 
     def group_state(self) -> dict[str, np.ndarray]:
         """Copy of the ladder state (:data:`GROUP_STATE_KEYS`)."""
@@ -259,6 +291,8 @@ class Ladder:
                     error = f"chain at {self.tasks[i].task_id}: {type(exc).__name__}: {exc}"
                     break
                 rows[j].extend(new)
+                for row in new:
+                    self.watches[j].add(row)
                 self.walker_rows[j].extend([int(labels[i])] * len(new))
             left -= k
             if error is not None:  # meet the others where they will wait for this member, then stop
@@ -271,39 +305,23 @@ class Ladder:
                 for i, r in zip(self.local, rows, strict=True)]
 
     def _sync(self, s: int, error: str | None) -> None:
-        """Meet the other members at step ``s``: share errors, votes, cutoffs and operator counts; pad
-        the cutoffs at the end of the warm-up; run the swap round of an exchange point.
-
-        The numbers travel in one fixed-size int64 row per member (:meth:`LadderTeam.allgather_array`:
-        flags error / stop / error-in-vote / write, the largest local cutoff, then the operator counts of
-        every position, zero where not local); texts (error messages, stop reasons) follow in a second,
-        pickled exchange only when some member raised a flag, which is rare."""
-        vote = self.vote if isinstance(self.vote, dict) else {}
-        n_groups = self._n_groups
-        row = np.zeros(_ROW_HEAD + self.m * n_groups, dtype=np.int64)
-        row[0] = error is not None
-        row[1] = bool(vote.get("stop"))
-        row[2] = bool(vote.get("error"))
-        row[3] = bool(vote.get("write"))
-        row[4] = max(sim.cutoff for sim in self.local_sims)
+        """Meet the other members at step ``s`` (:func:`qmc.exchange.meeting.meet`), with this member's vote
+        on the precision target; pad the cutoffs at the end of the warm-up; run the swap round of an
+        exchange point; finish when every chain meets the target."""
+        counts = np.zeros((self.m, self._n_groups), dtype=np.int64)
         if error is None:
             for i in self.local:
-                row[_ROW_HEAD + i * n_groups:_ROW_HEAD + (i + 1) * n_groups] = self.sims[i].group_op_counts()
-        got = self.team.allgather_array(row)
-        if got[:, 0:3].any():  # some member has something to say in words
-            texts = self.team.allgather((error, self.vote))
-            errors = [e for e, _ in texts if e is not None]
-            if errors:
-                raise LadderError(errors[0])
-            self.votes = [v for _, v in texts]
-        else:
-            self.votes = [{"stop": "", "error": None, "write": bool(r[3])} for r in got]
-        self.voted_at = s
+                counts[i] = self.sims[i].group_op_counts()
+        cutoff = max(sim.cutoff for sim in self.local_sims)
+        met = all(w.met for w in self.watches)  # False without a target, or before its first 64 bins
+        vote = dataclasses.replace(self.vote if self.vote is not None else Vote(), target=met)
+        got = meet(self.team, error, vote, cutoff, counts)
+        self.votes, self.voted_at = got.votes, s
+        self.finished = all(v.target for v in got.votes)
         if s == self.warmup_steps:
-            self._pad_cutoffs(int(got[:, 4].max()))
+            self._pad_cutoffs(got.top_cutoff)
         if s % self.every == 0 and 0 < s < self.total_steps:
-            counts = got[:, _ROW_HEAD:].sum(axis=0).reshape(self.m, n_groups)
-            self._swap_round(s, {i: counts[i] for i in range(self.m)})
+            self._swap_round(s, got.counts)
             self._walk(count=s >= self.warmup_steps)
 
     def _pad_cutoffs(self, top: int) -> None:
@@ -314,10 +332,10 @@ class Ladder:
                 conf["ops"] = np.concatenate([conf["ops"], np.full(top - sim.cutoff, -1, dtype=np.int32)])
                 sim.set_configuration(conf)
 
-    def _swap_round(self, s: int, counts: dict[int, np.ndarray]) -> None:
-        """Decide every pair of this round (identically on all members: same counts, same stream), then
-        move the configurations of the accepted pairs (across members with :meth:`LadderTeam.sendrecv`,
-        pairs in increasing order)."""
+    def _swap_round(self, s: int, counts: np.ndarray) -> None:
+        """Decide every pair of this round (identically on all members: same counts int64[M, G], same
+        stream), then move the configurations of the accepted pairs (across members with
+        :func:`qmc.exchange.meeting.trade_configuration`, pairs in increasing order)."""
         st = self.state
         measuring = s >= self.warmup_steps
         tried = st["attempted"] if measuring else st["warmup_attempted"]
@@ -339,9 +357,9 @@ class Ladder:
                 a.set_configuration(conf_b)
                 b.set_configuration(conf_a)
             elif a is not None:
-                a.set_configuration(self.team.sendrecv(a.configuration(), self.owner[i + 1]))
+                a.set_configuration(trade_configuration(self.team, a.configuration(), self.owner[i + 1]))
             elif b is not None:
-                b.set_configuration(self.team.sendrecv(b.configuration(), self.owner[i]))
+                b.set_configuration(trade_configuration(self.team, b.configuration(), self.owner[i]))
 
     def _walk(self, count: bool) -> None:
         st = self.state

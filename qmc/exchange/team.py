@@ -2,11 +2,12 @@
 
 A ladder of M chains is split into contiguous blocks, one per team member (:func:`chain_blocks`); member r
 advances the chains of its block, and the members meet only at synchronisation points (exchange points
-and the end of the warm-up), where they exchange a few numbers (:meth:`LadderTeam.allgather_array`;
-messages only when someone has one, :meth:`LadderTeam.allgather`) and, for an
-accepted swap across two blocks, the two configurations (:meth:`LadderTeam.sendrecv`).  Every member keeps
-an identical copy of the ladder's own state (swap RNG, labels, counters), so swap decisions need no
-coordinator and the bins do not depend on how many members there are.
+and the end of the warm-up).  This module is the transport: who the members are and the three collective
+calls they have (:meth:`LadderTeam.allgather_array` for a row of numbers, :meth:`LadderTeam.allgather`
+for objects, :meth:`LadderTeam.sendrecv` between two members); what they say with them is the ladder
+protocol in :mod:`qmc.exchange.meeting`.  Every member keeps an identical copy of the ladder's own state
+(swap RNG, labels, counters), so swap decisions need no coordinator and the bins do not depend on how
+many members there are.
 
 :class:`SoloTeam` is the one-process team (serial runs, a ladder on one rank); :class:`CommTeam` wraps an
 mpi4py intracommunicator, made for the ranks of a team by :func:`form_team` (``MPI_Comm_create_group``:

@@ -1,9 +1,10 @@
 """Preparing a run directory for ``qmc run``: :func:`prepare_run` and the :class:`RunPlan` it returns.
 
-:func:`prepare_run` checks a configuration against a run directory (refusing a directory that holds a
-different configuration unless forced, in which case the old index and the task files of changed tasks are
-renamed aside, never deleted), writes ``config.toml`` and ``index.json``, and lists the unfinished tasks,
-largest lattices first.  Running them is :func:`qmc.run.serial.run_serial` or :mod:`qmc.mpi.farm`.
+:func:`prepare_run` checks a configuration against a run directory (:mod:`qmc.run.changes`: a run grows by
+new scan points and more bins of the same length; other physics, warm-up or bin length is refused unless
+forced, in which case the old index and the task files of changed tasks are renamed aside, never deleted),
+writes ``config.toml`` and ``index.json``, and lists the unfinished tasks, largest lattices first.  Running
+them is :func:`qmc.run.serial.run_serial` or :mod:`qmc.mpi`.
 """
 
 from __future__ import annotations
@@ -17,15 +18,15 @@ from typing import Any
 
 from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
-from qmc.run.task_identity import steps_total, task_fingerprint
-from qmc.storage.task_file import (
-    atomic_write_text,
-    load_index,
-    new_index,
-    task_header,
-    task_path,
-    write_index,
-)
+from qmc.exchange.ladder import check_ladders
+from qmc.run.changes import survey
+from qmc.run.outcome import WHERE_KEYS
+from qmc.run.stopping import check_run_observables
+from qmc.run.task_identity import steps_total
+from qmc.storage.atomic import atomic_write_text, remove_leftovers
+from qmc.storage.claims import ClaimBook
+from qmc.storage.faults import write_fault
+from qmc.storage.run_index import new_index, write_index
 
 __all__ = ["RunPlan", "prepare_run"]
 
@@ -33,14 +34,27 @@ __all__ = ["RunPlan", "prepare_run"]
 @dataclass
 class RunPlan:
     """What ``qmc run`` will do: ``tasks`` to run in order (unfinished, largest first), ``done`` ids that are
-    finished already, the ``index`` (already written), and files renamed aside by ``--force``."""
+    finished already, the ``index`` (already written), and what became of the directory's contents
+    (:mod:`qmc.run.changes`)."""
 
     run_dir: Path
     config: RunConfig
     tasks: list[Task]
     done: list[str]
     index: dict[str, Any]
-    moved: list[str] = field(default_factory=list)
+    set_aside: list[tuple[str, str, str]] = field(default_factory=list)
+    """``(path, renamed to, why)`` of every file renamed aside by ``--force``."""
+    kept: list[str] = field(default_factory=list)
+    """Ids of the configuration's tasks whose files were kept."""
+    grown: list[str] = field(default_factory=list)
+    """Ids of the finished tasks that now continue (more bins of the same length)."""
+    others: list[str] = field(default_factory=list)
+    """Ids in the index that the configuration no longer has (their files stay)."""
+
+    def unfinished(self) -> list[str]:
+        """The selected tasks (to run, or done before) whose index entry is not ``done``."""
+        selected = [t.task_id for t in self.tasks] + self.done
+        return [tid for tid in selected if self.index["tasks"][tid]["status"] != "done"]
 
 
 def _stamp() -> str:
@@ -74,56 +88,6 @@ def _select(config: RunConfig, only: tuple[str, ...] | list[str]) -> list[Task]:
     return [t for t in tasks if t.task_id in set(wanted)]
 
 
-def _status_from_file(path: Path) -> tuple[str, str, dict[str, Any]]:
-    head = task_header(path)
-    status = head.get("status", "")
-    if status not in ("done", "failed"):
-        status = "stopped"
-    return status, head.get("message", "") if status == "failed" else "", head
-
-
-def _check_index(run_dir: Path, fp: str, force: bool) -> tuple[dict[str, Any] | None, list[Path]]:
-    """The run index if it is ours and of the same configuration; else refuse, or (forced) set it aside."""
-    try:
-        index = load_index(run_dir)
-    except UserError:
-        if not force:
-            raise
-        return None, [run_dir / "index.json"]
-    if index is not None and index.get("fingerprint") != fp:
-        if not force:
-            raise UserError(f"holds a run of a different configuration (made from "
-                            f"{index.get('config_source', '?')}); choose another output directory, or use "
-                            "--force to rename the old index aside (task files are never deleted)",
-                            str(run_dir))
-        return None, [run_dir / "index.json"]
-    return index, []
-
-
-def _check_task_files(config: RunConfig, run_dir: Path, force: bool
-                      ) -> tuple[dict[str, tuple[str, str, dict[str, Any]]], list[Path]]:
-    """Status of each existing task file; files of changed tasks are refused, or (forced) set aside.
-
-    A file that is not a task file, or is damaged, is always refused (UserError), never moved.
-    """
-    status: dict[str, tuple[str, str, dict[str, Any]]] = {}
-    aside: list[Path] = []
-    for task in config.tasks():
-        path = task_path(run_dir, task.task_id)
-        if not path.exists():
-            continue
-        st = _status_from_file(path)
-        if st[2].get("task_fingerprint") != task_fingerprint(task):
-            if not force:
-                raise UserError("was written for different parameters or sampling than this configuration's "
-                                "task of the same name; use another output directory, or --force to rename "
-                                "it aside", str(path))
-            aside.append(path)
-            continue
-        status[task.task_id] = st
-    return status, aside
-
-
 def _entry(task: Task) -> dict[str, Any]:
     return {"task_id": task.task_id, "params": dict(task.params), "bins_total": task.sampling.bins,
             "steps_total": steps_total(task)}
@@ -134,9 +98,11 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
     """Check the run directory against ``config``, write ``config.toml`` and ``index.json``, list the work.
 
     Raises UserError, with nothing changed on disk, for: unknown ``only`` ids, a model that cannot be built,
-    an output path that is a file, a directory holding a different configuration (without ``force``), a
-    foreign or damaged ``index.json`` (without ``force``) or task file.  With ``force`` the old index, a
+    an output path that is a file, a directory holding a run that this configuration cannot grow (other
+    physics, task files of another chain, warm-up or bin length; without ``force``), a foreign or damaged
+    ``index.json`` (without ``force``) or task file.  With ``force`` the old index, a
     differing ``config.toml`` and the task files of changed tasks are renamed to ``<name>.<time>.old``.
+    Raises :class:`~qmc.storage.faults.WriteFault` when the machine refuses to write in the run directory.
     """
     where = "--out" if out is not None else config.where("run.output")
     run_dir = Path(os.path.abspath(out if out is not None else config.output_dir))
@@ -146,53 +112,64 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
         raise UserError(f"{run_dir / 'tasks'} exists and is not a directory", where)
     selected = _select(config, only)
     validate(config)
-    if any(t.exchange_group is not None for t in config.tasks()):
-        from qmc.exchange.tasks import check_ladders
-
-        check_ladders(config.tasks())
+    check_run_observables(config)
+    check_ladders(config.tasks())
     fp = config_fingerprint(config)
 
     # checks first (nothing is changed when one fails) ...
-    index, aside = _check_index(run_dir, fp, force)
+    found = survey(config, run_dir, force)
+    aside = [(run_dir / "index.json", found.index_aside)] if found.index_aside else []
     copy = run_dir / "config.toml"
     same_file = copy.exists() and os.path.samefile(copy, config.path)
-    if copy.is_file() and not same_file and index is None and copy.read_bytes() != config.text.encode():
-        if not force:
+    if copy.is_file() and not same_file and found.index is None and copy.read_bytes() != config.text.encode():
+        if found.index_aside:  # it goes with the index
+            aside.append((copy, found.index_aside))
+        elif not force:
             raise UserError("holds a config.toml that differs from this configuration and no run index; "
                             "choose another output directory, or use --force to rename it aside",
                             str(run_dir))
-        aside.append(copy)
-    status, files_aside = _check_task_files(config, run_dir, force)
+        else:
+            aside.append((copy, "a config.toml without a run index"))
 
     # ... then changes
     stamp = _stamp()
     try:
-        moved = [str(_aside(p, stamp)) for p in aside + files_aside]
+        moved = [(str(p), str(_aside(p, stamp)), why) for p, why in aside + found.aside]
         (run_dir / "tasks").mkdir(parents=True, exist_ok=True)
-        for tmp in (run_dir / "tasks").glob("*.h5.tmp"):
-            tmp.unlink()  # a write interrupted by a kill; the previous complete file is in place
+        for folder in (run_dir, run_dir / "tasks"):  # writes interrupted by a kill: the previous complete
+            remove_leftovers(folder)                 # files are in place
         if not same_file:
             atomic_write_text(copy, config.text)
+        index = found.index
         if index is None:
             index = new_index(fp, os.path.abspath(config.path), config.name,
                               [_entry(t) for t in config.tasks()])
-        index["config_source"] = os.path.abspath(config.path)
+        index.update(fingerprint=fp, physics=config.physics_fingerprint(),
+                     config_source=os.path.abspath(config.path), name=config.name)
+        live = ClaimBook(run_dir).live()  # tasks other processes run now: their entries stay theirs
         for task in config.tasks():
             entry = index["tasks"].setdefault(task.task_id, new_index(fp, "", "", [_entry(task)])["tasks"][
                 task.task_id])
-            if task.task_id in status:
-                st, msg, head = status[task.task_id]
+            entry.update(params=dict(task.params), bins_total=task.sampling.bins,
+                         steps_total=steps_total(task))
+            entry.pop("note", None)
+            if task.task_id in found.status:
+                st, msg, head = found.status[task.task_id]
                 entry.update(status=st, message=(msg or entry.get("message", "")) if st == "failed" else "",
                              bins_done=int(head.get("checkpoint_bins_done", 0)),
                              steps_done=int(head.get("checkpoint_steps_done", 0)))
             else:
                 entry.update(status="pending", message="", bins_done=0, steps_done=0)
-        write_index(run_dir, index)
-    except OSError as exc:
-        raise UserError(f"cannot write in the run directory ({exc.strerror or exc})", str(run_dir)) from None
+            for k in WHERE_KEYS:
+                entry.pop(k, None)
+        for tid in found.others:
+            index["tasks"][tid]["note"] = "not in the current configuration (its file is kept)"
+        write_index(run_dir, index, mine=[tid for tid in index["tasks"] if tid not in live])
+    except OSError as exc:  # the machine refuses (a WriteFault of the atomic writes passes as it is)
+        raise write_fault(run_dir, exc) from None
 
     order = {t.task_id: i for i, t in enumerate(config.tasks())}
     todo = [t for t in selected if index["tasks"][t.task_id]["status"] != "done"]
     todo.sort(key=lambda t: (-math.prod(t.size), -t.beta, order[t.task_id]))
     done = [t.task_id for t in selected if index["tasks"][t.task_id]["status"] == "done"]
-    return RunPlan(run_dir, config, todo, done, index, moved)
+    return RunPlan(run_dir, config, todo, done, index, moved, found.kept, found.grown, found.others)

@@ -4,7 +4,7 @@
 directory of the installed ``qmc`` package; when git or the repository is absent it is ``""``
 (``git_dirty`` tells whether tracked files differed from that revision).  :func:`session_entry` describes
 one execution of a task (one process working on it from ``start`` to ``stop``); a task file keeps the list
-of all its sessions.
+of all its sessions.  Times are local times with offset (:func:`now_iso`).
 """
 
 from __future__ import annotations
@@ -15,24 +15,34 @@ import platform
 import socket
 import subprocess
 import sys
+import time
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-__all__ = ["environment", "git_revision", "package_version", "task_provenance", "session_entry"]
+__all__ = ["DISTRIBUTION", "environment", "git_revision", "package_version", "task_provenance",
+           "session_entry", "now_iso"]
+
+DISTRIBUTION = "seriesloop"
+"""Name of the installed distribution (``pip show seriesloop``); the import package is ``qmc``."""
 
 _PACKAGE_DIR = Path(__file__).resolve().parent
 
 
 def package_version() -> str:
-    """Installed version of the ``dsqmc`` distribution, or ``"unknown"``."""
+    """Installed version of the ``seriesloop`` distribution, or ``"unknown"``."""
     from importlib.metadata import PackageNotFoundError, version
 
     try:
-        return version("dsqmc")
+        return version(DISTRIBUTION)
     except PackageNotFoundError:
         return "unknown"
+
+
+def now_iso(t: float | None = None) -> str:
+    """Local time with offset, seconds precision, e.g. ``2024-06-11T14:03:00+0200``."""
+    return time.strftime("%Y-%m-%dT%H:%M:%S%z", time.localtime(time.time() if t is None else t))
 
 
 def _git(*args: str) -> str | None:
@@ -73,7 +83,7 @@ def environment() -> dict[str, Any]:
     except ImportError:
         hdf5 = ""
     return {
-        "package": "dsqmc",
+        "package": DISTRIBUTION,
         "package_version": package_version(),
         "git_revision": rev,
         "git_dirty": dirty,
@@ -95,6 +105,7 @@ def task_provenance(master_seed: int, seed_key: str, seed_words: np.ndarray) -> 
 
 
 def session_entry(start_iso: str, steps_start: int) -> dict[str, Any]:
-    """A new session record; the runner updates ``stop``, ``steps_stop`` and ``ended`` as it goes."""
+    """A new session record; the runner updates ``stop``, ``steps_stop``, ``ended`` and ``seconds`` (wall
+    time since the start, to the millisecond) as it goes."""
     return {"start": start_iso, "stop": start_iso, "host": socket.gethostname(), "pid": os.getpid(),
             "steps_start": int(steps_start), "steps_stop": int(steps_start), "ended": "running"}

@@ -1,6 +1,7 @@
-"""Task files (HDF5, one per task) and the run index (JSON), both replaced atomically.
+"""Task files: one HDF5 file per task with its bins, its checkpoint and where it came from.
 
-Task file layout (``format = "dsqmc-task"``, ``format_version = 1``)::
+Layout (``format = "seriesloop/task"``, ``format_version = 1``; files of the earlier name ``"dsqmc-task"``
+have the same layout and are read too, see :mod:`qmc.storage.formats`)::
 
     /                 attrs format, format_version, task_id, status, message, task_fingerprint, updated
     /config           attrs toml (full text of the configuration), path, fingerprint
@@ -12,25 +13,28 @@ Task file layout (``format = "dsqmc-task"``, ``format_version = 1``)::
                       observable name.  Names containing "/" ("stiffness/x") are stored as "stiffness:x",
                       because "stiffness" itself is a dataset and cannot also be a group.
     /bins             attrs names (column order), steps_per_bin, n_sites, linear_size, beta, bins_total,
-                      warmup_steps, measure_steps
+                      warmup_steps, measure_steps; with a precision target also target (JSON list of
+                      [observable, error, relative]) and target_met (1: the run ended with it met)
     /vbs_histogram    int64[nh, nh] counts of (D_x, D_y), attr range r (edges linspace(-r, r, nh+1))
     /checkpoint/<key> Simulation.state() arrays; attrs steps_done, bins_done, steps_total, time, time_iso
-    /exchange         optional, written by replica exchange (:mod:`qmc.exchange.tasks`): attrs for scalars and
-                      short lists, datasets for numpy arrays, subgroups for nested mappings
+    /exchange         optional, written by replica exchange (:mod:`qmc.exchange.records`): attrs for scalars
+                      and short lists, datasets for numpy arrays, subgroups for nested mappings
+    /ground_state     optional, written by a ground-state search by beta doubling
+                      (:mod:`qmc.run.ground_state`): its settings and outcome, and the bins of every
+                      finished stage (same storage rules);
+                      /bins then holds the current (last) stage and its beta
 
-Crash safety: :func:`write_task` writes a complete new file ``<name>.h5.tmp``, flushes and fsyncs it,
-``os.replace``-s it onto ``<name>.h5`` and fsyncs the directory, so a kill at any moment leaves the previous
-complete file.  A file that is not a task file of the same task is never overwritten.
-
-Run index ``RUN_DIR/index.json`` (``format = "dsqmc-run-index"``, ``format_version = 1``): see
-:func:`new_index`.  It is written atomically the same way, by one process only.
+Crash safety: :func:`write_task` builds the new file in memory and replaces the whole file atomically
+(:mod:`qmc.storage.atomic`), so a kill at any moment leaves the previous complete file, and a full disk or
+another fault of the machine is one :class:`~qmc.storage.faults.WriteFault` (the HDF5 library itself never
+writes to the disk, so it is never left with a half-written file).  A file that is not a task file of the
+same task is never overwritten.
 """
 
 from __future__ import annotations
 
 import json
 import os
-import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -39,28 +43,19 @@ from typing import Any
 import numpy as np
 
 from qmc.errors import UserError
+from qmc.storage.atomic import atomic_write_bytes
+from qmc.storage.formats import TASK_FORMAT, TASK_VERSION, known_format, note_old_format, short_reason
+from qmc.storage.hdf5_values import attribute, fill_mapping, plain, read_mapping, storable
+from qmc.storage.provenance import now_iso
+from qmc.storage.run_index import load_index
 
 __all__ = [
-    "TASK_FORMAT", "FORMAT_VERSION", "INDEX_FORMAT", "INDEX_VERSION", "TASK_STATUSES",
-    "TaskData", "TaskRecord", "task_path", "write_task", "read_task", "read_run", "task_header",
-    "atomic_write_text", "new_index", "load_index", "write_index", "now_iso",
+    "TASK_STATUSES", "TaskData", "TaskRecord", "task_path", "write_task", "read_task", "read_run",
+    "task_header",
 ]
 
-TASK_FORMAT = "dsqmc-task"
-FORMAT_VERSION = 1
-INDEX_FORMAT = "dsqmc-run-index"
-INDEX_VERSION = 1
 TASK_STATUSES = ("pending", "running", "stopped", "done", "failed")
 _SEP = ":"  # replaces "/" in dataset names under /bins
-
-
-def now_iso(t: float | None = None) -> str:
-    """Local time with offset, seconds precision, e.g. ``2024-06-11T14:03:00+02:00``."""
-    return time.strftime("%Y-%m-%dT%H:%M:%S%z", time.localtime(time.time() if t is None else t))
-
-
-# ----------------------------------------------------------------------------------------------------------
-# data classes
 
 
 @dataclass
@@ -69,7 +64,9 @@ class TaskData:
 
     ``bins[name]`` is float64[bins_done] (bin averages); ``vbs_histogram`` is None when the lattice has no
     two-direction valence-bond order parameter.  ``checkpoint`` holds the Simulation state arrays only when
-    requested (``read_task(path, with_checkpoint=True)``).
+    requested (``read_task(path, with_checkpoint=True)``).  ``target`` lists the goals of a precision
+    target (``[observable, error, relative]``, None without one) and ``target_met`` whether the run ended
+    with it met; ``ground_state`` is the ``/ground_state`` group of a search by beta doubling (else None).
     """
 
     task_id: str
@@ -83,6 +80,8 @@ class TaskData:
     vbs_hist_range: float | None
     status: str
     exchange: dict | None = None
+    file_format: str = TASK_FORMAT
+    format_version: int = TASK_VERSION
     path: str = ""
     message: str = ""
     bin_names: tuple[str, ...] = ()
@@ -97,6 +96,9 @@ class TaskData:
     provenance: dict[str, Any] = field(default_factory=dict)
     model_info: dict[str, Any] = field(default_factory=dict)
     checkpoint: dict[str, np.ndarray] | None = None
+    target: list | None = None
+    target_met: bool = False
+    ground_state: dict[str, Any] | None = None
 
 
 @dataclass
@@ -122,83 +124,25 @@ class TaskRecord:
     checkpoint_attrs: Mapping[str, Any]
     message: str = ""
     exchange: Mapping[str, Any] | None = None
+    ground_state: Mapping[str, Any] | None = None
 
 
 def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
     """``RUN_DIR/tasks/<task_id>.h5``."""
     return Path(run_dir) / "tasks" / f"{task_id}.h5"
 
-
 # ----------------------------------------------------------------------------------------------------------
-# atomic replacement
-
-
-def _fsync_path(path: Path, directory: bool = False) -> None:
-    flags = os.O_RDONLY | (getattr(os, "O_DIRECTORY", 0) if directory else 0)
-    try:
-        fd = os.open(path, flags)
-    except OSError:
-        if directory:  # some platforms cannot open directories; the rename is still atomic
-            return
-        raise
-    try:
-        os.fsync(fd)
-    except OSError:
-        if not directory:
-            raise
-    finally:
-        os.close(fd)
-
-
-def _replace(tmp: Path, path: Path) -> None:
-    _fsync_path(tmp)
-    os.replace(tmp, path)
-    _fsync_path(path.parent, directory=True)
-
-
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
-    """Write ``text`` to ``path`` via ``path.tmp`` + fsync + rename (+ fsync of the directory)."""
-    path = Path(path)
-    tmp = path.with_name(path.name + ".tmp")
-    try:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-        _replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-
-
-# ----------------------------------------------------------------------------------------------------------
-# task files: writing
-
-
-def _attr(value: Any) -> Any:
-    """A value h5py can store as an attribute (None -> "", nested lists/dicts -> JSON text)."""
-    if value is None:
-        return ""
-    if isinstance(value, (dict, list, tuple)) and not _flat_numbers(value):
-        return json.dumps(value, default=str)
-    if isinstance(value, (list, tuple)):
-        return np.asarray(value)
-    return value
-
-
-def _flat_numbers(value: Any) -> bool:
-    return isinstance(value, (list, tuple)) and len(value) > 0 and all(
-        isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool) for v in value)
-
-
-def _storable(a: np.ndarray) -> np.ndarray:
-    """Unicode arrays become UTF-8 bytes (HDF5 has no fixed-width unicode type)."""
-    if a.dtype.kind == "U":
-        return np.char.encode(a, "utf-8")
-    return a
+# writing
 
 
 def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
-    """Write the whole task file atomically (see module docstring); refuses to replace a foreign file."""
+    """Write the whole task file atomically; refuses to replace a file that is not this task's file.
+
+    The file is built in memory (an ``io.BytesIO`` opened by h5py) and its bytes are written with plain
+    system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
+    :class:`~qmc.storage.faults.WriteFault`, the previous file stays, no temporary file is left."""
+    import io
+
     import h5py
 
     path = Path(path)
@@ -207,20 +151,15 @@ def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
         if head["task_id"] != record.task_id:
             raise UserError(f"holds task {head['task_id']!r}, not {record.task_id!r}; not overwriting it",
                             str(path))
-    tmp = path.with_name(path.name + ".tmp")
-    try:
-        with h5py.File(tmp, "w") as f:
-            _fill(f, record)
-            f.flush()
-        _replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    image = io.BytesIO()
+    with h5py.File(image, "w") as f:
+        _fill(f, record)
+    atomic_write_bytes(path, image.getbuffer())
 
 
 def _fill(f: Any, rec: TaskRecord) -> None:
     f.attrs["format"] = TASK_FORMAT
-    f.attrs["format_version"] = FORMAT_VERSION
+    f.attrs["format_version"] = TASK_VERSION
     f.attrs["task_id"] = rec.task_id
     f.attrs["status"] = rec.status
     f.attrs["message"] = rec.message
@@ -232,13 +171,13 @@ def _fill(f: Any, rec: TaskRecord) -> None:
     g.attrs["fingerprint"] = rec.config_fingerprint
     g = f.create_group("params", track_order=True)
     for k, v in rec.params.items():
-        g.attrs[k] = _attr(v)
+        g.attrs[k] = attribute(v)
     g = f.create_group("model")
     for k, v in rec.model.items():
-        g.create_dataset(k, data=_storable(np.asarray(v)))
+        g.create_dataset(k, data=storable(np.asarray(v)))
     g = f.create_group("provenance", track_order=True)
     for k, v in rec.provenance.items():
-        g.attrs[k] = _attr(v)
+        g.attrs[k] = attribute(v)
     g.attrs["sessions"] = json.dumps(rec.sessions)
     g = f.create_group("bins")
     rows = np.asarray(rec.bins, dtype=np.float64).reshape(-1, len(rec.bin_names))
@@ -257,30 +196,13 @@ def _fill(f: Any, rec: TaskRecord) -> None:
     for k, v in rec.checkpoint_attrs.items():
         g.attrs[k] = v
     if rec.exchange is not None:
-        _fill_mapping(f.create_group("exchange"), rec.exchange)
-
-
-def _fill_mapping(g: Any, values: Mapping[str, Any]) -> None:
-    """numpy arrays -> datasets, mappings -> subgroups, everything else -> attributes."""
-    for k, v in values.items():
-        if isinstance(v, np.ndarray):
-            g.create_dataset(k, data=_storable(v))
-        elif isinstance(v, Mapping):
-            _fill_mapping(g.create_group(k), v)
-        else:
-            g.attrs[k] = _attr(v)
-
-
-def _read_mapping(g: Any) -> dict[str, Any]:
-    """Inverse of :func:`_fill_mapping` (attributes as plain values, datasets as numpy arrays)."""
-    out: dict[str, Any] = {k: _py(v) for k, v in g.attrs.items()}
-    for k, v in g.items():
-        out[k] = _read_mapping(v) if hasattr(v, "keys") else np.asarray(v[()])
-    return out
+        fill_mapping(f.create_group("exchange"), rec.exchange)
+    if rec.ground_state is not None:
+        fill_mapping(f.create_group("ground_state"), rec.ground_state)
 
 
 # ----------------------------------------------------------------------------------------------------------
-# task files: reading
+# reading
 
 
 def _open(path: Path) -> Any:
@@ -302,58 +224,48 @@ def _open(path: Path) -> Any:
     try:
         return h5py.File(path, "r")
     except Exception as exc:  # h5py raises OSError with the HDF5 library's description
-        raise UserError(f"damaged or truncated HDF5 file, cannot be opened ({_short(exc)})",
+        raise UserError(f"damaged or truncated HDF5 file, cannot be opened ({short_reason(exc)})",
                         str(path)) from None
-
-
-def _short(exc: BaseException) -> str:
-    text = str(exc).split("\n")[0]
-    return text if len(text) < 160 else text[:157] + "..."
 
 
 def _check_root(f: Any, path: Path) -> None:
     fmt = f.attrs.get("format")
-    if isinstance(fmt, bytes):
-        fmt = fmt.decode("utf-8", "replace")
     if fmt is None:
         raise UserError(f"a foreign HDF5 file (it has no 'format' attribute); not a {TASK_FORMAT} task file",
                         str(path))
-    if fmt != TASK_FORMAT:
-        raise UserError(f"a foreign HDF5 file (format {fmt!r}, expected {TASK_FORMAT!r})", str(path))
+    kind = known_format(fmt, TASK_FORMAT)
+    if kind is None:
+        raise UserError(f"a foreign HDF5 file (format {plain(fmt)!r}, expected {TASK_FORMAT!r})", str(path))
     version = int(f.attrs.get("format_version", -1))
-    if version != FORMAT_VERSION:
-        raise UserError(f"task file format version {version}; this program reads version {FORMAT_VERSION} "
+    if version != TASK_VERSION:
+        raise UserError(f"task file format version {version}; this program reads version {TASK_VERSION} "
                         "(written by a different release)", str(path))
-
-
-def _py(value: Any) -> Any:
-    """Plain Python value of an HDF5 attribute or small dataset (bytes decoded, arrays as lists)."""
-    if isinstance(value, bytes):
-        return value.decode("utf-8", "replace")
-    if isinstance(value, np.ndarray):
-        return [_py(v) for v in value.tolist()] if value.ndim else _py(value.item())
-    if isinstance(value, list):
-        return [_py(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
+    if kind == "old":
+        note_old_format(TASK_FORMAT, plain(fmt), str(path))
 
 
 def task_header(path: str | os.PathLike) -> dict[str, Any]:
-    """Root attributes and checkpoint counters of a task file (cheap); UserError if it is not one."""
+    """Root attributes, checkpoint counters (``checkpoint_<attr>``), bin attributes (``bins_<attr>``, e.g.
+    ``bins_steps_per_bin``) and ``sessions`` (the list of provenance) of a task file (cheap); UserError if
+    it is not one."""
     path = Path(path)
     f = _open(path)
     try:
         with f:
             _check_root(f, path)
-            head = {k: _py(v) for k, v in f.attrs.items()}
-            cp = f.get("checkpoint")
-            head.update({f"checkpoint_{k}": _py(v) for k, v in (cp.attrs.items() if cp is not None else ())})
+            head = {k: plain(v) for k, v in f.attrs.items()}
+            for group in ("checkpoint", "bins"):
+                g = f.get(group)
+                items = g.attrs.items() if g is not None else ()
+                head.update({f"{group}_{k}": plain(v) for k, v in items if k != "names"})
+            prov = f.get("provenance")
+            sessions = plain(prov.attrs.get("sessions", "[]")) if prov is not None else "[]"
+            head["sessions"] = json.loads(sessions) if isinstance(sessions, str) else []
             return head
     except UserError:
         raise
     except Exception as exc:
-        raise UserError(f"damaged task file ({_short(exc)})", str(path)) from None
+        raise UserError(f"damaged task file ({short_reason(exc)})", str(path)) from None
 
 
 def read_task(path: str | os.PathLike, *, with_checkpoint: bool = False) -> TaskData:
@@ -367,8 +279,8 @@ def read_task(path: str | os.PathLike, *, with_checkpoint: bool = False) -> Task
     except UserError:
         raise
     except Exception as exc:
-        raise UserError(f"damaged task file, a part cannot be read ({type(exc).__name__}: {_short(exc)})",
-                        str(path)) from None
+        raise UserError(f"damaged task file, a part cannot be read ({type(exc).__name__}: "
+                        f"{short_reason(exc)})", str(path)) from None
 
 
 def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
@@ -381,7 +293,7 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
 
     def visit(_: str, obj: Any) -> None:
         if hasattr(obj, "shape") and hasattr(obj, "dtype"):
-            found[_py(obj.attrs.get("name", obj.name[len(bg.name) + 1:]))] = np.asarray(obj[()], np.float64)
+            found[plain(obj.attrs.get("name", obj.name[len(bg.name) + 1:]))] = np.asarray(obj[()], np.float64)
 
     bg.visititems(visit)
     names = tuple(names) if names is not None else tuple(sorted(found))
@@ -396,21 +308,25 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
         h = np.asarray(f["vbs_histogram"][()], dtype=np.int64)
         if h.size:
             hist, hist_range = h, float(f["vbs_histogram"].attrs.get("range", 0.0))
-    prov = {k: _py(v) for k, v in f["provenance"].attrs.items()}
+    prov = {k: plain(v) for k, v in f["provenance"].attrs.items()}
     if isinstance(prov.get("sessions"), str):
         prov["sessions"] = json.loads(prov["sessions"])
-    exchange = _read_mapping(f["exchange"]) if "exchange" in f else None
+    exchange = read_mapping(f["exchange"]) if "exchange" in f else None
+    ground_state = read_mapping(f["ground_state"]) if "ground_state" in f else None
     model_info = {}
     if "model" in f:
         for key in ("n_sites", "linear_size", "lattice_kind", "group_names", "dir_names"):
             if key in f["model"]:
-                model_info[key] = _py(f["model"][key][()])
+                model_info[key] = plain(f["model"][key][()])
+        for key in ("vbs_bonds", "vbs_dir", "vbs_phase"):  # the dimer order parameter's bonds, as arrays
+            if key in f["model"]:
+                model_info[key] = np.asarray(f["model"][key][()])
         if "term_coupling" in f["model"]:
             model_info["n_terms"] = int(f["model"]["term_coupling"].shape[0])
     ba = bg.attrs
     return TaskData(
-        task_id=_py(f.attrs["task_id"]),
-        params={k: _py(v) for k, v in f["params"].attrs.items()},
+        task_id=plain(f.attrs["task_id"]),
+        params={k: plain(v) for k, v in f["params"].attrs.items()},
         bins=bins,
         steps_per_bin=int(ba["steps_per_bin"]),
         n_sites=int(ba["n_sites"]),
@@ -418,22 +334,27 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
         beta=float(ba["beta"]),
         vbs_histogram=hist,
         vbs_hist_range=hist_range,
-        status=_py(f.attrs.get("status", "")),
+        status=plain(f.attrs.get("status", "")),
+        file_format=TASK_FORMAT,
+        format_version=int(f.attrs.get("format_version", TASK_VERSION)),
         exchange=exchange,
         path=str(path),
-        message=_py(f.attrs.get("message", "")),
+        message=plain(f.attrs.get("message", "")),
         bin_names=names,
         bins_done=bins_done,
         bins_total=int(ba.get("bins_total", 0)),
         steps_done=int(cp.attrs.get("steps_done", 0)),
         steps_total=int(cp.attrs.get("steps_total", 0)),
-        checkpoint_time=_py(cp.attrs.get("time_iso", "")),
-        task_fingerprint=_py(f.attrs.get("task_fingerprint", "")),
-        config_text=_py(f["config"].attrs.get("toml", "")),
-        config_path=_py(f["config"].attrs.get("path", "")),
+        checkpoint_time=plain(cp.attrs.get("time_iso", "")),
+        task_fingerprint=plain(f.attrs.get("task_fingerprint", "")),
+        config_text=plain(f["config"].attrs.get("toml", "")),
+        config_path=plain(f["config"].attrs.get("path", "")),
         provenance=prov,
         model_info=model_info,
         checkpoint={k: np.asarray(v[()]) for k, v in cp.items()} if with_checkpoint else None,
+        target=json.loads(plain(ba["target"])) if "target" in ba else None,
+        target_met=bool(plain(ba.get("target_met", 0))),
+        ground_state=ground_state,
     )
 
 
@@ -459,56 +380,3 @@ def read_run(run_dir: str | os.PathLike) -> list[TaskData]:
     seen = {p.resolve() for p in order}
     order += [p for p in files if p.resolve() not in seen]
     return [read_task(p) for p in order]
-
-
-# ----------------------------------------------------------------------------------------------------------
-# run index
-
-
-def new_index(fingerprint: str, config_source: str, name: str, tasks: list[dict[str, Any]]) -> dict[str, Any]:
-    """A fresh run index.
-
-    Layout::
-
-        {"format": "dsqmc-run-index", "format_version": 1, "fingerprint": <config fingerprint>,
-         "config_source": <path of the configuration given to qmc run>, "name": <run name>,
-         "created": <iso time>, "updated": <iso time>,
-         "tasks": {<task_id>: {"params": {...}, "file": "tasks/<task_id>.h5",
-                               "status": "pending"|"running"|"stopped"|"done"|"failed", "message": "",
-                               "bins_done": int, "bins_total": int, "steps_done": int, "steps_total": int,
-                               "seconds": float (wall time of all sessions), "updated": <iso time>}}}
-
-    ``tasks`` entries must hold at least ``task_id``, ``params``, ``bins_total``, ``steps_total``.
-    """
-    t = now_iso()
-    entries = {}
-    for d in tasks:
-        entries[d["task_id"]] = {
-            "params": d["params"], "file": f"tasks/{d['task_id']}.h5", "status": "pending", "message": "",
-            "bins_done": 0, "bins_total": int(d["bins_total"]), "steps_done": 0,
-            "steps_total": int(d["steps_total"]), "seconds": 0.0, "updated": t,
-        }
-    return {"format": INDEX_FORMAT, "format_version": INDEX_VERSION, "fingerprint": fingerprint,
-            "config_source": config_source, "name": name, "created": t, "updated": t, "tasks": entries}
-
-
-def load_index(run_dir: str | os.PathLike) -> dict[str, Any] | None:
-    """The run index of ``run_dir``, None if there is none; UserError if it is unreadable or foreign."""
-    path = Path(run_dir) / "index.json"
-    if not path.exists():
-        return None
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise UserError(f"the run index cannot be read ({_short(exc)})", str(path)) from None
-    if not isinstance(data, dict) or data.get("format") != INDEX_FORMAT:
-        raise UserError(f"not a run index written by qmc (no format {INDEX_FORMAT!r})", str(path))
-    if data.get("format_version") != INDEX_VERSION or not isinstance(data.get("tasks"), dict):
-        raise UserError(f"run index version {data.get('format_version')!r} is not supported", str(path))
-    return data
-
-
-def write_index(run_dir: str | os.PathLike, index: dict[str, Any]) -> None:
-    """Write ``RUN_DIR/index.json`` atomically (one process only)."""
-    index["updated"] = now_iso()
-    atomic_write_text(Path(run_dir) / "index.json", json.dumps(index, indent=1, default=_py) + "\n")

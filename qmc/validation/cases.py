@@ -11,6 +11,10 @@ results into :class:`~qmc.validation.checks.Check` rows.  Case families (builder
   finite-size extrapolation against Sandvik (1997) and Sandvik and Evertz (2010).
 * :func:`bilayer_critical_case` -- the bilayer's critical J_inter/J_intra bracketed by the crossings of the
   Binder ratio and of rho_s L, against Wang, Beach and Sandvik (2006).
+* :func:`qmc.validation.colour_cases.sun_order_case` -- the SU(N) Heisenberg model: Neel order for N = 4,
+  valence-bond order for N = 5 (Harada, Kawashima and Troyer 2003; Beach, Alet, Mambrini and Capponi 2009).
+* :mod:`qmc.validation.directed_cases` -- XXZ clusters in a field against exact diagonalization, the
+  saturation field of the square lattice, the XY model's Kosterlitz-Thouless temperature.
 
 :func:`build_cases` assembles the ``quick`` and ``thorough`` suites.  Statistical errors: binning analysis
 of the bins (:func:`qmc.analysis.error_estimate`), jackknife with binning for ratios
@@ -21,21 +25,24 @@ of the bins (:func:`qmc.analysis.error_estimate`), jackknife with binning for ra
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
-from qmc.analysis import derived_estimates, error_estimate, find_crossing
+from qmc.analysis import derived_estimates, find_crossing
+from qmc.analysis.powerfit import drop_smallest_shift, fit_powers
+from qmc.analysis.size_extrapolation import default_powers, full_vector_magnetisation
 from qmc.errors import UserError
 from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
+from .case import Case, mean_error, merged, sim_jobs
 from .checks import Check
+from .colour_cases import sun_order_case
+from .directed_cases import kt_case, saturation_case, xxz_cluster_case
 from .exact.bethe import chain_ground_state_energy
 from .exact.clusters import cluster_observables
-from .fits import fit_powers
-from .jobs import ExactJob, Job, ModelSpec, SimJob, SimResult
+from .jobs import ExactJob, ModelSpec, SimJob
 from .references import (
     BETHE_SOURCE,
     BILAYER_CRITICAL_COUPLING,
@@ -43,7 +50,6 @@ from .references import (
     CHAIN_GROUND_STATE_ENERGY,
     SQUARE_GROUND_STATE_ENERGY,
     SQUARE_STAGGERED_MAGNETIZATION,
-    Reference,
     computed,
 )
 
@@ -60,53 +66,6 @@ __all__ = [
 
 MODES = ("quick", "thorough")
 CLUSTER_OBSERVABLES = ("energy", "specific_heat", "chi_uniform", "m_stag2", "stiffness")
-
-
-@dataclass(frozen=True)
-class Case:
-    """A named check: ``evaluate(results)`` gets ``{job.key: result}`` for its ``jobs``.
-
-    ``reference`` is used for the failure row when the case cannot be evaluated."""
-
-    name: str
-    jobs: tuple[Job, ...]
-    evaluate: Callable[[Mapping[str, Any]], list[Check]]
-    reference: Reference
-
-
-def _steps(measure: int, bins: int) -> int:
-    """Round ``measure`` up to a multiple of ``bins``."""
-    return bins * max(1, math.ceil(measure / bins))
-
-
-def _sims(key: str, spec: ModelSpec, beta: float, warmup: int, measure: int, bins: int, n_sites: int,
-          density: float, max_seconds: float | None) -> tuple[SimJob, ...]:
-    """One simulation, or independent replicas (keys ``key/r=i``) of it when its estimated cost exceeds
-    ``max_seconds``: each replica runs its own warm-up and ~1/k of the measurement with the same steps
-    per bin, so their bins can be concatenated (:func:`_merged`)."""
-    one = SimJob(key, spec, float(beta), int(warmup), _steps(measure, bins), int(bins), n_sites, density)
-    k = 1 if not max_seconds else max(1, math.ceil(one.cost / max_seconds))
-    if k == 1:
-        return (one,)
-    per_bin = one.measure // one.bins
-    bins_r = math.ceil(one.bins / k)
-    return tuple(SimJob(f"{key}/r={i}", spec, float(beta), int(warmup), per_bin * bins_r, bins_r, n_sites,
-                        density) for i in range(k))
-
-
-def _merged(results: Mapping[str, Any], jobs: Sequence[SimJob]) -> SimResult:
-    """The bins of the replicas ``jobs``, concatenated (equal steps per bin: common practice, no source)."""
-    parts: list[SimResult] = [results[j.key] for j in jobs]
-    if len(parts) == 1:
-        return parts[0]
-    bins = {name: np.concatenate([p.bins[name] for p in parts]) for name in parts[0].bins}
-    first = parts[0]
-    return SimResult(bins, first.n_sites, first.linear_size, first.beta, sum(p.seconds for p in parts))
-
-
-def _mean_error(series: np.ndarray) -> tuple[float, float]:
-    est = error_estimate(series)
-    return est.mean, est.error
 
 
 # ------------------------------------------------------------------------------------------ ED clusters
@@ -130,7 +89,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
     n_sites = int(np.prod(size)) * (2 if kind == "bilayer" else 1)
     spec = _cluster_model(kind, size, J, Q, J_inter)
     density = 0.3 * (abs(J) * (1 if kind == "chain" else 2) + abs(J_inter) + 2 * abs(Q)) + 0.3
-    sims = _sims(f"cluster/{label}/beta={beta:g}", spec, beta, warmup, measure, bins, n_sites, density,
+    sims = sim_jobs(f"cluster/{label}/beta={beta:g}", spec, beta, warmup, measure, bins, n_sites, density,
                  max_seconds)
     exact = ExactJob(f"exact/{label}/beta={beta:g}", cluster_observables,
                      dict(kind=kind, size=size, beta=float(beta), J=J, Q=Q, J_inter=J_inter),
@@ -141,7 +100,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
             f"specific heat by jackknife")
 
     def evaluate(results: Mapping[str, Any]) -> list[Check]:
-        res = _merged(results, sims)
+        res = merged(results, sims)
         ref = results[exact.key]
         derived = derived_estimates(res.bins, res.n_sites, res.linear_size, names=("specific_heat",))
         out = []
@@ -149,7 +108,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
             if obs == "specific_heat":
                 value, err = derived[obs].value, derived[obs].error
             else:
-                value, err = _mean_error(res.bins[obs])
+                value, err = mean_error(res.bins[obs])
             out.append(Check(f"{name}: {obs}", value, err, computed(ref[obs]), 0.0, note))
         return out
 
@@ -180,8 +139,8 @@ def chain_energy_case(sizes: Sequence[int], *, beta_per_L: float = 4.0, warmup: 
     for L in sizes:
         spec = ModelSpec("chain", (L,), (HeisenbergTerm("nn", 1.0),))
         beta = beta_per_L * L
-        jobs[L] = _sims(f"chain/L={L}/beta={beta:g}", spec, beta, warmup, (measure_for or {}).get(L, measure),
-                        bins, L, 0.7, max_seconds)
+        jobs[L] = sim_jobs(f"chain/L={L}/beta={beta:g}", spec, beta, warmup,
+                           (measure_for or {}).get(L, measure), bins, L, 0.7, max_seconds)
     name = "chain e0"
     listed = ", ".join(map(str, sizes))
     fit_note = (f"chain e_inf: weighted fit e(L) = e_inf - a/L^2 (leading CFT correction, "
@@ -194,7 +153,7 @@ def chain_energy_case(sizes: Sequence[int], *, beta_per_L: float = 4.0, warmup: 
         out = []
         e, de, exact = [], [], []
         for L in sizes:
-            value, err = _mean_error(_merged(results, jobs[L]).bins["energy"])
+            value, err = mean_error(merged(results, jobs[L]).bins["energy"])
             gap, beta = _chain_gap_floor(L), beta_per_L * L
             thermal = 3.0 * gap * math.exp(-beta * gap) / L
             ref = chain_ground_state_energy(L)
@@ -230,10 +189,8 @@ def _extrapolate(sizes: Sequence[int], y: Sequence[float], dy: Sequence[float],
     of the limit when the smallest size is left out (stability against the neglected higher-order
     corrections, common practice, no source); 0 when too few sizes remain for a fit with dof >= 1."""
     fit = fit_powers(sizes, y, dy, powers)
-    sys = 0.0
-    if len(sizes) - 1 >= len(powers) + 2:
-        sys = abs(fit_powers(sizes[1:], y[1:], dy[1:], powers).limit - fit.limit)
-    return fit.limit, fit.limit_err, sys
+    shift = drop_smallest_shift(sizes, y, dy, powers, full=fit).value
+    return fit.limit, fit.limit_err, abs(shift) if math.isfinite(shift) else 0.0
 
 
 def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measure: int = 40_000,
@@ -245,13 +202,14 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
     Phys. Rev. B 39, 2608 (1989), from memory).  m_s^2(L) = 3 m_stag2(L) (rotational average of the
     singlet ground state: the z component carries 1/3 of <M_s.M_s>), fitted with
     m_s^2(L) = m_s^2 + a/L + b/L^2; m_s = sqrt(m_s^2).  Systematic allowance of both: the change of the
-    limit when the smallest size is left out (see :func:`_extrapolate`)."""
+    limit when the smallest size is left out (see :func:`_extrapolate`).  Powers and m_s are those of
+    ``qmc analyze --extrapolate`` (:mod:`qmc.analysis.size_extrapolation`)."""
     sizes = sorted(int(L) for L in sizes)
     jobs = {}
     for L in sizes:
         spec = ModelSpec("square", (L, L), (HeisenbergTerm("nn", 1.0),))
-        jobs[L] = _sims(f"square/L={L}/beta={square_beta(L):g}", spec, square_beta(L), warmup,
-                        (measure_for or {}).get(L, measure), bins, L * L, 1.2, max_seconds)
+        jobs[L] = sim_jobs(f"square/L={L}/beta={square_beta(L):g}", spec, square_beta(L), warmup,
+                           (measure_for or {}).get(L, measure), bins, L * L, 1.2, max_seconds)
     span = f"L={sizes[0]}..{sizes[-1]}"
     e_note = (f"square e0: fit e(L) = e_inf + a/L^3 + b/L^4 to {span} at beta = max(64, L^2/2); sys = "
               f"change of e_inf when the smallest L is left out")
@@ -259,21 +217,21 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
               f"when the smallest L is left out")
 
     def series(results: Mapping[str, Any], obs: str) -> tuple[list[float], list[float]]:
-        pairs = [_mean_error(_merged(results, jobs[L]).bins[obs]) for L in sizes]
+        pairs = [mean_error(merged(results, jobs[L]).bins[obs]) for L in sizes]
         return [p[0] for p in pairs], [p[1] for p in pairs]
 
     def evaluate_energy(results: Mapping[str, Any]) -> list[Check]:
         e, de = series(results, "energy")
-        value, err, sys = _extrapolate(sizes, e, de, (3.0, 4.0))
+        value, err, sys = _extrapolate(sizes, e, de, default_powers("energy", 2)[0])
         return [Check(f"square e0 ({span})", value, err, SQUARE_GROUND_STATE_ENERGY, sys, e_note)]
 
     def evaluate_ms(results: Mapping[str, Any]) -> list[Check]:
         m2, dm2 = series(results, "m_stag2")
-        y, dy = [3.0 * v for v in m2], [3.0 * v for v in dm2]
-        value, err, sys = _extrapolate(sizes, y, dy, (1.0, 2.0))
-        ms = math.sqrt(value) if value > 0 else float("nan")
-        return [Check(f"square m_s ({span})", ms, err / (2 * ms), SQUARE_STAGGERED_MAGNETIZATION,
-                      sys / (2 * ms), m_note)]
+        value, err, sys = _extrapolate(sizes, m2, dm2, default_powers("m_stag2", 2)[0])
+        fv = full_vector_magnetisation(value, err, sys)
+        sys_ms = abs(fv["m_s_drop_smallest_shift"]) if math.isfinite(fv["m_s_drop_smallest_shift"]) else 0.0
+        return [Check(f"square m_s ({span})", fv["m_s"], fv["m_s_err"], SQUARE_STAGGERED_MAGNETIZATION,
+                      sys_ms, m_note)]
 
     all_jobs = sum(jobs.values(), ())
     return [Case("square e0", all_jobs, evaluate_energy, SQUARE_GROUND_STATE_ENERGY),
@@ -298,9 +256,9 @@ def bilayer_critical_case(sizes: Sequence[int], couplings: Sequence[float], *, b
     for L in sizes:
         for g in couplings:
             spec = ModelSpec("bilayer", (L, L), (HeisenbergTerm("intra", 1.0), HeisenbergTerm("inter", g)))
-            jobs[L, g] = _sims(f"bilayer/L={L}/g={g:.4f}/beta={beta_per_L * L:g}", spec, beta_per_L * L,
-                               warmup, (measure_for or {}).get(L, measure), bins, 2 * L * L,
-                               0.3 * (4 + g) + 0.3, max_seconds)
+            jobs[L, g] = sim_jobs(f"bilayer/L={L}/g={g:.4f}/beta={beta_per_L * L:g}", spec, beta_per_L * L,
+                                  warmup, (measure_for or {}).get(L, measure), bins, 2 * L * L,
+                                  0.3 * (4 + g) + 0.3, max_seconds)
     L1, L2 = (sizes[-2], sizes[-1]) if len(sizes) >= 2 else (sizes[0], sizes[0])
     name = f"bilayer g_c (L={L1},{L2})"
 
@@ -309,7 +267,7 @@ def bilayer_critical_case(sizes: Sequence[int], couplings: Sequence[float], *, b
         for L in (L1, L2):
             rows = {q: ([], [], []) for q in curves}
             for g in couplings:
-                res = _merged(results, jobs[L, g])
+                res = merged(results, jobs[L, g])
                 est = derived_estimates(res.bins, res.n_sites, res.linear_size, names=tuple(curves))
                 for q in curves:
                     rows[q][0].append(g)
@@ -345,6 +303,8 @@ def build_cases(mode: str) -> list[Case]:
                               max_seconds=40.0),
             cluster_case("4x4 Heisenberg", "square", (4, 4), 4.0, measure=400_000),
             cluster_case("4x4 J-Q2 (Q/J=1)", "square", (4, 4), 2.0, Q=1.0, measure=400_000),
+            xxz_cluster_case("chain L=12 xxz (delta=0.5, h=0.6)", "chain", (12,), 2.0, 1.0, 0.5, 0.6,
+                             measure=400_000),
         ]
     if mode == "thorough":
         long = 1200.0  # split longer simulations into replicas (seconds, estimated)
@@ -362,5 +322,14 @@ def build_cases(mode: str) -> list[Case]:
                                        measure_for={8: 400_000, 10: 300_000, 12: 200_000}, max_seconds=long),
             bilayer_critical_case((8, 16, 32), [2.44 + 0.02 * k for k in range(8)], measure=40_000,
                                   max_seconds=long),
+            *(sun_order_case(N, (8, 12, 16, 24, 32), measure=100_000, max_seconds=long) for N in (4, 5)),
+            xxz_cluster_case("4x4 easy-plane (delta=0.5, h=0.8)", "square", (4, 4), 2.0, 1.0, 0.5, 0.8,
+                             measure=2_000_000, max_seconds=long),
+            xxz_cluster_case("4x4 easy-axis (delta=2, h=1.5)", "square", (4, 4), 2.0, 1.0, 2.0, 1.5,
+                             measure=2_000_000, max_seconds=long),
+            xxz_cluster_case("4x4 XY ferromagnet (h=0.3)", "square", (4, 4), 2.0, -1.0, 0.0, 0.3,
+                             measure=2_000_000, max_seconds=long),
+            saturation_case(16, (4.5, 5.0), 16.0, max_seconds=long),
+            kt_case((8, 16, 32, 64), [0.32 + 0.01 * k for k in range(12)], max_seconds=long),
         ]
     raise UserError(f"unknown mode {mode!r}; choose one of {', '.join(MODES)}", "qmc validate")
