@@ -15,7 +15,7 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
   flipped with probability 1/2; the other sites follow the loop through their first leg.
 
 The kind needs no tables of its own: its record :class:`ProjectorKind` is empty.  It is the fast path
-(benchmarks/c_compare.py) and must stay bit-identical (tests/test_stored_bins.py).
+(benchmarks/c_compare.py) and must stay bit-identical (tests/chain/test_stored_bins.py).
 """
 
 from __future__ import annotations

@@ -14,17 +14,16 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.paths import REPO as ROOT
 
 import qmc
 from qmc.errors import UserError
 
-ROOT = Path(__file__).resolve().parents[1]
-
 
 def readme_example() -> str:
     text = (ROOT / "README.md").read_text(encoding="utf-8")
-    m = re.search(r"<!-- README example: tests/test_api.py runs exactly this block -->\n```python\n(.*?)```",
-                  text, re.S)
+    marker = r"<!-- README example: tests/cli/test_api.py runs exactly this block -->"
+    m = re.search(marker + r"\n```python\n(.*?)```", text, re.S)
     assert m, "the README's Python example (with its marker line) is missing"
     return m.group(1)
 

@@ -11,13 +11,12 @@ import re
 from pathlib import Path
 
 import pytest
+from helpers.paths import REPO
 
 from qmc.config.parser import build_model, config_fingerprint, load_config, validate
 from qmc.config.templates import TEMPLATES, template
 from qmc.errors import UserError
 from qmc.run.task_identity import task_fingerprint
-
-REPO = Path(__file__).resolve().parents[1]
 
 RUN = '[run]\nname = "t"\noutput = "out"\nseed = 7\n'
 LATTICE = '[lattice]\nkind = "bilayer"\nsize = ["L", "L"]\n'

@@ -15,11 +15,12 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from helpers.paths import REPO
 
 from qmc.validation.exact import ExactSpectrum, build_hamiltonian
 from qmc.validation.exact.lattices import q2_plaquette_pairs, square_bonds, square_translations
 
-SOURCE = Path(__file__).resolve().parents[1] / "benchmarks" / "c_reference" / "sse_ref.c"
+SOURCE = REPO / "benchmarks" / "c_reference" / "sse_ref.c"
 CC = shutil.which("cc") or shutil.which("gcc") or shutil.which("clang")
 pytestmark = pytest.mark.skipif(CC is None, reason="no C compiler")
 

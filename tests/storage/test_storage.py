@@ -4,7 +4,6 @@ files written under the earlier format names (read, with one note per process)."
 from __future__ import annotations
 
 import json
-import os
 import signal
 import subprocess
 import sys
@@ -14,6 +13,8 @@ import time
 import h5py
 import numpy as np
 import pytest
+from helpers.paths import TESTS
+from helpers.task_records import NAMES, make_record
 
 import qmc.storage.formats as formats
 import qmc.storage.task_file as storage
@@ -21,37 +22,12 @@ from qmc.errors import UserError
 from qmc.storage.formats import INDEX_FORMAT, TASK_FORMAT
 from qmc.storage.run_index import load_index, new_index, write_index
 from qmc.storage.task_file import (
-    TaskRecord,
     read_run,
     read_task,
     task_header,
     task_path,
     write_task,
 )
-
-NAMES = ("energy", "m_stag2", "stiffness", "stiffness/x", "bond_energy/q2")
-
-
-def make_record(task_id: str = "L4_beta2_r0", n_bins: int = 3, status: str = "running") -> TaskRecord:
-    rows = np.arange(n_bins * len(NAMES), dtype=np.float64).reshape(n_bins, len(NAMES)) / 7.0
-    return TaskRecord(
-        task_id=task_id, status=status, task_fingerprint="f" * 64, config_path="/x/config.toml",
-        config_text="[run]\nseed = 1\n" + "#" * 70000, config_fingerprint="c" * 64,
-        params={"L": 4, "beta": 2.0, "replica": 0, "lattice": "square", "size": [4, 4],
-                "boundary": "periodic"},
-        model={"n_sites": np.asarray(16), "group_names": np.array([b"nn", b"q2"], dtype="S64"),
-               "lattice_kind": np.asarray("square"), "term_coupling": np.ones(5)},
-        provenance={"package_version": "0.1.0", "git_revision": "", "master_seed": 7, "seed_key": "L=4.0",
-                    "stream_seed": np.array([1, 2, 3, 2**64 - 1], dtype=np.uint64)},
-        sessions=[{"start": "a", "stop": "b", "ended": status}],
-        bin_names=NAMES, bins=rows,
-        bins_attrs={"steps_per_bin": 10, "n_sites": 16, "linear_size": 4, "beta": 2.0, "bins_total": 8,
-                    "warmup_steps": 5, "measure_steps": 80},
-        vbs_histogram=np.arange(16, dtype=np.int64).reshape(4, 4), vbs_hist_range=0.25,
-        checkpoint={"spins": np.ones(16, dtype=np.int8), "rng": np.array([5, 6, 7, 8], dtype=np.uint64)},
-        checkpoint_attrs={"steps_done": 35, "bins_done": n_bins, "steps_total": 85, "time": 1.0,
-                          "time_iso": "2024-01-01T00:00:00+0000"},
-    )
 
 
 def test_round_trip(tmp_path):
@@ -115,7 +91,7 @@ def test_failed_write_leaves_previous_file(tmp_path, monkeypatch):
 _WRITER = textwrap.dedent("""
     import sys, numpy as np
     sys.path.insert(0, {tests!r})
-    from test_storage import make_record
+    from helpers.task_records import make_record
     from qmc.storage.task_file import write_task
     k = 1
     while True:
@@ -128,7 +104,7 @@ def test_sigkill_during_writes_always_leaves_a_complete_file(tmp_path):
     """A process rewriting a task file in a loop is killed at random moments; the file always reads."""
     path = tmp_path / "t.h5"
     write_task(path, make_record(n_bins=1))
-    script = _WRITER.format(tests=os.path.dirname(__file__), path=str(path))
+    script = _WRITER.format(tests=str(TESTS), path=str(path))
     rng = np.random.default_rng(5)
     for _ in range(5):
         proc = subprocess.Popen([sys.executable, "-c", script], stderr=subprocess.PIPE)

@@ -9,7 +9,7 @@ from pathlib import Path
 import h5py
 import pytest
 from click.testing import CliRunner
-from stop_sink import StopAfter
+from helpers.stopping import StopAfter
 
 from qmc.cli.main import cli
 from qmc.cli.status import status_text

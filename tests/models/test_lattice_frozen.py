@@ -5,22 +5,22 @@ sizes and both boundary kinds, as built by commit c48469a (the per-kind builders
 declarations of ``models/unit_cell.py``), together with the placements of the two named projector shapes on
 the square-type lattices.  Site numbering, bond order inside each class, the order of the classes,
 displacements, coordinates, sublattices and the dimer pattern must all be reproduced exactly: the
-Monte Carlo chain depends on every one of them (tests/test_stored_bins.py checks the chain itself).
+Monte Carlo chain depends on every one of them (tests/chain/test_stored_bins.py checks the chain itself).
 
-The file was written once with ``python tests/test_lattice_frozen.py --write`` at that commit; the data,
-not the old code, is what the test keeps.
+The file was written once with ``PYTHONPATH=tests python tests/models/test_lattice_frozen.py --write`` at that
+commit; the data, not the old code, is what the test keeps.
 """
 
 from __future__ import annotations
 
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.paths import DATA
 from qmc.models import build_lattice, place_shape
 
-DATA = Path(__file__).parent / "data" / "lattices_before_declaration.npz"
+FROZEN = DATA / "lattices_before_declaration.npz"
 
 #: (kind, size, boundary); periodic length 2 is included because it keeps both bonds (0, 1) and (1, 0)
 CASES = [
@@ -66,7 +66,7 @@ def lattice_arrays(kind: str, size: tuple[int, ...], boundary: str) -> dict[str,
 
 
 def _stored() -> dict[str, np.ndarray]:
-    with np.load(DATA) as z:
+    with np.load(FROZEN) as z:
         return {k: z[k] for k in z.files}
 
 
@@ -84,9 +84,10 @@ def test_lattice_matches_stored(case) -> None:
 
 if __name__ == "__main__":
     if sys.argv[1:] != ["--write"]:
-        sys.exit("usage: python tests/test_lattice_frozen.py --write   (overwrites the stored lattices)")
+        sys.exit("usage: PYTHONPATH=tests python tests/models/test_lattice_frozen.py --write"
+                 "   (overwrites the stored lattices)")
     arrays: dict[str, np.ndarray] = {}
     for c in CASES:
         arrays.update(lattice_arrays(*c))
-    np.savez_compressed(DATA, **arrays)
-    print(f"wrote {len(arrays)} arrays to {DATA}")
+    np.savez_compressed(FROZEN, **arrays)
+    print(f"wrote {len(arrays)} arrays to {FROZEN}")

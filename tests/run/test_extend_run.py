@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from stop_sink import StopAfter
+from helpers.stopping import StopAfter
 
 from qmc.cli.main import cli
 from qmc.config.parser import load_config

@@ -16,10 +16,11 @@ from __future__ import annotations
 import json
 import random
 import shutil
-from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.exchange_ladder import Q_VALUES, ladder_of, reference, stored, write_config
+from helpers.stopping import StopAfter
 
 from qmc.chain.simulation import Simulation
 from qmc.config.parser import build_model, load_config
@@ -33,38 +34,6 @@ from qmc.run.single import run_task
 from qmc.run.units import work_units
 from qmc.storage.task_file import read_task, task_path
 
-JQ2 = """
-[run]
-seed = {seed}
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = "Q"
-[scan]
-L = [4]
-Q = {q}
-beta = 2.0
-[sampling]
-warmup_steps = {warmup}
-measure_steps = {measure}
-bins = {bins}
-copies = {replicas}
-checkpoint_seconds = 0.2
-[exchange]
-along = "Q"
-every = {every}
-"""
-
-Q_VALUES = [0.5, 0.75, 1.0, 1.25]
-
 # 4x4 periodic J-Q2 model, J = 1, beta = 2: (energy per site, <(M_s/N)^2>) computed with
 # qmc/validation/exact (ExactSpectrum with translations); test_stored_exact_values recomputes them.
 EXACT = {
@@ -73,33 +42,6 @@ EXACT = {
     1.0: (-1.5419989407099006, 0.07921662692196214),
     1.25: (-1.7615211513838562, 0.07742456296524099),
 }
-
-
-def write_config(tmp: Path, *, seed=17, q=Q_VALUES, warmup=500, measure=4000, bins=20, replicas=1, every=5,
-                 name="x.toml") -> Path:
-    path = tmp / name
-    path.write_text(JQ2.format(seed=seed, q=list(q), warmup=warmup, measure=measure, bins=bins,
-                               replicas=replicas, every=every))
-    return path
-
-
-def ladder_of(path: Path):
-    config = load_config(path)
-    units = work_units(config.tasks())
-    assert len(units) == 1
-    return config, units[0]
-
-
-def reference(unit):
-    """Bins, walker rows and final ladder state of one uninterrupted in-memory run."""
-    lad = Ladder(unit)
-    rows = lad.advance(10**12)
-    return rows, [list(w) for w in lad.walker_rows], lad.group_state()
-
-
-def stored(path: Path):
-    d = read_task(path)
-    return np.column_stack([d.bins[n] for n in d.bin_names]), d
 
 
 # ------------------------------------------------------------------------------------------- grouping
@@ -215,26 +157,9 @@ def test_exchange_summary_rates():
 # ------------------------------------------------------------------------------------------- files
 
 
-class StopAt:
-    """Progress sink that sets the stop flag once the ladder has done ``steps`` chain steps in total."""
-
-    def __init__(self, flag: StopFlag, steps: int) -> None:
-        self.flag, self.steps = flag, steps
-
-    def task_started(self, *a):
-        pass
-
-    def task_advanced(self, steps_done, bins_done):
-        if steps_done >= self.steps:
-            self.flag.set("test stop")
-
-    def task_finished(self, status):
-        pass
-
-
 def run_until(unit, run_dir, steps, text):
     flag = StopFlag()
-    return run_group(unit, run_dir, stop_flag=flag, progress=StopAt(flag, steps), config_text=text)
+    return run_group(unit, run_dir, stop_flag=flag, progress=StopAfter(flag, steps), config_text=text)
 
 
 def test_files_hold_bins_walks_and_rates(tmp_path):

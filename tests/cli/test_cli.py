@@ -12,6 +12,7 @@ import h5py
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers.paths import REPO
 
 from qmc.cli.main import cli
 from qmc.config.parser import load_config
@@ -400,5 +401,5 @@ def test_run_help_documents_the_exit_status():
     assert f"{EXIT_UNFINISHED}  stopped before the end (SIGTERM, Ctrl-C, --max-time)" in text
     assert "run the same command again to continue" in text and "2   bad input" in text
     assert f"exit status {EXIT_UNFINISHED}" in " ".join(text.split())  # --max-time
-    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    readme = (REPO / "README.md").read_text()
     assert f"**{EXIT_UNFINISHED} when it stopped before the end**" in readme

@@ -6,7 +6,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from test_analysis_report import GS, make_task
+from helpers.paths import REPO
+from helpers.synthetic_tasks import GS, make_task
 
 import qmc.analysis.plots as plots
 from qmc.analysis import analyze_run, extrapolate, format_result
@@ -66,9 +67,8 @@ def test_labels_give_symbol_definition_and_units():
 
 
 def test_run_text_of_a_demo_config():
-    from pathlib import Path
 
-    text = run_text((Path(__file__).resolve().parents[1] / "configs" / "jq2-sweep.toml").read_text())
+    text = run_text((REPO / "configs" / "jq2-sweep.toml").read_text())
     assert text.hamiltonian == "H = J sum_nn S_i.S_j - 1 sum_plaquette-pair PP"
     assert text.lattice == "square lattice of L x L unit cells, periodic boundaries"
     assert text.beta_rule == "beta = L" and text.couplings == {"J": "Heisenberg coupling on the nn bonds"}

@@ -19,7 +19,8 @@ from typing import Any
 
 import numpy as np
 import pytest
-from test_exchange import StopAt, ladder_of, reference, stored, write_config
+from helpers.exchange_ladder import ladder_of, reference, stored, write_config
+from helpers.stopping import StopAfter
 
 from qmc.chain.simulation import Simulation
 from qmc.exchange.team import SoloTeam, chain_blocks
@@ -72,7 +73,7 @@ def run_team(unit, run_dir: Path, size: int, text: str, stop_member: int | None 
 
     def work(r: int) -> None:
         flag = StopFlag()
-        sink = StopAt(flag, stop_steps) if r == stop_member else None
+        sink = StopAfter(flag, stop_steps) if r == stop_member else None
         try:
             results[r] = run_group(unit, run_dir, stop_flag=flag, progress=sink, config_text=text,
                                    team=ThreadTeam(hub, r))

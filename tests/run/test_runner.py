@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from stop_sink import StopAfter
+from helpers.stopping import StopAfter
 
 import qmc.run.pacing as pacing
 import qmc.run.single as single

@@ -17,16 +17,17 @@ import h5py
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers.paths import DATA
 
 from qmc.cli.main import cli
 
-DATA = Path(__file__).parent / "data" / "stored_bins"
+STORED = DATA / "stored_bins"
 RUNS = ("heisenberg", "jq2", "jq3", "bilayer", "ladder")
 RENAMED = {"s_q_next": "s_q_shifted", "bond_energy": "term_energy"}
 
 
 def _stored() -> dict[str, np.ndarray]:
-    with np.load(DATA / "bins_before_house.npz") as z:
+    with np.load(STORED / "bins_before_house.npz") as z:
         return {k: z[k] for k in z.files}
 
 
@@ -44,7 +45,7 @@ def _current_task(old: str) -> str:
 
 @pytest.mark.parametrize("run", RUNS)
 def test_bins_match_stored(run: str, tmp_path: Path) -> None:
-    shutil.copy(DATA / f"{run}.toml", tmp_path / f"{run}.toml")
+    shutil.copy(STORED / f"{run}.toml", tmp_path / f"{run}.toml")
     result = CliRunner().invoke(cli, ["run", str(tmp_path / f"{run}.toml"), "--quiet"])
     assert result.exit_code == 0, result.output
     stored = {k: v for k, v in _stored().items() if k.startswith(run + "|")}
