@@ -19,6 +19,7 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers.configs import write_config
 
 from qmc.analysis import AnalysisError, analyze_run, format_result
 from qmc.analysis.powerfit import drop_smallest_shift
@@ -206,25 +207,11 @@ def test_parse_powers_refuses(text):
 
 
 # ---------------------------------------------------------------------------------- a real run, command line
-CONFIG = """
-[run]
-seed = 7
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[scan]
-L = {sizes}
-beta = "2*L"
-[sampling]
-warmup_steps = 300
-measure_steps = 3000
-bins = 30
-"""
+def square_heisenberg(sizes, *, output="run", seed=7, warmup_steps=300, measure_steps=3000, bins=30) -> dict:
+    """Keywords of helpers.configs.write_config: the square-lattice Heisenberg model at beta = 2L."""
+    return dict(seed=seed, output=output, scan={"L": sizes, "beta": "2*L"}, warmup_steps=warmup_steps,
+                measure_steps=measure_steps, bins=bins)
+
 
 
 def invoke(*args):
@@ -243,7 +230,7 @@ def assert_user_error(result, *fragments: str) -> None:
 @pytest.fixture(scope="module")
 def heisenberg_run(tmp_path_factory) -> Path:
     tmp = tmp_path_factory.mktemp("square")
-    (tmp / "c.toml").write_text(CONFIG.format(sizes="[4, 6, 8, 10, 12]"))
+    write_config(tmp, "c.toml", **square_heisenberg([4, 6, 8, 10, 12]))
     result = invoke("run", tmp / "c.toml", "--quiet")
     assert result.exit_code == 0, result.output
     return tmp / "run"
@@ -293,7 +280,7 @@ def test_cli_bad_input_exits_2(heisenberg_run, tmp_path):
                       "--powers", "'1,a'")
     assert_user_error(invoke("analyze", heisenberg_run, "--extrapolate", "energy", "--min-L", 0, *out),
                       "--min-L")
-    (tmp_path / "one.toml").write_text(CONFIG.format(sizes="[4]").replace('"run"', '"one"'))
+    write_config(tmp_path, "one.toml", **square_heisenberg([4], output="one"))
     assert invoke("run", tmp_path / "one.toml", "--quiet").exit_code == 0
     assert_user_error(invoke("analyze", tmp_path / "one", "--extrapolate", "energy"),
                       "--extrapolate", "one system size (L = 4)", "scan L over several sizes")
@@ -319,13 +306,11 @@ def test_square_lattice_thermodynamic_limit_matches_published_values(tmp_path):
     `qmc analyze`.  Measured (seed as below): m_s = 0.30701(99), e_0 = -0.669458(20).  The test asks the
     error bars to be small enough that the bars mean something (m_s: 1 % >= 3 sigma; e_0: 2e-4 >= 4 sigma)."""
     runs = []
-    plan = (("small", "[8, 12, 16]", 400_000, 21), ("large", "[20, 24, 32]", 150_000, 22))
+    plan = (("small", [8, 12, 16], 400_000, 21), ("large", [20, 24, 32], 150_000, 22))
     for name, sizes, measure, seed in plan:
-        text = CONFIG.format(sizes=sizes).replace('"run"', f'"{name}"').replace("seed = 7", f"seed = {seed}")
-        text = text.replace("warmup_steps = 300", "warmup_steps = 5000")
-        text = text.replace("measure_steps = 3000", f"measure_steps = {measure}")
-        text = text.replace("bins = 30", "bins = 200")
-        (tmp_path / f"{name}.toml").write_text(text)
+        keywords = square_heisenberg(sizes, output=name, seed=seed, warmup_steps=5000, measure_steps=measure,
+                                     bins=200)
+        write_config(tmp_path, f"{name}.toml", **keywords)
         runs.append(subprocess.Popen([sys.executable, "-m", "qmc", "run", str(tmp_path / f"{name}.toml"),
                                       "--quiet"], cwd=tmp_path))
     assert [p.wait() for p in runs] == [0, 0]

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers.configs import JQ2_TERMS, write_config
 from helpers.stopping import StopAfter
 
 from qmc.cli.main import cli
@@ -26,40 +27,12 @@ from qmc.run.units import work_units
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import read_task, task_path
 
-CONFIG = """
-[run]
-seed = 31
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = "Q"
-[scan]
-L = {sizes}
-Q = {q}
-beta = 2.0
-[sampling]
-warmup_steps = {warmup}
-measure_steps = {measure}
-bins = {bins}
-{exchange}
-"""
 
-
-def config_file(tmp: Path, name: str, *, sizes="[4, 6]", q="[0.5]", warmup=100, measure=600, bins=6,
+def config_file(tmp: Path, name: str, *, sizes=(4, 6), q=(0.5,), warmup=100, measure=600, bins=6,
                 every=0) -> Path:
-    exchange = f'[exchange]\nalong = "Q"\nevery = {every}' if every else ""
-    path = tmp / name
-    path.write_text(CONFIG.format(sizes=sizes, q=q, warmup=warmup, measure=measure, bins=bins,
-                                  exchange=exchange))
-    return path
+    return write_config(tmp, name, seed=31, terms=JQ2_TERMS, scan={"L": sizes, "Q": q, "beta": 2.0},
+                        warmup_steps=warmup, measure_steps=measure, bins=bins,
+                        exchange={"along": "Q", "every": every} if every else None)
 
 
 def run(config: Path, out: Path, **kw):
@@ -102,8 +75,8 @@ def test_a_grown_run_stopped_and_resumed_is_still_bit_identical(tmp_path):
     """Grown, stopped in the middle of the extension by a time budget, resumed: same bins."""
     from qmc.run.outcome import StopFlag
 
-    short = config_file(tmp_path, "short.toml", sizes="[6]", measure=400, bins=4)
-    long = config_file(tmp_path, "long.toml", sizes="[6]", measure=2000, bins=20)
+    short = config_file(tmp_path, "short.toml", sizes=[6], measure=400, bins=4)
+    long = config_file(tmp_path, "long.toml", sizes=[6], measure=2000, bins=20)
     run(short, tmp_path / "grown")
     plan = prepare_run(load_config(long), tmp_path / "grown")
     flag = StopFlag()
@@ -115,8 +88,8 @@ def test_a_grown_run_stopped_and_resumed_is_still_bit_identical(tmp_path):
 
 
 def test_fewer_bins_asked_keeps_the_finished_tasks(tmp_path):
-    long = config_file(tmp_path, "long.toml", sizes="[4]", measure=1200, bins=12)
-    short = config_file(tmp_path, "short.toml", sizes="[4]", measure=600, bins=6)
+    long = config_file(tmp_path, "long.toml", sizes=[4], measure=1200, bins=12)
+    short = config_file(tmp_path, "short.toml", sizes=[4], measure=600, bins=6)
     run(long, tmp_path / "run")
     before = task_path(tmp_path / "run", "L4_Q0.5_beta2_c0").read_bytes()
     plan, report = run(short, tmp_path / "run")
@@ -127,10 +100,10 @@ def test_fewer_bins_asked_keeps_the_finished_tasks(tmp_path):
 
 
 def test_relation_of_stored_files(tmp_path):
-    base = load_config(config_file(tmp_path, "a.toml", sizes="[4]")).tasks()[0]
+    base = load_config(config_file(tmp_path, "a.toml", sizes=[4])).tasks()[0]
 
     def rel(**kw):
-        other = load_config(config_file(tmp_path, "b.toml", sizes="[4]", **kw)).tasks()[0]
+        other = load_config(config_file(tmp_path, "b.toml", sizes=[4], **kw)).tasks()[0]
         s = other.sampling
         return stored_relation(base, task_fingerprint(other), s.measure_steps // s.bins, s.bins,
                                s.warmup_steps + s.measure_steps)
@@ -139,14 +112,14 @@ def test_relation_of_stored_files(tmp_path):
     assert rel(measure=1200, bins=12) == LENGTH == rel(measure=300, bins=3)
     assert rel(measure=1200, bins=6) == BIN_LENGTH
     assert rel(warmup=200) == WARMUP == rel(warmup=200, measure=1200, bins=12)
-    other = load_config(config_file(tmp_path, "c.toml", sizes="[4]", q="[0.6]")).tasks()[0]
+    other = load_config(config_file(tmp_path, "c.toml", sizes=[4], q=[0.6])).tasks()[0]
     assert stored_relation(base, task_fingerprint(other), 100, 6, 700) == CHAIN
 
 
 def test_another_warm_up_is_refused_with_the_reason(tmp_path):
-    run(config_file(tmp_path, "a.toml", sizes="[4]"), tmp_path / "run")
+    run(config_file(tmp_path, "a.toml", sizes=[4]), tmp_path / "run")
     with pytest.raises(UserError) as info:
-        prepare_run(load_config(config_file(tmp_path, "b.toml", sizes="[4]", warmup=300, measure=1200,
+        prepare_run(load_config(config_file(tmp_path, "b.toml", sizes=[4], warmup=300, measure=1200,
                                             bins=12)), tmp_path / "run")
     msg = info.value.message
     assert "was measured after 100 warm-up steps, this configuration asks for 300" in msg
@@ -154,10 +127,10 @@ def test_another_warm_up_is_refused_with_the_reason(tmp_path):
 
 
 def test_cli_grows_a_run_and_says_so(tmp_path):
-    short = config_file(tmp_path, "short.toml", sizes="[4]", q="[0.5]")
+    short = config_file(tmp_path, "short.toml", sizes=[4], q=[0.5])
     runner = CliRunner()
     assert runner.invoke(cli, ["run", str(short), "--out", str(tmp_path / "run")]).exit_code == 0
-    long = config_file(tmp_path, "long.toml", sizes="[4, 6]", q="[0.5]", measure=900, bins=9)
+    long = config_file(tmp_path, "long.toml", sizes=[4, 6], q=[0.5], measure=900, bins=9)
     result = runner.invoke(cli, ["run", str(long), "--out", str(tmp_path / "run")])
     assert result.exit_code == 0, result.output
     err = result.stderr
@@ -167,7 +140,7 @@ def test_cli_grows_a_run_and_says_so(tmp_path):
     assert "done: all 2 task(s) finished" in err
     # another bin length: refused, nothing changed
     index = (tmp_path / "run" / "index.json").read_bytes()
-    other = config_file(tmp_path, "other.toml", sizes="[4, 6]", q="[0.5]", measure=900, bins=3)
+    other = config_file(tmp_path, "other.toml", sizes=[4, 6], q=[0.5], measure=900, bins=3)
     result = runner.invoke(cli, ["run", str(other), "--out", str(tmp_path / "run")])
     assert result.exit_code == 2 and "cannot change its bin length" in result.stderr
     assert "bins = 9 with measure_steps = 900" in result.stderr
@@ -179,7 +152,7 @@ def test_cli_grows_a_run_and_says_so(tmp_path):
 def test_an_exchange_ladder_grows_bit_identically(tmp_path, measure, bins):
     """The ladder's last step is no exchange point: continued from there, the swap round of that step is
     held first, so bins, walks and swap counts equal those of the longer run."""
-    kw = dict(sizes="[4]", q="[0.5, 0.7, 0.9]", every=7)
+    kw = dict(sizes=[4], q=[0.5, 0.7, 0.9], every=7)
     short = config_file(tmp_path, "short.toml", measure=measure, bins=bins, **kw)
     long = config_file(tmp_path, "long.toml", measure=3 * measure, bins=3 * bins, **kw)
 

@@ -10,6 +10,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.configs import heisenberg_nn, write_config
 from helpers.stopping import StopAfter
 
 import qmc.run.pacing as pacing
@@ -28,33 +29,12 @@ from qmc.run.task_identity import task_fingerprint
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import read_task, task_path, write_task
 
-CONFIG = """
-[run]
-seed = {seed}
-output = "run"
-[lattice]
-kind = "{kind}"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "J"
-[scan]
-L = {sizes}
-J = {J}
-beta = 1.5
-[sampling]
-warmup_steps = 50
-measure_steps = {measure}
-bins = {bins}
-"""
 
-
-def config_file(tmp: Path, *, sizes="[4]", J="1.0", measure=2000, bins=20, kind="square", seed=11,
+def config_file(tmp: Path, *, sizes=(4,), J=1.0, measure=2000, bins=20, kind="square", seed=11,
                 name="config.toml") -> Path:
-    path = tmp / name
-    path.write_text(CONFIG.format(sizes=sizes, J=J, measure=measure, bins=bins, kind=kind, seed=seed))
-    return path
+    return write_config(tmp, name, seed=seed, lattice=kind, terms=[heisenberg_nn("J")],
+                        scan={"L": sizes, "J": J, "beta": 1.5}, warmup_steps=50, measure_steps=measure,
+                        bins=bins)
 
 
 def direct_bins(task) -> np.ndarray:
@@ -140,7 +120,7 @@ def test_writes_are_throttled(tmp_path, monkeypatch):
 
 
 def test_failure_is_recorded_and_other_tasks_go_on(tmp_path, monkeypatch):
-    cfg = load_config(config_file(tmp_path, sizes="[4, 6]"))
+    cfg = load_config(config_file(tmp_path, sizes=[4, 6]))
     real = single.build_model
 
     def broken(task):
@@ -188,7 +168,7 @@ def test_failure_after_a_checkpoint_marks_the_file(tmp_path, monkeypatch):
 
 
 def test_prepare_orders_largest_first_and_selects(tmp_path):
-    cfg = load_config(config_file(tmp_path, sizes="[4, 8, 6]"))
+    cfg = load_config(config_file(tmp_path, sizes=[4, 8, 6]))
     plan = prepare_run(cfg)
     assert [t.params["L"] for t in plan.tasks] == [8, 6, 4]
     assert (plan.run_dir / "config.toml").read_text() == cfg.text
@@ -216,13 +196,13 @@ def test_prepare_refuses_bad_output(tmp_path):
 
 
 def test_other_bin_length_is_refused_unless_forced(tmp_path):
-    first = load_config(config_file(tmp_path, sizes="[4, 6]"))
+    first = load_config(config_file(tmp_path, sizes=[4, 6]))
     plan = prepare_run(first)
     run_serial(plan)
     kept = task_path(plan.run_dir, "L4_J1_beta1.5_c0").read_bytes()
     index_before = (plan.run_dir / "index.json").read_bytes()
     # 4000 steps in 20 bins: 200 steps per bin instead of 100
-    second = load_config(config_file(tmp_path, sizes="[4, 6]", measure=4000, name="other.toml"))
+    second = load_config(config_file(tmp_path, sizes=[4, 6], measure=4000, name="other.toml"))
     with pytest.raises(UserError, match="cannot change its bin length") as info:
         prepare_run(second, plan.run_dir)
     assert info.value.where == str(plan.run_dir)
@@ -238,7 +218,7 @@ def test_other_bin_length_is_refused_unless_forced(tmp_path):
     old = next(p for p in (plan.run_dir / "tasks").iterdir() if p.name.startswith("L4_J1_beta1.5_c0.h5."))
     assert old.read_bytes() == kept
     # a task whose chain is unchanged keeps its file
-    third = load_config(config_file(tmp_path, sizes="[4, 6, 8]", measure=4000, name="third.toml"))
+    third = load_config(config_file(tmp_path, sizes=[4, 6, 8], measure=4000, name="third.toml"))
     run_serial(prepare_run(second, plan.run_dir))
     kept6 = task_path(plan.run_dir, "L6_J1_beta1.5_c0").read_bytes()
     plan3 = prepare_run(third, plan.run_dir)
@@ -247,9 +227,9 @@ def test_other_bin_length_is_refused_unless_forced(tmp_path):
 
 
 def test_task_fingerprint(tmp_path):
-    a = load_config(config_file(tmp_path, sizes="[4, 6]")).tasks()
-    b = load_config(config_file(tmp_path, sizes="[6, 4]", name="b.toml")).tasks()
-    c = load_config(config_file(tmp_path, sizes="[4]", J="0.5", name="c.toml")).tasks()
+    a = load_config(config_file(tmp_path, sizes=[4, 6])).tasks()
+    b = load_config(config_file(tmp_path, sizes=[6, 4], name="b.toml")).tasks()
+    c = load_config(config_file(tmp_path, sizes=[4], J=0.5, name="c.toml")).tasks()
     assert task_fingerprint(a[0]) == task_fingerprint(b[1])  # independent of scan order
     assert task_fingerprint(a[0]) != task_fingerprint(a[1])
     assert task_fingerprint(a[0]) != task_fingerprint(c[0])

@@ -9,6 +9,7 @@ from pathlib import Path
 import h5py
 import pytest
 from click.testing import CliRunner
+from helpers.configs import heisenberg_nn, write_config
 from helpers.stopping import StopAfter
 
 from qmc.cli.main import cli
@@ -20,27 +21,6 @@ from qmc.run.status import run_status
 from qmc.run.task_identity import task_weight
 from qmc.storage.task_file import task_path
 
-CONFIG = """
-[run]
-seed = 3
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "J"
-[scan]
-L = [4, 6]
-J = [0.5, 1.0]
-beta = 1.0
-[sampling]
-warmup_steps = 50
-measure_steps = 2000
-bins = 20
-"""
-
 
 def invoke(*args):
     return CliRunner().invoke(cli, [str(a) for a in args])
@@ -50,8 +30,9 @@ def invoke(*args):
 def mixed_run(tmp_path_factory) -> Path:
     """A run with one task done, one stopped half-way, one failed and one never started."""
     tmp = tmp_path_factory.mktemp("status")
-    config = tmp / "c.toml"
-    config.write_text(CONFIG)
+    config = write_config(tmp, "c.toml", seed=3, terms=[heisenberg_nn("J")],
+                          scan={"L": [4, 6], "J": [0.5, 1.0], "beta": 1.0},
+                          warmup_steps=50, measure_steps=2000, bins=20)
     assert invoke("run", config, "--quiet", "--only", "L4_J1_beta1_c0").exit_code == 0
     cfg = load_config(config)
     task = next(t for t in cfg.tasks() if t.task_id == "L6_J1_beta1_c0")

@@ -85,24 +85,6 @@ def test_a_damaged_layout_entry_or_missing_array_is_named():
         Simulation.restore(_model(), 2.0, state={k: v for k, v in state.items() if k != "hist"}, **KW)
 
 
-CONFIG = """
-[run]
-seed = 5
-output = "run"
-[lattice]
-kind = "square"
-size = [4, 4]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[scan]
-beta = 1.5
-[sampling]
-warmup_steps = 50
-measure_steps = 4000
-bins = 20
-"""
 
 
 class _StopAfter:
@@ -127,10 +109,10 @@ def _set_layout(path: Path, layout: int | None) -> None:
             f["checkpoint"].create_dataset(LAYOUT_KEY, data=np.int64(layout))
 
 
-def test_task_files_of_layout_1_resume_and_unknown_layouts_fail_the_task(tmp_path, monkeypatch):
+def test_task_files_of_layout_1_resume_and_unknown_layouts_fail_the_task(tmp_path, monkeypatch, make_config):
     monkeypatch.setattr(pacing, "CHUNK_SECONDS", 1e-3)  # small chunks, so that the stop lands mid-run
-    cfg_path = tmp_path / "c.toml"
-    cfg_path.write_text(CONFIG)
+    cfg_path = make_config("c.toml", seed=5, size=[4, 4], scan={"beta": 1.5},
+                           warmup_steps=50, measure_steps=4000, bins=20)
     task = load_config(cfg_path).tasks()[0]
     whole = run_task(task, tmp_path / "whole")
     flag = StopFlag()
