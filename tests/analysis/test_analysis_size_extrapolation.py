@@ -18,13 +18,12 @@ from types import SimpleNamespace
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from helpers.cli import assert_user_error, invoke
 from helpers.configs import write_config
 
 from qmc.analysis import AnalysisError, analyze_run, format_result
 from qmc.analysis.powerfit import drop_smallest_shift
 from qmc.analysis.size_extrapolation import default_powers, parse_powers
-from qmc.cli.main import cli
 
 SIZES = (8, 12, 16, 24, 32)
 NBINS = 400
@@ -214,17 +213,6 @@ def square_heisenberg(sizes, *, output="run", seed=7, warmup_steps=300, measure_
 
 
 
-def invoke(*args):
-    return CliRunner().invoke(cli, [str(a) for a in args])
-
-
-def assert_user_error(result, *fragments: str) -> None:
-    assert result.exit_code == 2, (result.output, result.exception)
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("error: "), result.stderr
-    assert "Traceback" not in result.output
-    for f in fragments:
-        assert f in lines[0], lines[0]
 
 
 @pytest.fixture(scope="module")

@@ -11,56 +11,31 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from helpers.cli import assert_user_error, invoke
+from helpers.configs import config_text, heisenberg_nn
 from helpers.paths import REPO
 
-from qmc.cli.main import cli
 from qmc.config.parser import load_config
 from qmc.config.templates import TEMPLATES
 from qmc.run.outcome import StopFlag
 from qmc.run.single import run_task
 from qmc.storage.task_file import load_index, read_task, task_path
 
-CONFIG = """
-[run]
-seed = 5
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "J"
-[scan]
-L = [4, 6]
-J = {J}
-beta = 1.0
-[sampling]
-warmup_steps = 50
-measure_steps = {measure}
-bins = 20
-"""
+J_TERMS = (heisenberg_nn("J"),)
 
 
-def write_config(tmp: Path, *, J="1.0", measure=1000, name="config.toml") -> Path:
+def cli_config(*, J=1.0, measure=1000, sizes=(4, 6), beta=1.0, seed=5, terms=J_TERMS, **kw) -> str:
+    """The text of this module's small run: square-lattice Heisenberg model with coupling J (scanned)."""
+    return config_text(seed=seed, terms=terms, scan={"L": sizes, "J": J, "beta": beta},
+                       warmup_steps=50, measure_steps=measure, bins=20, **kw)
+
+
+def write_config(tmp: Path, *, J=1.0, measure=1000, name="config.toml") -> Path:
     path = tmp / name
-    path.write_text(CONFIG.format(J=J, measure=measure))
+    path.write_text(cli_config(J=J, measure=measure))
     return path
 
 
-def invoke(*args: str):
-    return CliRunner().invoke(cli, [str(a) for a in args])
-
-
-def assert_user_error(result, *fragments: str) -> None:
-    """Exit 2, exactly one line on stderr starting with 'error: ', no traceback."""
-    assert result.exit_code == 2, (result.output, result.exception)
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("error: "), result.stderr
-    assert "Traceback" not in result.output
-    for f in fragments:
-        assert f in lines[0], lines[0]
 
 
 @pytest.fixture(scope="module")
@@ -126,7 +101,7 @@ def test_unknown_only_id(tmp_path):
                                        ("exchange_ranks = 2", "[exchange] max_ranks")])
 def test_keys_of_earlier_releases_are_refused_naming_the_new_key(tmp_path, line, new):
     config = tmp_path / "old.toml"
-    config.write_text(CONFIG.format(J="[0.5, 1.0]", measure=1000) + line + "\n")
+    config.write_text(cli_config(J=[0.5, 1.0]) + line + "\n")
     result = invoke("run", config)
     old = line.split()[0]
     assert_user_error(result, f"error: {config}: sampling.{old}: '{old}' in [sampling] was renamed: "
@@ -140,7 +115,7 @@ def test_new_scan_points_grow_the_run(tmp_path, done_run):
     run = tmp_path / "run"
     shutil.copytree(done_run, run)
     before = {p.name: p.read_bytes() for p in (run / "tasks").iterdir()}
-    more = write_config(tmp_path, J="[0.5, 1.0]", name="more.toml")
+    more = write_config(tmp_path, J=[0.5, 1.0], name="more.toml")
     result = invoke("run", more, "--out", run)
     assert result.exit_code == 0, result.output
     assert "done: all 4 task(s) finished" in result.stderr and "[2/4 done]" in result.stderr
@@ -161,7 +136,7 @@ def test_other_physics_refused_then_forced(tmp_path, done_run):
     run = tmp_path / "run"
     shutil.copytree(done_run, run)
     other = tmp_path / "other.toml"  # another master seed, and J = 0.5 added
-    other.write_text(CONFIG.format(J="[0.5, 1.0]", measure=1000).replace("seed = 5", "seed = 6"))
+    other.write_text(cli_config(J=[0.5, 1.0], seed=6))
     before = sorted(p.name for p in run.rglob("*"))
     result = invoke("run", other, "--out", run)
     assert_user_error(result, str(run), "other physics", "master seed, lattice or terms", "--force")
@@ -183,11 +158,11 @@ def test_other_physics_refused_then_forced(tmp_path, done_run):
 
 def test_force_says_what_it_keeps(tmp_path):
     first = tmp_path / "first.toml"  # beta = L/4: 1 at L = 4, 1.5 at L = 6
-    first.write_text(CONFIG.format(J="1.0", measure=1000).replace("beta = 1.0", 'beta = "L/4"'))
+    first.write_text(cli_config(beta="L/4"))
     assert invoke("run", first, "--quiet").exit_code == 0
     run = tmp_path / "run"
     other = tmp_path / "other.toml"  # beta = L*L/16: still 1 at L = 4, now 2.25 at L = 6
-    other.write_text(CONFIG.format(J="1.0", measure=1000).replace("beta = 1.0", 'beta = "L*L/16"'))
+    other.write_text(cli_config(beta="L*L/16"))
     result = invoke("run", other, "--out", run)
     assert_user_error(result, "1 task file(s) cannot continue (L6_J1_c0)", "different model, lattice, beta",
                       "--force", "the other 1 task file(s) would be kept")
@@ -204,10 +179,10 @@ def test_force_says_what_it_keeps(tmp_path):
 
 @pytest.mark.parametrize("text,fragments", [
     ("[run\nseed = 1\n", ("invalid TOML", "line 1")),
-    (CONFIG.format(J="1.0", measure=1000).replace('"square"', '"hexagonal"'),
+    (cli_config(lattice="hexagonal"),
      ("lattice.kind", "unknown lattice kind 'hexagonal'")),
-    (CONFIG.format(J="-1.0", measure=1000), ("terms[0].coupling", "sign problem")),
-    (CONFIG.format(J="1.0", measure=1000).replace('bonds = "nn"', 'bonds = "diagonal"'), ("terms[0]",)),
+    (cli_config(J=-1.0), ("terms[0].coupling", "sign problem")),
+    (cli_config(terms=[{"type": "heisenberg", "bonds": "diagonal", "coupling": "J"}]), ("terms[0]",)),
 ])
 def test_bad_config_is_one_clear_error(tmp_path, text, fragments):
     path = tmp_path / "bad.toml"
@@ -342,7 +317,7 @@ def test_new_to_stdout_and_unknown_kind(tmp_path):
 
 
 def test_analyze_prints_crossings_table(tmp_path):
-    config = write_config(tmp_path, J="[0.5, 0.8, 1.1, 1.4]", measure=400)
+    config = write_config(tmp_path, J=[0.5, 0.8, 1.1, 1.4], measure=400)
     assert invoke("run", config, "--quiet").exit_code == 0
     result = invoke("analyze", tmp_path / "run")
     assert result.exit_code == 0, result.output
@@ -382,8 +357,7 @@ def test_entry_point_in_a_subprocess(tmp_path):
 
 def test_serial_run_of_an_exchange_ladder(tmp_path):
     path = tmp_path / "ex.toml"
-    path.write_text(CONFIG.format(J="[0.8, 1.0]", measure=400).replace("L = [4, 6]", "L = [4]")
-                    + '[exchange]\nalong = "J"\n')
+    path.write_text(cli_config(J=[0.8, 1.0], measure=400, sizes=[4], exchange={"along": "J"}))
     result = invoke("run", path, "--quiet")
     assert result.exit_code == 0, result.output
     for tid in ("L4_J0.8_beta1_c0", "L4_J1_beta1_c0"):

@@ -7,51 +7,26 @@ from pathlib import Path
 
 import numpy as np
 
+from helpers import configs
+from helpers.configs import JQ2_TERMS
 from qmc.config.parser import load_config
 from qmc.exchange.ladder import Ladder
 from qmc.run.units import work_units
 from qmc.storage.task_file import read_task
 
-__all__ = ["JQ2", "Q_VALUES", "ladder_of", "reference", "stored", "write_config"]
+__all__ = ["Q_VALUES", "ladder_of", "reference", "stored", "write_config"]
 
-JQ2 = """
-[run]
-seed = {seed}
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = "Q"
-[scan]
-L = [4]
-Q = {q}
-beta = 2.0
-[sampling]
-warmup_steps = {warmup}
-measure_steps = {measure}
-bins = {bins}
-copies = {replicas}
-checkpoint_seconds = 0.2
-[exchange]
-along = "Q"
-every = {every}
-"""
 
 Q_VALUES = [0.5, 0.75, 1.0, 1.25]
 
+
 def write_config(tmp: Path, *, seed=17, q=Q_VALUES, warmup=500, measure=4000, bins=20, replicas=1, every=5,
                  name="x.toml") -> Path:
-    path = tmp / name
-    path.write_text(JQ2.format(seed=seed, q=list(q), warmup=warmup, measure=measure, bins=bins,
-                               replicas=replicas, every=every))
-    return path
+    """The 4x4 J-Q2 ladder along Q at beta = 2 (J = 1), written to ``tmp / name``."""
+    return configs.write_config(tmp, name, seed=seed, terms=JQ2_TERMS,
+                                scan={"L": [4], "Q": list(q), "beta": 2.0}, warmup_steps=warmup,
+                                measure_steps=measure, bins=bins, copies=replicas, checkpoint_seconds=0.2,
+                                exchange={"along": "Q", "every": every})
 
 
 def ladder_of(path: Path):

@@ -20,6 +20,7 @@ from pathlib import Path
 import h5py
 import numpy as np
 import pytest
+from helpers.configs import JQ2_TERMS, heisenberg_nn, write_config
 
 from qmc.cli.run import EXIT_UNFINISHED
 from qmc.config.parser import load_config
@@ -42,66 +43,19 @@ def _mpiexec() -> str | None:
 MPIEXEC = _mpiexec()
 pytestmark = pytest.mark.skipif(MPIEXEC is None, reason="no mpiexec beside the Python interpreter or on PATH")
 
-PLAIN = """
-[run]
-seed = 31
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "J"
-[scan]
-L = [4, 6]
-J = [1.0, 1.5, 2.0]
-beta = 1.5
-[sampling]
-warmup_steps = 100
-measure_steps = {measure}
-bins = {bins}
-checkpoint_seconds = 0.3
-"""
-
-EXCHANGE = """
-[run]
-seed = 32
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = "Q"
-[scan]
-L = [4]
-Q = [0.5, 0.75, 1.0]
-beta = 2.0
-[sampling]
-warmup_steps = 200
-measure_steps = {measure}
-bins = {bins}
-copies = 2
-checkpoint_seconds = 0.3
-[exchange]
-along = "Q"
-every = 4
-"""
 
 
-EXCHANGE_ONE_RANK = EXCHANGE.replace("every = 4\n", "every = 4\nmax_ranks = 1\n")
+
+# keywords of helpers.configs.write_config, without measure_steps and bins (see write below)
+PLAIN = dict(seed=31, terms=[heisenberg_nn("J")], scan={"L": [4, 6], "J": [1.0, 1.5, 2.0], "beta": 1.5},
+             warmup_steps=100, checkpoint_seconds=0.3)
+EXCHANGE = dict(seed=32, terms=JQ2_TERMS, scan={"L": [4], "Q": [0.5, 0.75, 1.0], "beta": 2.0},
+                warmup_steps=200, copies=2, checkpoint_seconds=0.3, exchange={"along": "Q", "every": 4})
+EXCHANGE_ONE_RANK = dict(EXCHANGE, exchange={"along": "Q", "every": 4, "max_ranks": 1})
 
 
-def write(tmp: Path, template: str, name: str, measure: int = 2000, bins: int = 10) -> Path:
-    path = tmp / name
-    path.write_text(template.format(measure=measure, bins=bins))
-    return path
+def write(tmp: Path, template: dict, name: str, measure: int = 2000, bins: int = 10) -> Path:
+    return write_config(tmp, name, **template, measure_steps=measure, bins=bins)
 
 
 def qmc_run(config: Path, out: Path, ranks: int | None = None, *extra: str, env: dict | None = None,
@@ -224,8 +178,7 @@ def test_a_failed_task_is_recorded_and_the_others_go_on(tmp_path):
 
 
 def test_bad_configuration_is_reported_once_and_all_ranks_exit(tmp_path):
-    config = tmp_path / "bad.toml"
-    config.write_text(PLAIN.format(measure=2000, bins=7))  # 7 does not divide 2000
+    config = write(tmp_path, PLAIN, "bad.toml", measure=2000, bins=7)  # 7 does not divide 2000
     proc = qmc_run(config, tmp_path / "run", 2, timeout=60)
     assert proc.returncode == 2
     assert proc.stderr.count("error:") == 1 and "sampling.bins" in proc.stderr

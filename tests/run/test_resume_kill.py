@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.configs import config_text
 
 from qmc.cli.run import EXIT_UNFINISHED
 from qmc.config.parser import load_config
@@ -28,30 +29,13 @@ from qmc.storage.task_file import read_task, task_path
 
 # ~10 s of Monte Carlo work (L=8 at beta = 2: ~15 us/step on a 2026 machine), so that the
 # L=8 task always writes intermediate checkpoints (at most one write per second)
-SHORT = """
-[run]
-seed = 2024
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[scan]
-L = [4, 8]
-beta = 2.0
-[sampling]
-warmup_steps = 1000
-measure_steps = 400000
-bins = 50
-checkpoint_seconds = 0.5
-"""
+
+SHORT = config_text(seed=2024, scan={"L": [4, 8], "beta": 2.0}, warmup_steps=1000, measure_steps=400000,
+                    bins=50, checkpoint_seconds=0.5)
 
 # far more work than any test waits for: only ever stopped by a signal or --max-time
-LONG = SHORT.replace("L = [4, 8]", "L = [6]").replace("measure_steps = 400000", "measure_steps = 50000000") \
-    .replace("bins = 50", "bins = 10000")
+LONG = config_text(seed=2024, scan={"L": [6], "beta": 2.0}, warmup_steps=1000, measure_steps=50000000,
+                   bins=10000, checkpoint_seconds=0.5)
 
 
 def _write_config(tmp: Path, text: str) -> Path:

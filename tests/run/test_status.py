@@ -8,11 +8,10 @@ from pathlib import Path
 
 import h5py
 import pytest
-from click.testing import CliRunner
+from helpers.cli import invoke
 from helpers.configs import heisenberg_nn, write_config
 from helpers.stopping import StopAfter
 
-from qmc.cli.main import cli
 from qmc.cli.status import status_text
 from qmc.config.parser import load_config
 from qmc.run.outcome import StopFlag
@@ -20,10 +19,6 @@ from qmc.run.single import run_task
 from qmc.run.status import run_status
 from qmc.run.task_identity import task_weight
 from qmc.storage.task_file import task_path
-
-
-def invoke(*args):
-    return CliRunner().invoke(cli, [str(a) for a in args])
 
 
 @pytest.fixture(scope="module")
