@@ -2,18 +2,27 @@
 
 ``square``: H = J sum_<ij> S_i.S_j with J = 1.  ``jq2``: the same plus -Q sum P_ij P_kl over the two parallel
 bonds of every 2x2 plaquette (both orientations), J = 0.05, Q = 1.  Defaults: L = 32, beta = 32.
+SU(N) cases (``COLOUR_CASES``, run by the colour vertex kind; benchmarks/throughput.py only, the C reference
+is S = 1/2): ``jq2_su3``, ``jq2_su4``: H = -J sum_<ij> P_ij - Q sum P_ij P_kl with SU(3) resp. SU(4)
+singlet projectors, J = 0.05, Q = 1; ``jq2_colour2``: the ``jq2`` model run by the colour kind with N = 2,
+which isolates the cost of the kind from the change of the model.
 """
 
 from __future__ import annotations
 
 import argparse
+import dataclasses
 
-from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
-from qmc.models.compiled import CompiledModel
+import numpy as np
+from qmc.models import HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, build_lattice, compile_model
+from qmc.models.compiled import KIND_COLOUR, CompiledModel
 
-__all__ = ["CASES", "case_model", "add_case_arguments", "selected_cases"]
+__all__ = ["CASES", "COLOUR_CASES", "case_model", "colour_case_model", "add_case_arguments",
+           "selected_cases"]
 
 CASES = {"square": (1.0, 0.0), "jq2": (0.05, 1.0)}  # (J, Q)
+COLOUR_CASES = {"jq2_su3": (0.05, 1.0, 3), "jq2_su4": (0.05, 1.0, 4),
+                "jq2_colour2": (0.05, 1.0, 2)}  # (J, Q, N)
 
 
 def case_model(L: int, J: float, Q: float) -> CompiledModel:
@@ -24,14 +33,24 @@ def case_model(L: int, J: float, Q: float) -> CompiledModel:
     return compile_model(build_lattice("square", (L, L)), terms)
 
 
-def add_case_arguments(p: argparse.ArgumentParser) -> None:
-    """--case, --L, --beta, --steps, --warmup with the canonical defaults."""
-    p.add_argument("--case", default="all", choices=[*CASES, "all"])
+def colour_case_model(L: int, J: float, Q: float, N: int) -> CompiledModel:
+    """The periodic L x L SU(N) J-Q2 model (projector J term) run by the colour kind; for N = 2 the S = 1/2
+    J-Q2 model of :func:`case_model` with its groups switched to the colour kind."""
+    if N == 2:
+        model = case_model(L, J, Q)
+        return dataclasses.replace(model, group_kind=np.full(len(model.group_names), KIND_COLOUR, np.int8))
+    terms = [ProjectorTerm("nn", J), ProjectorProductTerm("plaquette-pair", Q)]
+    return compile_model(build_lattice("square", (L, L)), terms, colours=N)
+
+
+def add_case_arguments(p: argparse.ArgumentParser, colour_cases: bool = False) -> None:
+    """--case, --L, --beta, --steps, --warmup with the canonical defaults (and the SU(N) cases if asked)."""
+    p.add_argument("--case", default="all", choices=[*CASES, *(COLOUR_CASES if colour_cases else ()), "all"])
     p.add_argument("--L", type=int, default=32)
     p.add_argument("--beta", type=float, default=32.0)
     p.add_argument("--steps", type=int, default=200)
     p.add_argument("--warmup", type=int, default=300)
 
 
-def selected_cases(case: str) -> list[str]:
-    return list(CASES) if case == "all" else [case]
+def selected_cases(case: str, colour_cases: bool = False) -> list[str]:
+    return [*CASES, *(COLOUR_CASES if colour_cases else ())] if case == "all" else [case]

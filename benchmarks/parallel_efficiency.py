@@ -4,6 +4,15 @@ Usage::
 
     python benchmarks/parallel_efficiency.py [--tasks 8] [--size 8] [--beta 4] [--steps 400000] [--ranks 2]
     python benchmarks/parallel_efficiency.py --ladder 4 [--size 8] [--beta 4] [--steps 40000] [--ranks 2]
+    python benchmarks/parallel_efficiency.py --unequal [--sizes 32 26 24 8] [--steps 8000] [--repeats 3]
+    python benchmarks/parallel_efficiency.py --simulate [--farms 16x4 64x8 256x32 1024x128]
+
+``--unequal``: tasks of unequal cost (Heisenberg L x L at beta = 2L, cost ~ L^3) on K ranks; prints the
+wall time of the farm against the largest task run alone (the best a farm can do when the largest task is
+more than the total divided by K), the farm's decisions and coordinator cost, and whether the bins equal
+those of a serial run.  ``--simulate``: no MPI; the farm's schedule driven through a simulated farm of
+many ranks (a scan L = 8..256 with cost ~ L^3), printing the makespan against the lower bound
+max(largest task, total work / ranks) for the farm's rules and for the rule before.
 
 With ``--ladder M`` the work is instead ONE replica-exchange ladder of M chains (J-Q2 model, J = 1, Q from
 1.0 in steps of 0.05, swaps every 10 steps), which K ranks run side by side (blocks of chains meeting at
@@ -152,6 +161,99 @@ def _ceiling(tmp_path: Path, qmc: list[str], args: argparse.Namespace) -> float:
     return alone / together
 
 
+UNEQUAL_CONFIG = _HEADER.replace("{seed}", "4244").replace("[{size}, {size}]", '["L", "L"]') + """
+[scan]
+L = {sizes}
+beta = "2*L"
+[sampling]
+warmup_steps = {warmup}
+measure_steps = {steps}
+bins = 20
+checkpoint_seconds = 60
+"""
+
+
+def _farm_stats(run_dir: Path) -> dict:
+    m = re.findall(r"MPI farm statistics: (\{.*\})", (run_dir / "run.log").read_text())
+    return json.loads(m[0]) if m else {}
+
+
+def unequal(args: argparse.Namespace) -> dict:
+    """Unequal tasks (default L = 32, 26, 24, 8 at beta = 2L) on K ranks against the largest task alone:
+    the wall time of ``mpiexec -n K qmc run`` over that of ``qmc run --only <largest>`` (start-up included
+    in both), minimum over ``--repeats`` runs; the farm's figures; bins against one serial run."""
+    sizes = sorted(args.sizes, reverse=True)
+    steps = args.steps if args.steps_given else 8000
+    qmc = [sys.executable, "-m", "qmc", "run"]
+    runs: dict[str, list] = {"alone": [], "farm": []}
+    with tempfile.TemporaryDirectory(prefix="qmc-unequal-") as tmp:
+        tmp_path = Path(tmp)
+        cfg = tmp_path / "unequal.toml"
+        cfg.write_text(UNEQUAL_CONFIG.format(sizes=sizes, steps=steps, warmup=max(100, steps // 10)))
+        from qmc.config.parser import load_config
+
+        by_size = sorted(load_config(cfg).tasks(), key=lambda t: -t.size[0])
+        largest = by_size[0].task_id
+        _run([*qmc, str(cfg), "--quiet", "--only", by_size[-1].task_id, "--out",
+              str(tmp_path / "warm")])  # numba cache, page cache
+        for r in range(args.repeats):  # alternated, so that both see the same load of the machine
+            runs["alone"].append(_run([*qmc, str(cfg), "--quiet", "--only", largest, "--out",
+                                       str(tmp_path / f"alone{r}")])[0])
+            out = tmp_path / f"farm{r}"
+            runs["farm"].append(_run([_mpiexec(), "-n", str(args.ranks), *qmc, str(cfg), "--quiet", "--out",
+                                      str(out)])[0])
+        best = int(np.argmin(runs["farm"]))
+        farm = _farm_stats(tmp_path / f"farm{best}")
+        index = json.loads((tmp_path / f"farm{best}" / "index.json").read_text())
+        _run([*qmc, str(cfg), "--quiet", "--out", str(tmp_path / "serial")])
+        a, b = _bins(tmp_path / "serial"), _bins(tmp_path / f"farm{best}")
+        identical = set(a) == set(b) and all(np.array_equal(a[t][n], b[t][n]) for t in a for n in a[t])
+    alone, together = min(runs["alone"]), min(runs["farm"])
+    return {
+        "work": f"Heisenberg L = {', '.join(map(str, sizes))} at beta = 2L, {steps} measured steps each",
+        "ranks": args.ranks,
+        "wall_seconds_largest_alone": [round(x, 3) for x in runs["alone"]],
+        "wall_seconds_all_on_farm": [round(x, 3) for x in runs["farm"]],
+        "farm_over_largest_alone": round(together / alone, 4),
+        "task_seconds_in_farm": {t: e["seconds"] for t, e in index["tasks"].items()},
+        "units_by_rank": farm.get("units_by_rank"),
+        "prefetch": {k: farm.get(k) for k in ("prefetch_granted", "prefetch_refused", "take_backs",
+                                              "handed_back")},
+        "coordinator": {k: farm.get(k) for k in ("coordinator_seconds", "index_seconds", "index_writes",
+                                                 "progress_reports", "wall_seconds", "handed_out")},
+        "bins_identical_to_serial": identical,
+        "cores": os.cpu_count(), "load_average_1min": round(os.getloadavg()[0], 2),
+    }
+
+
+def simulated(args: argparse.Namespace) -> dict:
+    """Simulated farms (the real Schedule, :mod:`qmc.mpi.simulation`): a finite-size scan with cost ~ L^3
+    (beta = 2L) for L = 8, 16, ..., 256, the largest taking two hours, with ``C`` tasks per size on ``K``
+    ranks for each ``KxC`` of ``--farms``; the farm's rules against the rule before (prefetch while K units
+    are queued, no taking back), with exact cost estimates and with durations off their estimates by a
+    factor exp(0.3 z), z normal."""
+    from qmc.mpi.simulation import simulate
+
+    out: dict = {"work": "L = 8..256 step 8, C tasks per size, cost ~ L^3, largest 2 h", "farms": []}
+    rng = np.random.default_rng(1)
+    for farm in args.farms:
+        k, copies = (int(x) for x in farm.lower().split("x"))
+        costs = [7200.0 * (L / 256) ** 3 for L in range(8, 257, 8) for _ in range(copies)]
+        noisy = [c * f for c, f in zip(costs, rng.lognormal(0.0, 0.3, len(costs)), strict=True)]
+        for label, seconds in (("exact estimates", costs), ("estimates off by ~30%", noisy)):
+            new = simulate(costs, k, seconds=seconds)
+            old = simulate(costs, k, seconds=seconds, prefetch_rule="queue-length", take_back=False)
+            out["farms"].append({
+                "ranks": k, "tasks": len(costs), "durations": label,
+                "lower_bound_hours": round(new.bound / 3600, 3),
+                "makespan_hours": round(new.makespan / 3600, 3), "makespan_over_bound": round(new.ratio, 4),
+                "rule_before_makespan_over_bound": round(old.ratio, 4),
+                "prefetch_granted": new.counts["prefetch_granted"], "take_backs": new.counts["take_backs"],
+                "schedule_microseconds_per_unit": round(new.schedule_seconds_per_unit * 1e6, 1),
+                "schedule_microseconds_per_progress_report": round(new.schedule_seconds_per_report * 1e6, 2)})
+    return out
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--tasks", type=int, default=8, help="number of equal tasks (independent copies)")
@@ -161,7 +263,18 @@ def main() -> None:
     ap.add_argument("--ranks", type=int, default=2)
     ap.add_argument("--ladder", type=int, default=0, metavar="M",
                     help="measure one exchange ladder of M chains instead of a sweep of equal tasks")
+    ap.add_argument("--unequal", action="store_true",
+                    help="tasks of unequal sizes (--sizes) against the largest alone (--steps default 8000)")
+    ap.add_argument("--sizes", type=int, nargs="+", default=[32, 26, 24, 8])
+    ap.add_argument("--repeats", type=int, default=3, help="--unequal: runs of each, the minimum counts")
+    ap.add_argument("--simulate", action="store_true", help="a simulated large farm (no MPI)")
+    ap.add_argument("--farms", nargs="+", default=["16x4", "64x8", "256x32", "1024x128"], metavar="KxC",
+                    help="--simulate: K ranks with C tasks per lattice size")
     args = ap.parse_args()
+    args.steps_given = "--steps" in sys.argv
+    if args.unequal or args.simulate:
+        print(json.dumps(unequal(args) if args.unequal else simulated(args), indent=1))
+        return
     mpiexec = _mpiexec()
     qmc = [sys.executable, "-m", "qmc", "run"]
     with tempfile.TemporaryDirectory(prefix="qmc-efficiency-") as tmp:

@@ -1,15 +1,19 @@
 """Engine throughput: ns per operator slot per Monte Carlo step, steps/s, memory per slot, start-up.
 
-Usage:  python benchmarks/throughput.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
+Usage:  python benchmarks/throughput.py [--case square|jq2|jq2_su3|jq2_su4|jq2_colour2|all] [--L 32]
+                                       [--beta 32] [--steps 200] [--repeats 1]
         python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
 
 ``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
 linear in N beta when ns per slot stays flat; it rises where the vertex list outgrows the caches.
 
-Prints one JSON object per case.  Start-up is measured in fresh subprocesses: once with an
-empty numba cache directory (cold: every kernel compiles) and once more with the same directory
-(cached).  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32, and J-Q2 32x32 at beta = 32
-with J/Q = 0.05.
+Prints one JSON object per case; with ``--repeats`` > 1 the time figures are the minimum over that many
+independent chains (the machine is shared), ``..._all`` lists every repeat.  Start-up is measured in fresh
+subprocesses: once with an empty numba cache directory (cold: every kernel compiles) and once more with the
+same directory (cached).  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32, and J-Q2 32x32
+at beta = 32 with J/Q = 0.05.  SU(N) cases (benchmarks/_cases.py): the SU(3) and SU(4) J-Q2 models with
+the same couplings, and the S = 1/2 J-Q2 model run by the colour kind; each reports ``ratio_to_jq2``, its
+CPU ns per slot per step over that of ``jq2`` (when ``jq2`` is measured in the same call).
 """
 
 from __future__ import annotations
@@ -23,7 +27,7 @@ import tempfile
 import time
 
 import numpy as np
-from _cases import CASES, add_case_arguments, case_model, selected_cases
+from _cases import CASES, COLOUR_CASES, add_case_arguments, case_model, colour_case_model, selected_cases
 
 from qmc.chain.simulation import Simulation
 from qmc.engine.rng import stream_seed
@@ -32,31 +36,41 @@ __all__ = ["measure_case", "main"]
 
 
 def make_model(case: str, L: int):
+    if case in COLOUR_CASES:
+        return colour_case_model(L, *COLOUR_CASES[case])
     if case not in CASES:
         raise SystemExit(f"unknown case {case!r}")
     return case_model(L, *CASES[case])
 
 
-def measure_case(case: str, L: int, beta: float, steps: int, warmup: int) -> dict:
+def measure_case(case: str, L: int, beta: float, steps: int, warmup: int, repeats: int = 1) -> dict:
     model = make_model(case, L)
-    t0 = time.perf_counter()
-    sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=1,
-                     seed_words=stream_seed(7, f"bench-{case}"))
-    sim.advance(1)
-    first_call = time.perf_counter() - t0
-    sim.advance(warmup - 1)
-    t1, c1 = time.perf_counter(), time.process_time()
-    sim.advance(steps)
-    dt, cpu = time.perf_counter() - t1, time.process_time() - c1
+    walls, cpus, per_op = [], [], []  # ns per slot per step (wall, CPU), ns per operator per step (wall)
+    for rep in range(repeats):
+        t0 = time.perf_counter()
+        sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=1,
+                         seed_words=stream_seed(7, f"bench-{case}" + (f"-{rep}" if rep else "")))
+        sim.advance(1)
+        if rep == 0:
+            first_call = time.perf_counter() - t0
+        sim.advance(warmup - 1)
+        t1, c1 = time.perf_counter(), time.process_time()
+        sim.advance(steps)
+        wall, cpu = time.perf_counter() - t1, time.process_time() - c1
+        walls.append(wall / steps / sim.cutoff * 1e9)
+        cpus.append(cpu / steps / sim.cutoff * 1e9)
+        per_op.append(wall / steps / max(sim.n_ops, 1) * 1e9)
     work_bytes = sim.ops.nbytes + sim.links.nbytes + sim.vflip.nbytes + sim.spins.nbytes
-    work_bytes += sim.first.nbytes + sim.last.nbytes
+    work_bytes += sim.first.nbytes + sim.last.nbytes + sim.chain.above.nbytes
     return {
         "case": case, "L": L, "N": model.n_sites, "beta": beta, "steps": steps,
         "cutoff": sim.cutoff, "mean_n_ops": sim.n_ops,
-        "ns_per_slot_per_step": dt / steps / sim.cutoff * 1e9,
-        "cpu_ns_per_slot_per_step": cpu / steps / sim.cutoff * 1e9,
-        "ns_per_op_per_step": dt / steps / max(sim.n_ops, 1) * 1e9,
-        "steps_per_second": steps / dt,
+        "colours": model.n_colours, "kind": type(sim.kind).__name__,
+        "ns_per_slot_per_step": min(walls),
+        "cpu_ns_per_slot_per_step": min(cpus),
+        "cpu_ns_per_slot_per_step_all": cpus,
+        "ns_per_op_per_step": min(per_op),
+        "steps_per_second": 1e9 / (min(walls) * sim.cutoff),
         "bytes_per_slot": work_bytes / sim.cutoff,
         "first_call_seconds_in_process": first_call,
     }
@@ -84,14 +98,16 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
 
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    add_case_arguments(p)
+    add_case_arguments(p, colour_cases=True)
+    p.add_argument("--repeats", type=int, default=1,
+                   help="independent chains per case; the minimum time is reported")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="measure these L at beta = L (linearity in N beta) instead of one size")
     a = p.parse_args()
     if a.scaling:
-        for case in selected_cases(a.case):
+        for case in selected_cases(a.case, colour_cases=True):
             for L in (int(x) for x in a.scaling.split(",")):
-                r = measure_case(case, L, float(L), a.steps, a.warmup)
+                r = measure_case(case, L, float(L), a.steps, a.warmup, a.repeats)
                 r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
                 print(json.dumps(r))
                 sys.stdout.flush()
@@ -101,8 +117,15 @@ def main() -> None:
         warm, warm_whole = startup_seconds(cache)
     print(json.dumps({"startup_cold_seconds": cold, "startup_cold_process_seconds": cold_whole,
                       "startup_cached_seconds": warm, "startup_cached_process_seconds": warm_whole}))
-    for case in selected_cases(a.case):
-        print(json.dumps(measure_case(case, a.L, a.beta, a.steps, a.warmup)))
+    reference = None
+    for case in selected_cases(a.case, colour_cases=True):
+        r = measure_case(case, a.L, a.beta, a.steps, a.warmup, a.repeats)
+        if case == "jq2":
+            reference = r["cpu_ns_per_slot_per_step"]
+        if case in COLOUR_CASES and reference is not None:
+            r["ratio_to_jq2"] = r["cpu_ns_per_slot_per_step"] / reference
+        print(json.dumps(r))
+        sys.stdout.flush()
     np.seterr(all="ignore")
 
 

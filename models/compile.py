@@ -5,9 +5,13 @@ Every term entry becomes one *group*, of one vertex kind (``group_kind``, see
 
 * ``HeisenbergTerm(bonds, J)``: ``J S_i.S_j = J/4 - J P_ij``, so each bond of the class gives a k = 1 term
   with ``C_t = J`` and the group constant is ``J/4 * n_bonds``;
+* ``ProjectorTerm(bonds, J)``: each bond of the class gives a k = 1 term with ``C_t = J``; constant 0;
 * ``ProjectorProductTerm(shape, Q)``: each placement gives a k-bond term with ``C_t = Q``; constant 0.
 
-Both are of the ``"projector"`` kind.
+With ``colours = 2`` (S = 1/2 spins, the default) every group is of the ``"projector"`` kind.  With
+``colours = N > 2`` (SU(N): N colours per site, fundamental representation on sublattice A, conjugate on B)
+every group is of the ``"colour"`` kind; ``P_ij`` is then the SU(N) singlet projector, and a Heisenberg term
+(defined through S = 1/2 spin operators) is refused with a pointer to ``ProjectorTerm``.
 
 Sign-problem guard (the decomposition ``H = E_const - sum_t C_t prod P`` is sign-free when every
 ``C_t > 0`` and every bond joins opposite sublattices): J must be > 0 and Q >= 0; a zero coupling drops
@@ -26,22 +30,31 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .compiled import KIND_PROJECTOR, CompiledModel
+from .compiled import KIND_COLOUR, KIND_PROJECTOR, CompiledModel
 from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
-from .terms import HeisenbergTerm, ProjectorProductTerm, Term
+from .terms import HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term
 
-__all__ = ["compile_model", "group_names"]
+__all__ = ["compile_model", "group_names", "MAX_COLOURS"]
 
 _MAX_NAME = 64  # group names are stored as 64-byte strings (CompiledModel.to_arrays)
+_TERMS = (HeisenbergTerm, ProjectorTerm, ProjectorProductTerm)
+MAX_COLOURS = 100
+"""The largest number of colours per site (the engine stores a colour, plus one, in a byte)."""
 
 
-def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
-    """Validate ``terms`` on ``lattice`` and flatten them into a CompiledModel (see module docstring)."""
+def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2) -> CompiledModel:
+    """Validate ``terms`` on ``lattice`` with ``colours`` colours per site (2: S = 1/2 spins; N > 2: SU(N))
+    and flatten them into a CompiledModel (see module docstring)."""
     if not isinstance(lattice, Lattice):
         raise ModelError(f"expected a Lattice, got {type(lattice).__name__}", "lattice")
-    if isinstance(terms, HeisenbergTerm | ProjectorProductTerm):
+    if (isinstance(colours, bool) or not isinstance(colours, numbers.Integral)
+            or not 2 <= colours <= MAX_COLOURS):
+        raise ModelError(f"the number of colours per site must be an integer from 2 to {MAX_COLOURS}, got "
+                         f"{colours!r}", "colors")
+    colours = int(colours)
+    if isinstance(terms, _TERMS):
         terms = [terms]
     terms = list(terms)
     if not terms:
@@ -51,6 +64,10 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
     constants = np.zeros(len(terms))
     for t, term in enumerate(terms):
         label = f"term {t} ({names[t]!r})"
+        if colours > 2 and isinstance(term, HeisenbergTerm):
+            raise ModelError(f"{label}: a heisenberg term (S_i.S_j of S = 1/2 spins) needs 2 colours, "
+                             f"not {colours}; for SU({colours}) write it as a projector term, -J sum P_ij "
+                             "(for two colours that is J S_i.S_j - J/4)", f"terms[{t}].type")
         try:
             sites, disp, coupling = _expand(lattice, term)
         except ModelError as err:
@@ -94,7 +111,8 @@ def compile_model(lattice: Lattice, terms: Sequence[Term]) -> CompiledModel:
         term_group=np.concatenate(groups),
         group_names=tuple(names),
         group_constant=constants,
-        group_kind=np.array([_kind(term) for term in terms], dtype=np.int8),
+        group_kind=np.full(len(terms), KIND_PROJECTOR if colours == 2 else KIND_COLOUR, dtype=np.int8),
+        n_colours=colours,
         vbs_bonds=np.ascontiguousarray(lattice.vbs_bonds, dtype=np.int32),
         vbs_dir=np.ascontiguousarray(lattice.vbs_dir, dtype=np.int8),
         vbs_phase=np.ascontiguousarray(lattice.vbs_phase, dtype=np.int8),
@@ -113,12 +131,12 @@ def group_names(terms: Sequence[Term]) -> list[str]:
     """
     raw = []
     for t, term in enumerate(terms):
-        if not isinstance(term, HeisenbergTerm | ProjectorProductTerm):
-            raise ModelError(f"expected a HeisenbergTerm or ProjectorProductTerm, got {type(term).__name__}",
-                             f"terms[{t}]")
+        if not isinstance(term, _TERMS):
+            raise ModelError(f"expected a HeisenbergTerm, ProjectorTerm or ProjectorProductTerm, got "
+                             f"{type(term).__name__}", f"terms[{t}]")
         if term.name is not None:
             raw.append(term.name)
-        elif isinstance(term, HeisenbergTerm):
+        elif isinstance(term, HeisenbergTerm | ProjectorTerm):
             raw.append(term.bonds if isinstance(term.bonds, str) else "bonds")
         else:
             try:
@@ -143,10 +161,10 @@ def group_names(terms: Sequence[Term]) -> list[str]:
 
 def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float]:
     """(sites int[P, k, 2], disp float[P, k, D], coupling) of one validated term."""
-    if isinstance(term, HeisenbergTerm):
+    if isinstance(term, HeisenbergTerm | ProjectorTerm):
         if not isinstance(term.bonds, str):
             raise ModelError(f"bonds must be the name of a bond class, got {term.bonds!r}", "bonds")
-        coupling = _coupling(term.coupling, strict=True)
+        coupling = _coupling(term.coupling, strict=isinstance(term, HeisenbergTerm), symbol="J")
         try:
             sites, disp = lattice.bonds(term.bonds)
         except ModelError as err:
@@ -159,15 +177,17 @@ def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float
     return sites, disp, coupling
 
 
-def _coupling(value, strict: bool) -> float:
-    """A finite real coupling, > 0 (Heisenberg J) or >= 0 (projector Q); zero is allowed for both."""
+def _coupling(value, strict: bool, symbol: str = "Q") -> float:
+    """A finite real coupling, > 0 (Heisenberg J) or >= 0 (projector J or Q); zero is allowed for all."""
     if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
         raise ModelError(f"the coupling must be a finite real number, got {value!r}", "coupling")
     value = float(value)
     if value < 0.0:
-        what = ("a negative (ferromagnetic) Heisenberg J" if strict else "a negative projector coupling Q")
-        raise ModelError(f"{what} = {value} has a sign problem in this formulation; use "
-                         f"{'J > 0' if strict else 'Q >= 0'} (or 0 to switch the term off)", "coupling")
+        what = ("a negative (ferromagnetic) Heisenberg J" if strict
+                else f"a negative projector coupling {symbol}")
+        use = "J > 0" if strict else f"{symbol} >= 0"
+        raise ModelError(f"{what} = {value} has a sign problem in this formulation; use {use} (or 0 to "
+                         "switch the term off)", "coupling")
     return value
 
 
@@ -193,13 +213,8 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     return np.sort(first), ids
 
 
-def _kind(term: Term) -> int:
-    """The vertex kind of a term's operators (every term type so far is a product of singlet projectors)."""
-    return KIND_PROJECTOR
-
-
 def _bond_field(term: Term) -> str:
-    return "bonds" if isinstance(term, HeisenbergTerm) else "shape"
+    return "shape" if isinstance(term, ProjectorProductTerm) else "bonds"
 
 
 def _describe(lattice: Lattice) -> str:

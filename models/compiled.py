@@ -2,16 +2,21 @@
 
 Every model, whatever its terms, is written as
 
-    H = E_const - sum_t C_t prod_{a=1..k_t} P_{i_a j_a},   P_ij = 1/4 - S_i.S_j,   C_t > 0,
+    H = E_const - sum_t C_t prod_{a=1..k_t} P_{i_a j_a},   C_t > 0,
 
-with k_t in {1, 2, 3} site-disjoint bonds per term.  A Heisenberg coupling ``+J S_i.S_j`` is the k = 1
-case with ``C_t = J`` and a constant ``J/4`` added to ``E_const`` (``J S_i.S_j = J/4 - J P_ij``).  The
-engine therefore never needs to know where a term came from; the constants are kept per *group* (one
-group per user term entry) so that reported energies are ``<H>/N`` for H exactly as written.
+with k_t in {1, 2, 3} site-disjoint bonds per term and P_ij the singlet projector of bond ij: for S = 1/2
+spins (``n_colours`` = 2) ``P_ij = 1/4 - S_i.S_j``; for N colours per site (fundamental representation of
+SU(N) on sublattice A, conjugate on B) ``P_ij = |s><s|``, ``|s> = N^(-1/2) sum_a |a a>`` in the basis where
+a site of B is labelled by the conjugate colour (for N = 2 the same operator).  A Heisenberg coupling
+``+J S_i.S_j`` is the k = 1 case with ``C_t = J`` and a constant ``J/4`` added to ``E_const``
+(``J S_i.S_j = J/4 - J P_ij``).  The engine therefore never needs to know where a term came from; the
+constants are kept per *group* (one group per user term entry) so that reported energies are ``<H>/N`` for
+H exactly as written.
 
 Conventions (all arrays are C-contiguous numpy arrays):
 
-``n_sites``          N, number of S=1/2 sites.
+``n_sites``          N, number of sites.
+``n_colours``        colours per site (2: S = 1/2 spins; N > 2: SU(N), groups of the ``"colour"`` kind).
 ``phase``            int8[N], staggered sign phi_i = +1 on sublattice A, -1 on sublattice B.
 ``bond_sites``       int32[nb, 2], the two sites of every bond used by any term (opposite sublattices).
 ``bond_disp``        float64[nb, D], displacement site1 - site0 of each bond along each of the D winding
@@ -30,9 +35,10 @@ Conventions (all arrays are C-contiguous numpy arrays):
 ``group_names``      tuple of G names, e.g. "inter", "intra", "q2" (used as ``bond_energy/<name>``).
 ``group_constant``   float64[G], the constant each group adds to H (energy units, whole lattice).
 ``group_kind``       int8[G], the vertex kind of each group's operators, an index into ``VERTEX_KINDS``
-                     (0, ``"projector"``: the singlet projectors above).  The engine picks its update from
-                     the kinds present (see :mod:`qmc.engine`); models stored before kinds existed are
-                     read as all ``"projector"``.
+                     (0, ``"projector"``: the S = 1/2 singlet projectors above; 1, ``"colour"``: the
+                     SU(N) projectors, N = ``n_colours`` colours per site).  The engine picks its update
+                     from the kinds present (see :mod:`qmc.engine`); models stored before kinds existed
+                     are read as all ``"projector"`` (and stored without ``n_colours`` as 2 colours).
 ``vbs_bonds``        int32[nv, 2], nearest-neighbour bonds used for the columnar dimer order parameter.
 ``vbs_dir``          int8[nv], 0 for an x-bond, 1 for a y-bond.
 ``vbs_phase``        int8[nv], (-1)^x for x-bonds and (-1)^y for y-bonds (x, y of site0).
@@ -47,11 +53,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["CompiledModel", "VERTEX_KINDS", "KIND_PROJECTOR"]
+__all__ = ["CompiledModel", "VERTEX_KINDS", "KIND_PROJECTOR", "KIND_COLOUR"]
 
-VERTEX_KINDS = ("projector",)
+VERTEX_KINDS = ("projector", "colour")
 """Names of the vertex kinds; a group's kind code is the position of its name here."""
 KIND_PROJECTOR = VERTEX_KINDS.index("projector")
+KIND_COLOUR = VERTEX_KINDS.index("colour")
 
 
 @dataclass(frozen=True)
@@ -79,6 +86,7 @@ class CompiledModel:
     open_boundaries: bool = False
     lattice_kind: str = "explicit"
     group_kind: np.ndarray | None = None
+    n_colours: int = 2
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -89,6 +97,9 @@ class CompiledModel:
         if kind.shape != (len(self.group_names),) or np.any((kind < 0) | (kind >= len(VERTEX_KINDS))):
             raise ValueError(f"group_kind must hold one code of {VERTEX_KINDS} per term group")
         object.__setattr__(self, "group_kind", kind)
+        if int(self.n_colours) < 2 or (self.n_colours != 2 and np.any(kind == KIND_PROJECTOR)):
+            raise ValueError("n_colours must be at least 2, and 2 when a group is of the projector kind")
+        object.__setattr__(self, "n_colours", int(self.n_colours))
 
     @property
     def n_terms(self) -> int:
@@ -106,9 +117,10 @@ class CompiledModel:
     def term_weights(self) -> np.ndarray:
         """w_t, the largest SSE weight of one operator of each term (energy units): the diagonal update draws
         terms with probability w_t / sum(w).  Projector kind: w_t = C_t / 2^{k_t} (k_t bonds of term t; an
-        operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k)."""
+        operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k).
+        Colour kind: w_t = C_t / N^{k_t} (every bond vertex, diagonal or not, has <c c|P|a a> = 1/N)."""
         k = np.diff(np.asarray(self.term_start)).astype(np.int64)  # one formula per vertex kind
-        return np.asarray(self.term_coupling, dtype=np.float64) / 2.0 ** k
+        return np.asarray(self.term_coupling, dtype=np.float64) / float(self.n_colours) ** k
 
     @property
     def energy_constant(self) -> float:
@@ -140,7 +152,7 @@ class CompiledModel:
             value = np.asarray(arrays[name])
             if name in ("dir_names", "group_names"):
                 kwargs[name] = tuple(v.decode() if isinstance(v, bytes) else str(v) for v in value)
-            elif name in ("n_sites", "n_vbs_dirs", "linear_size"):
+            elif name in ("n_sites", "n_vbs_dirs", "linear_size", "n_colours"):
                 kwargs[name] = int(value)
             elif name == "open_boundaries":
                 kwargs[name] = bool(value)

@@ -1,8 +1,13 @@
-"""User-level Hamiltonian terms (energy units; S = 1/2 spin operators).
+"""User-level Hamiltonian terms (energy units).
 
-``HeisenbergTerm(bonds, J)``               ``+J sum_{<ij> in class} S_i.S_j``
-``ProjectorProductTerm(shape, Q)``         ``-Q sum_{placements} prod_{a=1..k} P_{i_a j_a}``,
-                                           ``P_ij = 1/4 - S_i.S_j`` (singlet projector), k = 1, 2, 3
+``HeisenbergTerm(bonds, J)``               ``+J sum_{<ij> in class} S_i.S_j`` (S = 1/2 spins only)
+``ProjectorTerm(bonds, J)``                ``-J sum_{<ij> in class} P_ij``
+``ProjectorProductTerm(shape, Q)``         ``-Q sum_{placements} prod_{a=1..k} P_{i_a j_a}``, k = 1, 2, 3
+
+``P_ij`` is the singlet projector of the bond: for S = 1/2 spins (two colours) ``P_ij = 1/4 - S_i.S_j``,
+so ``-J P_ij = J S_i.S_j - J/4``; for N colours per site (SU(N), fundamental representation on
+sublattice A, conjugate on B) ``P_ij = |s><s|`` with ``|s> = N^(-1/2) sum_a |a a>`` in the basis where site
+j of B carries the conjugate colour (see :mod:`models.compile`, argument ``colours``).
 
 ``bonds`` names a bond class of the lattice (see :mod:`models.lattice`); ``shape`` is a name from
 :data:`models.shapes.SHAPES` or a list of bonds given as cell offsets (see :mod:`models.shapes`); with
@@ -16,12 +21,21 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-__all__ = ["HeisenbergTerm", "ProjectorProductTerm", "Term"]
+__all__ = ["HeisenbergTerm", "ProjectorTerm", "ProjectorProductTerm", "Term"]
 
 
 @dataclass(frozen=True)
 class HeisenbergTerm:
     """``+J S_i.S_j`` on every bond of the lattice class ``bonds`` (J = ``coupling`` > 0, or 0 = off)."""
+
+    bonds: str
+    coupling: float
+    name: str | None = None
+
+
+@dataclass(frozen=True)
+class ProjectorTerm:
+    """``-J P_ij`` on every bond of the lattice class ``bonds`` (J = ``coupling`` >= 0, 0 = off), any N."""
 
     bonds: str
     coupling: float
@@ -50,4 +64,4 @@ def _freeze(value):
     return value
 
 
-Term = HeisenbergTerm | ProjectorProductTerm
+Term = HeisenbergTerm | ProjectorTerm | ProjectorProductTerm

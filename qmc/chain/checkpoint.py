@@ -9,7 +9,9 @@ message names both layouts and the release that can continue them).
 Layouts:
 
 1. checkpoints without a ``layout`` entry (seriesloop 0.1.0): spins, ops, counters, rng, acc, hist, steps;
-2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number.
+2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number;
+3. layout 2 plus ``above`` (int32, the per-slot colours of the SU(N) colour kind, ``Chain.above``; empty for
+   S = 1/2 models).  Layout 2 is migrated by adding an empty ``above`` (it only held S = 1/2 models).
 """
 
 from __future__ import annotations
@@ -22,11 +24,12 @@ from qmc.errors import UserError
 
 __all__ = ["CHECKPOINT_LAYOUT", "STATE_KEYS", "LAYOUT_KEY", "current_layout"]
 
-CHECKPOINT_LAYOUT = 2
-STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps")
+CHECKPOINT_LAYOUT = 3
+STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps", "above")
 LAYOUT_KEY = "layout"
 
-_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0"}
+_RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without SU(N) models",
+             3: "the releases with SU(N) models"}
 """The releases that write each layout (named in the refusal message)."""
 
 
@@ -34,7 +37,12 @@ def _from_layout_1(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     return {**state, LAYOUT_KEY: np.asarray(2, dtype=np.int64)}
 
 
-_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1}
+def _from_layout_2(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    return {**state, "above": np.zeros(0, dtype=np.int32), LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
+
+
+_MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1,
+                                                                                     2: _from_layout_2}
 """layout n -> function turning a layout-n state into a layout-(n+1) state."""
 
 

@@ -1,5 +1,12 @@
 """Per-bin observables from the raw sums of :mod:`qmc.engine.steps` (names are the project's contract).
 
+The formulas below are written for S = 1/2 spins.  For N colours per site (the SU(N) colour kind) every name
+is kept and the same formulas hold with S^z_i replaced through the staggered colour order,
+phi_i S^z_i -> delta(c_i, 0) - 1/N (so M_s/N -> m_s = N^(-1) sum_i (delta(c_i, 0) - 1/N)), the uniform
+sum_i S^z_i -> the conserved colour-0 charge sum_i phi_i (delta(c_i, 0) - 1/N), the up-spin winding -> the
+winding of colour 0, and S^z_i S^z_j -> -B_ij / 2 with B_ij = delta(c_i, c_j) - 1/N; at N = 2 each of these
+is the S = 1/2 quantity itself (derivation in :mod:`qmc.engine.colour`).
+
 N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t prod P as in
 :mod:`models.compiled`; a bin holds averages over ``steps_per_bin`` Monte Carlo steps.
 

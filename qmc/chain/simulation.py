@@ -5,8 +5,8 @@ VBS histogram): :meth:`Simulation.state` exports it and :meth:`Simulation.restor
 bit-identically, however the work is chunked by :meth:`Simulation.advance`.
 
 One Monte Carlo step = one diagonal-update sweep over the operator string + one full loop decomposition
-(every vertex leg visited once, each loop flipped with probability 1/2).  Warm-up steps and measurement
-steps are counted the same way.
+(every vertex leg visited once; each loop flipped with probability 1/2, or for N colours given one of them
+uniformly).  Warm-up steps and measurement steps are counted the same way.
 """
 
 from __future__ import annotations
@@ -16,12 +16,13 @@ import numpy as np
 from qmc.chain.alias import alias_table
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
-from qmc.engine.kinds import kind_record
+from qmc.engine.diagonal import fold_pending
+from qmc.engine.kinds import initial_spins, kind_record, slot_colours
 from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
 from qmc.engine.slots import ET_SIZE, SW_SIZE, acc_size
 from qmc.engine.steps import bound_run_steps
-from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, apply_pending_flips, count_ops, term_table
+from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, term_table
 from qmc.models.compiled import CompiledModel
 
 __all__ = ["Simulation", "HIST_BINS", "HIST_RANGE"]
@@ -53,9 +54,9 @@ class Simulation:
             raise ValueError("seed_words must be four uint64 words, not all zero")
         u = draw_doubles(rng, model.n_sites)
         cutoff = max(32, int(1.2 * self.terms.beta_wtot) + 16)
-        self.chain = build(Chain, spins=np.where(u < 0.5, 1, -1).astype(np.int8),
+        self.chain = build(Chain, spins=initial_spins(self.kind, u),
                            ops=np.full(cutoff, EMPTY, dtype=np.int32), counters=np.zeros(1, dtype=np.int64),
-                           rng=rng)
+                           rng=rng, above=np.zeros(cutoff if slot_colours(self.kind) else 0, dtype=np.int32))
         self.acc = np.zeros(acc_size(len(model.group_names)), dtype=np.float64)
         self.hist = np.zeros((self._hist_bins, self._hist_bins), dtype=np.int64)
         self.steps = np.zeros(1, dtype=np.int64)
@@ -80,14 +81,16 @@ class Simulation:
         self.chain = build(Chain, spins=np.array(state["spins"], dtype=np.int8),
                            ops=np.array(state["ops"], dtype=np.int32),
                            counters=np.array(state["counters"], dtype=np.int64),
-                           rng=np.array(state["rng"], dtype=np.uint64))
+                           rng=np.array(state["rng"], dtype=np.uint64),
+                           above=np.array(state["above"], dtype=np.int32).reshape(-1))
         self.acc = np.array(state["acc"], dtype=np.float64)
         self.hist = np.array(state["hist"], dtype=np.int64)
         self.steps = np.array(state["steps"], dtype=np.int64)
         if self.spins.shape != (model.n_sites,) or self.acc.shape != (acc_size(len(model.group_names)),):
             raise ValueError("checkpoint does not match the model (site or term-group count differs)")
         if (np.any(self.ops >= (model.n_terms << OP_TERM_SHIFT))
-                or int(np.sum(self.ops >= 0)) != int(self.counters[0])):
+                or int(np.sum(self.ops >= 0)) != int(self.counters[0])
+                or self.chain.above.shape[0] != self._above_length(self.ops.shape[0])):
             raise ValueError("checkpoint operator string is inconsistent with the model")
         self._allocate_work()
         return self
@@ -134,6 +137,10 @@ class Simulation:
         self.bin_names = bin_names(model)
         self._kernel = None
 
+    def _above_length(self, cutoff: int) -> int:
+        """Length of ``Chain.above``: the cutoff for kinds with per-slot colours, else 0."""
+        return cutoff if slot_colours(self.kind) else 0
+
     def _allocate_work(self) -> None:
         """Scratch records sized by the cutoff (vertex list) and the model (per-step outputs)."""
         n_slots = self.ops.shape[0] * self.kmax
@@ -154,12 +161,15 @@ class Simulation:
             return
         self._fold_flips()
         ops = np.concatenate([self.ops, np.full(new - self.ops.shape[0], EMPTY, dtype=np.int32)])
-        self.chain = build(Chain, **{**self.chain._asdict(), "ops": ops})
+        above = np.zeros(self._above_length(new), dtype=np.int32)
+        above[:self.chain.above.shape[0]] = self.chain.above
+        self.chain = build(Chain, **{**self.chain._asdict(), "ops": ops, "above": above})
         self._allocate_work()
 
     def _fold_flips(self) -> None:
-        """Apply the loop flips that the next sweep would apply (the chain is unchanged in law and bits)."""
-        apply_pending_flips(self.ops, self.vertices.vflip, self.term_start)
+        """Apply the loop update's pending changes that the next sweep would apply (the chain is unchanged
+        in law and bits)."""
+        fold_pending(self.chain, self.terms, self.kind, self.vertices, self.probes)
 
     # ------------------------------------------------------------------ arrays of the records
     @property
@@ -265,20 +275,29 @@ class Simulation:
     def configuration(self) -> dict[str, np.ndarray]:
         """The configuration alone (spins, operator string, operator count): what replica exchange swaps.
 
-        The RNG, step counters, accumulators and histogram stay with the chain.  The cutoff travels with the
+        The per-slot colours (``above``) belong to the configuration.  The RNG, step counters, accumulators
+        and histogram stay with the chain.  The cutoff travels with the
         configuration: the SSE weight summed over placements does not depend on it, so the swap acceptance
         involves only the couplings (see :func:`qmc.exchange.rule.swap_log_ratio`)."""
         self._fold_flips()
-        return {"spins": self.spins.copy(), "ops": self.ops.copy(), "counters": self.counters.copy()}
+        return {"spins": self.spins.copy(), "ops": self.ops.copy(), "counters": self.counters.copy(),
+                "above": self.chain.above.copy()}
 
     def set_configuration(self, conf: dict[str, np.ndarray]) -> None:
-        """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice."""
+        """Replace the configuration by one from :meth:`configuration` of a chain of the same lattice.  An
+        operator string padded with empty slots (a larger cutoff) may come with ``above`` of the old length:
+        it is padded likewise."""
         spins = np.array(conf["spins"], dtype=np.int8)
         ops = np.array(conf["ops"], dtype=np.int32)
-        if spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << OP_TERM_SHIFT)):
+        above = np.array(conf["above"], dtype=np.int32).reshape(-1)
+        want = self._above_length(ops.shape[0])
+        if 0 < above.shape[0] < want and np.all(ops[above.shape[0]:] < 0):
+            above = np.concatenate([above, np.zeros(want - above.shape[0], dtype=np.int32)])
+        if (spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << OP_TERM_SHIFT))
+                or above.shape[0] != self._above_length(ops.shape[0])):
             raise ValueError("configuration does not fit this model")
         self.chain = build(Chain, spins=spins, ops=ops, counters=np.array(conf["counters"], dtype=np.int64),
-                           rng=self.rng)
+                           rng=self.rng, above=above)
         self._allocate_work()
 
     def state(self) -> dict[str, np.ndarray]:
@@ -294,4 +313,5 @@ class Simulation:
             "acc": self.acc.copy(),
             "hist": self.hist.copy(),
             "steps": self.steps.copy(),
+            "above": self.chain.above.copy(),
         }

@@ -4,10 +4,12 @@ Bad input of any kind (configuration, run directory, task file, option) prints o
 ``error: <where>: <what>`` on standard error and exits with status 2, without a traceback.  Exit status of
 ``qmc run``: 0 when every selected task is done, 75 (:data:`qmc.cli.run.EXIT_UNFINISHED`) when the run
 stopped before the end (SIGTERM, Ctrl-C, ``--max-time``; checkpoints are written first, rerun to
-continue), 1 when a task failed (recorded in the index and the log; the other tasks went on).  The
-commands live in :mod:`qmc.cli.run` (run), :mod:`qmc.cli.results` (summary, inspect, analyze),
-:mod:`qmc.cli.status` (status), :mod:`qmc.cli.report` (report) and :mod:`qmc.cli.setup` (new,
-validate).
+continue), 1 when a task failed (recorded in the index and the log; the other tasks went on), 74
+(:data:`qmc.storage.faults.WRITE_FAULT_EXIT`) when the machine refused a write (full disk, quota,
+read-only or vanished directory, I/O error: one message names the file and the cause; every task keeps
+its last complete checkpoint).  The commands live in :mod:`qmc.cli.run` (run), :mod:`qmc.cli.results`
+(summary, inspect, analyze), :mod:`qmc.cli.status` (status), :mod:`qmc.cli.report` (report) and
+:mod:`qmc.cli.setup` (new, validate).
 """
 
 from __future__ import annotations
@@ -23,6 +25,7 @@ from qmc.cli.run import run_cmd
 from qmc.cli.setup import new_cmd, validate_cmd
 from qmc.cli.status import status_cmd
 from qmc.errors import UserError
+from qmc.storage.faults import WRITE_FAULT_EXIT, WriteFault, fault_text
 
 __all__ = ["cli", "main"]
 
@@ -37,6 +40,9 @@ class _Cli(click.Group):
         except UserError as exc:
             click.echo(f"error: {exc}", err=True)
             sys.exit(2)
+        except WriteFault as exc:  # the machine refused a write before the run got going
+            click.echo(f"error: {fault_text(exc)}", err=True)
+            sys.exit(WRITE_FAULT_EXIT)
         except click.ClickException as exc:
             ctx = getattr(exc, "ctx", None)
             where = ctx.command_path if ctx is not None else "qmc"
@@ -54,7 +60,7 @@ class _Cli(click.Group):
 @click.group(name="qmc", cls=_Cli, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(package_name="seriesloop", prog_name="qmc")
 def cli() -> None:
-    """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 spin models.
+    """Stochastic series expansion quantum Monte Carlo for sign-free S=1/2 and SU(N) spin models.
 
     Write a configuration (`qmc new`), run it (`qmc run`, serially or under mpiexec; rerun to resume,
     edit and rerun to grow it), watch it (`qmc status`), then read the results (`qmc summary`,

@@ -23,11 +23,24 @@ EXIT_UNFINISHED = 75
 EX_TEMPFAIL in BSD's sysexits.h, "temporary failure: try again later")."""
 
 
+class _RunLog(logging.FileHandler):
+    """``run.log``.  A line the machine refuses to write (a full disk) is dropped without the logging
+    module's traceback: the run reports the fault itself, once."""
+
+    def handleError(self, record: logging.LogRecord) -> None:
+        pass
+
+
 def _open_log(run_dir: Path) -> tuple[logging.Logger, logging.Handler]:
+    from qmc.storage.faults import write_fault
+
     logger = logging.getLogger("qmc.run")
     logger.setLevel(logging.INFO)
     logger.propagate = False
-    handler = logging.FileHandler(run_dir / "run.log", encoding="utf-8")
+    try:
+        handler = _RunLog(run_dir / "run.log", encoding="utf-8")
+    except OSError as exc:
+        raise write_fault(run_dir / "run.log", exc) from None
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s"))
     logger.addHandler(handler)
     return logger, handler
@@ -136,11 +149,11 @@ def _run_main(config: Path, out: Path | None, only: tuple[str, ...], force: bool
     try:
         cfg = load_config(config)
         plan = prepare_run(cfg, out, only=only, force=force)
+        logger, handler = _open_log(plan.run_dir)
     except BaseException:
         if world is not None:  # the workers wait for the set-up: tell them the run will not start
             world.cancel()
         raise
-    logger, handler = _open_log(plan.run_dir)
     progress = NullProgress() if quiet else Progress()
     try:
         logger.info("qmc run %s: %d task(s) to run, %d done already, run directory %s", cfg.path,
@@ -200,7 +213,13 @@ def _plan_notes(plan: Any, force: bool) -> list[str]:
 
 
 def _report(plan: Any, report: Any, quiet: bool, logger: logging.Logger) -> int:
+    from qmc.storage.faults import WRITE_FAULT_EXIT, fault_text
+
     n_sel = len(plan.tasks) + len(plan.done)
+    if report.fault:  # one message, whatever else happened
+        logger.error(fault_text(report.fault))
+        click.echo(f"error: {fault_text(report.fault)}", err=True)
+        return WRITE_FAULT_EXIT
     for o in report.failed:
         click.echo(f"error: task {o.task_id} failed: {o.message} (details in {plan.run_dir / 'run.log'})",
                    err=True)
@@ -211,6 +230,11 @@ def _report(plan: Any, report: Any, quiet: bool, logger: logging.Logger) -> int:
         logger.info(text)
         if not report.failed or report.stop_reason:
             click.echo(text, err=True)
+    elif report.elsewhere:  # a job array: this process has done its share
+        text = (f"note: {len(report.elsewhere)} of {n_sel} task(s) are being run by other processes sharing "
+                f"{plan.run_dir}: {_listing(report.elsewhere)}; the rest is done")
+        logger.info(text)
+        click.echo(text, err=True)
     else:
         text = f"done: all {n_sel} task(s) finished in {plan.run_dir}"
         logger.info(text)

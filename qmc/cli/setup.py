@@ -19,7 +19,8 @@ __all__ = ["new_cmd", "validate_cmd"]
               help="File to write (default: ./<KIND>.toml; '-' prints to standard output).")
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def new_cmd(kind: str, out: Path | None, force: bool) -> None:
-    """Write the commented example configuration KIND: heisenberg, bilayer, columnar-dimer, jq2 or jq3.
+    """Write the commented example configuration KIND: heisenberg, bilayer, columnar-dimer, jq2, jq3 or
+    su3-jq2.
 
     Each file is a complete run: its comments explain the model, every key and the choice of sizes,
     temperatures and couplings.

@@ -12,7 +12,7 @@ import click
 
 __all__ = ["status_cmd", "status_text"]
 
-_ORDER = {"failed": 0, "running": 1, "stopped": 2, "pending": 3, "done": 4}
+_ORDER = {"failed": 0, "running": 1, "queued": 2, "stopped": 3, "pending": 4, "done": 5}
 
 
 def _ago(t: float | None, now: float) -> str:
@@ -29,8 +29,8 @@ def status_text(st: Any, *, show_all: bool = False, rows: int = 20, now: float |
     from qmc.run.progress import format_duration
 
     now = time.time() if now is None else now
-    counts = ", ".join(f"{st.count(s)} {s}" for s in ("done", "running", "stopped", "failed", "pending")
-                       if st.count(s))
+    counts = ", ".join(f"{st.count(s)} {s}" for s in ("done", "running", "queued", "stopped", "failed",
+                                                      "pending") if st.count(s))
     configured = [t for t in st.tasks if t.in_config]
     lines = [f"run {st.run_dir}" + (f" ({st.name})" if st.name else "") + f", configuration {st.source}",
              f"{len(configured)} task(s): {counts or 'none'}; index updated {st.updated}"]

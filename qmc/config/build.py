@@ -29,15 +29,17 @@ def build_model(task: Task) -> CompiledModel:
     except ModelError as exc:
         raise _located(exc.within("lattice"), task) from None
     terms = []
+    classes = {"heisenberg": models.HeisenbergTerm, "projector": models.ProjectorTerm,
+               "projector-product": models.ProjectorProductTerm}
     for i, d in enumerate(task.terms):
         kwargs = {k: v for k, v in d.items() if k != "type"}
-        cls = models.HeisenbergTerm if d["type"] == "heisenberg" else models.ProjectorProductTerm
+        cls = classes[d["type"]]
         try:
             terms.append(cls(**kwargs))
         except ModelError as exc:
             raise _located(exc.within(f"terms[{i}]"), task) from None
     try:
-        return models.compile_model(lat, terms)
+        return models.compile_model(lat, terms, colours=task.colors)
     except ModelError as exc:
         raise _located(exc, task) from None
 
@@ -67,8 +69,8 @@ def validate(config: RunConfig) -> int:
     """
     seen: set[str] = set()
     for task in config.tasks():
-        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms],
-                         sort_keys=True, default=list)
+        key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms,
+                          task.colors], sort_keys=True, default=list)
         if key not in seen:
             seen.add(key)
             build_model(task)

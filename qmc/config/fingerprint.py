@@ -11,14 +11,15 @@ from __future__ import annotations
 import hashlib
 import json
 
-from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import LatticeSpec, ModelSection, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import canonical_number
 
 __all__ = ["fingerprint", "physics_fingerprint"]
 
 
-def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...]) -> dict:
-    return {
+def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
+             model: ModelSection | None = None) -> dict:
+    content = {
         "seed": run.seed,
         "lattice": {"kind": lattice.kind, "size": [e.canonical for e in lattice.size],
                     "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
@@ -26,6 +27,9 @@ def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...])
         "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
                    "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
     }
+    if model is not None and model.colors is not None and model.colors.canonical != "2":
+        content["model"] = {"colors": model.colors.canonical}
+    return content
 
 
 def _scan_value(e: ScanEntry) -> str | list:
@@ -41,23 +45,26 @@ def _hash(content: dict) -> str:
     return hashlib.sha256(text.encode()).hexdigest()
 
 
-def physics_fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...]) -> str:
-    """SHA-256 (hex) of the master seed, the lattice and the terms: what two configurations must share for
-    their tasks to belong to one run (comments, layout, names and the scan do not enter)."""
-    return _hash(_physics(run, lattice, terms))
+def physics_fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
+                        model: ModelSection | None = None) -> str:
+    """SHA-256 (hex) of the master seed, the lattice, the terms and the number of colours (when not 2): what
+    two configurations must share for their tasks to belong to one run (comments, layout, names and the
+    scan do not enter)."""
+    return _hash(_physics(run, lattice, terms, model))
 
 
 def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling) -> str:
+                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None) -> str:
     """SHA-256 (hex) of the semantic content of a configuration.
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output``,
     ``sampling.checkpoint_seconds`` and ``exchange.max_ranks`` do not enter; numbers enter by value (1 and
-    1.0 are the same).  ``exchange.every`` enters only with replica exchange.
+    1.0 are the same).  ``exchange.every`` enters only with replica exchange; ``model.colors`` only when it
+    is not the default 2 (so configurations written before [model] existed keep their fingerprint).
     """
     s = sampling
     content = {
-        **_physics(run, lattice, terms),
+        **_physics(run, lattice, terms, model),
         "scan": [[e.name, _scan_value(e)] for e in scan],
         "sampling": {"warmup_steps": s.warmup_steps, "measure_steps": s.measure_steps, "bins": s.bins,
                      "copies": s.copies, "exchange": s.exchange},

@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from qmc.config.fingerprint import fingerprint, physics_fingerprint
-from qmc.config.schema import LatticeSpec, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import LatticeSpec, ModelSection, RunSection, Sampling, ScanEntry, TermSpec
 from qmc.config.tasks import Task, expand_tasks
 
 __all__ = ["RunConfig", "config_fingerprint"]
@@ -15,8 +15,8 @@ __all__ = ["RunConfig", "config_fingerprint"]
 
 @dataclass(eq=False)
 class RunConfig:
-    """A loaded configuration: parsed sections, the raw ``text`` and ``data``, the file ``path`` and the
-    resolved absolute ``output_dir``."""
+    """A loaded configuration: parsed sections (``model`` is [model]), the raw ``text`` and ``data``, the file
+    ``path`` and the resolved absolute ``output_dir``."""
 
     path: Path
     text: str
@@ -27,6 +27,7 @@ class RunConfig:
     scan: tuple[ScanEntry, ...]
     sampling: Sampling
     output_dir: Path
+    model: ModelSection = field(default_factory=ModelSection)
     _tasks: tuple[Task, ...] | None = field(default=None, repr=False)
 
     @property
@@ -45,16 +46,16 @@ class RunConfig:
         """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner."""
         if self._tasks is None:
             self._tasks = tuple(expand_tasks(str(self.path), self.run, self.lattice, self.terms, self.scan,
-                                             self.sampling))
+                                             self.sampling, self.model))
         return list(self._tasks)
 
     def fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.fingerprint`."""
-        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling)
+        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.model)
 
     def physics_fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.physics_fingerprint`."""
-        return physics_fingerprint(self.run, self.lattice, self.terms)
+        return physics_fingerprint(self.run, self.lattice, self.terms, self.model)
 
 
 def config_fingerprint(config: RunConfig) -> str:

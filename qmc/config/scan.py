@@ -11,7 +11,16 @@ from typing import Any
 
 from qmc.config.expressions import Number, format_number
 from qmc.config.reader import TableReader
-from qmc.config.schema import MAX_TASKS, NAME_RE, RESERVED_NAMES, LatticeSpec, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import (
+    MAX_TASKS,
+    NAME_RE,
+    RESERVED_NAMES,
+    LatticeSpec,
+    ModelSection,
+    Sampling,
+    ScanEntry,
+    TermSpec,
+)
 from qmc.errors import describe_value, did_you_mean
 
 __all__ = ["parse_scan", "check_names", "check_exchange", "round_value"]
@@ -110,10 +119,13 @@ def _range(r: TableReader, key: str, value: dict[str, Any]) -> list[Number]:
 
 
 def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling) -> None:
-    """Every scan name used in lattice.size, a coupling or beta exists, and every scan entry is used."""
+                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None) -> None:
+    """Every scan name used in model.colors, lattice.size, a coupling or beta exists, and every scan entry is
+    used."""
+    model = model or ModelSection()
     entries = {e.name: e for e in scan}
-    uses = [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
+    uses = [("model.colors", model.colors)] if model.colors is not None else []
+    uses += [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
     uses += [(f"terms[{i}].coupling", t.coupling) for i, t in enumerate(terms)]
     for key, expr in uses:
         for ref in expr.names:
@@ -129,14 +141,16 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     for e in scan:
         if e.name not in used:
             raise r.fail(f"scan.{e.name}", f"scan.{e.name} is never used: refer to it in "
-                                           "lattice.size, a [[terms]] coupling or beta, or remove it")
-    check_exchange(r, sampling.exchange, lattice, terms, entries)
+                                           "model.colors, lattice.size, a [[terms]] coupling or beta, or "
+                                           "remove it")
+    check_exchange(r, sampling.exchange, lattice, terms, entries, model)
 
 
 def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                   entries: dict[str, ScanEntry]) -> None:
+                   entries: dict[str, ScanEntry], model: ModelSection | None = None) -> None:
     """``[exchange] along`` names a scanned coupling with at least two values that changes neither the
-    lattice nor beta (swaps are only defined between chains of the same lattice and temperature)."""
+    lattice, nor the number of colours, nor beta (swaps are only defined between chains of the same lattice,
+    states and temperature)."""
     if name is None:
         return
     key = "exchange.along"
@@ -153,6 +167,9 @@ def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms
         if affected & set(expr.names):
             raise r.fail(key, f"'{name}' changes {lattice.size_key(i)}; configurations can only be "
                               "exchanged between tasks on the same lattice")
+    if model is not None and model.colors is not None and affected & set(model.colors.names):
+        raise r.fail(key, f"'{name}' changes model.colors; configurations can only be exchanged between "
+                          "tasks with the same number of colours")
     if "beta" in affected:
         raise r.fail(key, f"'{name}' changes beta; replica exchange is only along a coupling at fixed beta")
     if len(entry.values) < 2:

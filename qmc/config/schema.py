@@ -5,14 +5,19 @@ Sections and keys (``*`` marks required ones)::
     [run]       name = "text" (default: file stem), output = "runs/x" (run directory, relative to the
                 config file; default "runs/<file stem>"), seed* = master seed (integer >= 0),
                 description = "text"
+    [model]     colors = N (colours per site, an integer from 2 to 100 or a scan name; default 2: S = 1/2
+                spins; N > 2: SU(N), fundamental representation on sublattice A, conjugate on B)
     [lattice]   kind* = chain | square | bilayer | honeycomb | cubic, size* = [numbers or scan names]
                 (one entry per direction, or a single value for all), boundary = periodic | open
                 or: kind* = "explicit", sites* = N, bonds = [[i, j], ...], classes = {name = [[i, j], ...]}
                 (at least one of bonds/classes; with both, the classes split the bond list exactly)
-    [[terms]]   type* = "heisenberg": bonds* = bond class, coupling* = J   (adds +J S_i.S_j per bond)
+    [[terms]]   type* = "heisenberg": bonds* = bond class, coupling* = J   (adds +J S_i.S_j per bond;
+                colors = 2 only)
+                type* = "projector": bonds* = bond class, coupling* = J   (adds -J P_ij per bond)
                 type* = "projector-product": shape* = "plaquette-pair" | "column-of-three" |
-                [[[dx, dy], [dx, dy]], ...], coupling* = Q, symmetrize = bool
-                (adds -Q prod (1/4 - S_i.S_j) over the bonds of the shape); both take name = "text"
+                [[[dx, dy], [dx, dy]], ...] (one offset entry per lattice direction), coupling* = Q,
+                symmetrize = bool (adds -Q prod P_ij over the bonds of the shape); all take name = "text".
+                P_ij is the singlet projector (1/4 - S_i.S_j for two colours).
     [scan]      NAME = number | [numbers] | {start, stop, num} (num values, both ends included) |
                 "expression of other scan names" (e.g. beta = "2*L");  beta* is required
     [sampling]  warmup_steps*, measure_steps*, bins* (>= 2, divides measure_steps), copies = 1,
@@ -38,14 +43,15 @@ __all__ = [
     "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES", "EXPLICIT", "SECTIONS", "MAX_TASKS",
     "COPY_PARAM", "RESERVED_NAMES", "RENAMED_KEYS", "NAME_RE", "TERM_NAME_RE",
     "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "TERM_KEYS", "HOME",
-    "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling", "check_coupling",
+    "MODEL_KEYS", "ModelSection", "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling",
+    "check_coupling",
 ]
 
 # LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
-TERM_TYPES = ("heisenberg", "projector-product")
+TERM_TYPES = ("heisenberg", "projector", "projector-product")
 SHAPES = tuple(models.SHAPES)  # named shapes of projector-product terms
 EXPLICIT = "explicit"
-SECTIONS = ("run", "lattice", "terms", "scan", "sampling", "exchange")
+SECTIONS = ("run", "model", "lattice", "terms", "scan", "sampling", "exchange")
 MAX_TASKS = 100_000
 COPY_PARAM = "copy"
 """Parameter name of the copy index (0 .. copies-1) in a task's ``params``."""
@@ -63,6 +69,8 @@ RENAMED_KEYS = {
 }
 """(section, old key) -> its replacement: keys of earlier releases, refused with this name."""
 
+MODEL_KEYS = {"colors": "colours per site: 2 (S = 1/2 spins, the default) or N > 2 for SU(N), an integer "
+                        "or a scan name"}
 RUN_KEYS = {"name": "free text naming the run", "output": "the run directory, relative to this file",
             "seed": "the master random seed, an integer >= 0", "description": "free text"}
 LATTICE_KEYS = {"kind": "one of " + ", ".join([*LATTICE_KINDS, EXPLICIT]),
@@ -80,13 +88,16 @@ EXCHANGE_KEYS = {"along": "scan name of the coupling whose values exchange confi
                  "max_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
 TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
                             "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
+             "projector": {"type": "projector", "bonds": "a bond class of the lattice, e.g. \"nn\"",
+                           "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
              "projector-product": {"type": "projector-product",
                                    "shape": '"plaquette-pair", "column-of-three" or '
-                                            '[[[dx, dy], [dx, dy]], ...]',
+                                            '[[[dx, dy], [dx, dy]], ...] (one entry per direction)',
                                    "coupling": "Q >= 0, a number or scan name",
                                    "symmetrize": "true (default) to add the shape rotated by 90 degrees",
                                    "name": "label of the term"}}
-HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
+HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[model]" for k in MODEL_KEYS},
+        **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
         **{k: "[sampling]" for k in SAMPLING_KEYS}, **{k: "[exchange]" for k in EXCHANGE_KEYS},
         "beta": "[scan]", "L": "[scan]",
         **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize")}}
@@ -104,6 +115,14 @@ class RunSection:
     output: str
     seed: int
     description: str = ""
+
+
+@dataclass(frozen=True)
+class ModelSection:
+    """``[model]``: ``colors``, the number of colours per site (an expression of the scan names; None: the
+    section or key is absent, i.e. 2 colours)."""
+
+    colors: Expression | None = None
 
 
 @dataclass(frozen=True)

@@ -1,4 +1,4 @@
-"""Parsing of the sections [run], [lattice], [[terms]], [sampling] and [exchange] (schema:
+"""Parsing of the sections [run], [model], [lattice], [[terms]], [sampling] and [exchange] (schema:
 :mod:`qmc.config.schema`); [scan] is :mod:`qmc.config.scan`.
 
 Each ``parse_*`` function takes the :class:`~qmc.config.reader.TableReader` of the file and returns the
@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import qmc.models as models
 from qmc.config.reader import TableReader
 from qmc.config.schema import (
     BOUNDARIES,
@@ -17,6 +18,7 @@ from qmc.config.schema import (
     EXPLICIT_KEYS,
     LATTICE_KEYS,
     LATTICE_KINDS,
+    MODEL_KEYS,
     RUN_KEYS,
     SAMPLING_KEYS,
     SHAPES,
@@ -24,6 +26,7 @@ from qmc.config.schema import (
     TERM_NAME_RE,
     TERM_TYPES,
     LatticeSpec,
+    ModelSection,
     RunSection,
     Sampling,
     TermSpec,
@@ -31,7 +34,7 @@ from qmc.config.schema import (
 )
 from qmc.errors import describe_value
 
-__all__ = ["parse_run", "parse_lattice", "parse_terms", "parse_sampling"]
+__all__ = ["parse_run", "parse_model", "parse_lattice", "parse_terms", "parse_sampling"]
 
 
 def parse_run(r: TableReader) -> RunSection:
@@ -44,6 +47,24 @@ def parse_run(r: TableReader) -> RunSection:
     seed = r.integer("run.seed", t["seed"], minimum=0)
     description = r.string("run.description", t["description"]) if "description" in t else ""
     return RunSection(name=name, output=output, seed=seed, description=description)
+
+
+def parse_model(r: TableReader) -> ModelSection:
+    """``[model]`` (optional): ``colors``, a whole number >= 2 or an expression of scan names (checked per
+    task by :mod:`qmc.config.tasks`)."""
+    if "model" not in r.data:
+        return ModelSection()
+    t = r.table("model")
+    r.check_keys("model", t, MODEL_KEYS, (), "[model]")
+    if "colors" not in t:
+        return ModelSection()
+    colors = r.expression("model.colors", t["colors"])
+    if colors.is_constant:
+        value = colors.evaluate({})
+        if value != int(value) or not 2 <= value <= models.MAX_COLOURS:
+            raise r.fail("model.colors", f"must be a whole number from 2 to {models.MAX_COLOURS} (colours "
+                                         f"per site), got {describe_value(t['colors'])}")
+    return ModelSection(colors=colors)
 
 
 def parse_lattice(r: TableReader) -> LatticeSpec:
@@ -150,7 +171,7 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
         for k in t:
             if k not in allowed and any(k in other for other in TERM_KEYS.values()):
                 raise r.fail(f"{key}.{k}", f"key '{k}' does not apply to a {ttype} term")
-        required = ("bonds", "coupling") if ttype == "heisenberg" else ("shape", "coupling")
+        required = ("shape", "coupling") if ttype == "projector-product" else ("bonds", "coupling")
         r.check_keys(key, t, allowed, required, key)
         coupling = r.expression(f"{key}.coupling", t["coupling"])
         if coupling.is_constant:
@@ -164,7 +185,7 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
             if name in names:
                 raise r.fail(f"{key}.name", f"{name!r} is already the name of terms[{names[name]}]")
             names[name] = i
-        if ttype == "heisenberg":
+        if ttype != "projector-product":
             bonds = r.string(f"{key}.bonds", t["bonds"])
             terms.append(TermSpec(type=ttype, coupling=coupling, bonds=bonds, name=name))
         else:
@@ -185,19 +206,22 @@ def _shape(r: TableReader, key: str, value: Any) -> str | tuple:
     if isinstance(value, str):
         return r.choice(key, value, SHAPES, "shape")
     form = ("a shape name or a list of 1 to 3 bonds [[[dx, dy], [dx, dy]], ...] (unit-cell offsets of "
-            "the two sites of each bond)")
+            "the two sites of each bond, one integer per lattice direction: [[[0], [1]]] on a chain)")
     if not isinstance(value, list) or not 1 <= len(value) <= 3:
         raise r.fail(key, f"must be {form}, got {describe_value(value)}"
                           + (f" with {len(value)} entries" if isinstance(value, list) else ""))
     bonds = []
     for b, bond in enumerate(value):
         ok = isinstance(bond, list) and len(bond) == 2 and all(
-            isinstance(p, list) and len(p) == 2
+            isinstance(p, list) and 1 <= len(p) <= 4 and len(p) == len(bond[0])
             and all(isinstance(c, int) and not isinstance(c, bool) for c in p) for p in bond)
         if not ok:
-            raise r.fail(f"{key}[{b}]", "a bond of a shape is [[dx, dy], [dx, dy]] with integer "
-                                        f"offsets, got {bond!r}")
+            raise r.fail(f"{key}[{b}]", "a bond of a shape is two offsets of integers, one per lattice "
+                                        f"direction: [[dx, dy], [dx, dy]] on a square lattice, got {bond!r}")
         bonds.append(tuple(tuple(p) for p in bond))
+    if len({len(p) for bond in bonds for p in bond}) > 1:
+        raise r.fail(key, "every offset of a shape needs the same number of entries (one per lattice "
+                          f"direction), got {value!r}")
     return tuple(bonds)
 
 

@@ -14,11 +14,13 @@ import itertools
 from dataclasses import dataclass
 from typing import Any
 
+import qmc.models as models
 from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
     LatticeSpec,
+    ModelSection,
     RunSection,
     Sampling,
     ScanEntry,
@@ -39,7 +41,8 @@ class Task:
     ``terms`` are dicts whose keys other than ``type`` are the keyword arguments of the models term
     classes (``bonds``/``shape``, numeric ``coupling``, optional ``symmetrize``, ``name``).  ``explicit`` is
     ``{"sites", "bonds", "classes"}`` for an explicit lattice, else None.  ``params`` holds the scan values
-    and ``copy``.  The random stream of the task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
+    and ``copy``; ``colors`` is the number of colours per site (2: S = 1/2 spins).  The random stream of the
+    task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
     names the replica-exchange ladder the task belongs to (tasks that differ only in the exchanged
     parameter ``exchange`` share it), or is None without exchange; the ladder's swap decisions draw from
     ``stream_seed(seed, exchange_seed_key)``.
@@ -61,6 +64,7 @@ class Task:
     exchange_seed_key: str | None = None
     explicit: dict[str, Any] | None = None
     source: str = ""
+    colors: int = 2
 
 
 def canonical_number(v: Number) -> str:
@@ -69,7 +73,8 @@ def canonical_number(v: Number) -> str:
 
 
 def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                 scan: tuple[ScanEntry, ...], sampling: Sampling) -> list[Task]:
+                 scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None
+                 ) -> list[Task]:
     """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner.
 
     Derived entries are evaluated per point; beta, sizes and couplings are checked per task, with the
@@ -99,6 +104,7 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
             raise UserError(f"beta = {format_number(beta)}" + (f" (for {others})" if others else "")
                             + " must be positive", f"{source}: scan.beta")
         size = _resolve_size(source, lattice, values, context)
+        colors = _resolve_colors(source, model or ModelSection(), terms, values, context)
         resolved = [_resolve_term(source, i, t, values, context) for i, t in enumerate(terms)]
         label = "_".join(f"{e.name}{format_number(values[e.name])}" for e in base)
         key = ";".join(f"{k}={canonical_number(params[k])}" for k in sorted(params))
@@ -112,7 +118,8 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
                 task_id=f"{label}_c{c}", params={**params, COPY_PARAM: c}, lattice_kind=lattice.kind,
                 size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
                 copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
-                exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source))
+                exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source,
+                colors=colors))
     return tasks
 
 
@@ -128,13 +135,34 @@ def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], con
     return value
 
 
+def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...], values: dict[str, Number],
+                    context: str) -> int:
+    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg
+    term (it is defined through S = 1/2 spin operators)."""
+    if model.colors is None:
+        return 2
+    where = f"{source}: model.colors"
+    v = model.colors.evaluate(values, where)
+    if float(v) != int(v) or not 2 <= v <= models.MAX_COLOURS:
+        raise UserError(f"colors = {format_number(v)}{context if model.colors.names else ''} must be a whole "
+                        f"number from 2 to {models.MAX_COLOURS}", where)
+    v = int(v)
+    for i, t in enumerate(terms):
+        if v > 2 and t.type == "heisenberg":
+            raise UserError(f"a heisenberg term (S_i.S_j of S = 1/2 spins) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}; for SU({v}) use type = \"projector\" "
+                            "(-J sum P_ij, which for two colours is J S_i.S_j - J/4)",
+                            f"{source}: terms[{i}].type")
+    return v
+
+
 def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
                   context: str) -> dict[str, Any]:
     where = f"{source}: terms[{i}].coupling"
     coupling = t.coupling.evaluate(values, where)
     check_coupling(coupling, where, context)
     d: dict[str, Any] = {"type": t.type}
-    if t.type == "heisenberg":
+    if t.type != "projector-product":
         d["bonds"] = t.bonds
     else:
         d["shape"] = t.shape

@@ -7,6 +7,8 @@ Sources of the transition points named in the comments (they only set the scan w
 bilayer g_c = 2.5220(1), Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006) (also the reference of
 tests/cli/test_end_to_end.py); columnar dimer g_c ~ 1.91, J-Q2 (J/Q)_c ~ 0.045 and J-Q3 (J/Q)_c ~ 0.67 are
 from memory (a scan window that misses a transition shows up as crossings at its edge in ``qmc analyze``).
+The SU(3) J-Q2 window (Q/J = 0.3 ... 0.8 around 0.5) comes from short runs of this program at L = 8, 16
+(crossing of stiffness * L).
 """
 
 from __future__ import annotations
@@ -80,9 +82,12 @@ _SCAN_HELP = '''\
 _TERMS_HELP = '''\
 # The Hamiltonian is the sum of the [[terms]] blocks (numbered terms[0], terms[1], ... in messages).
 #   type = "heisenberg":        +J S_i.S_j on every bond of the bond class `bonds`; coupling = J >= 0.
-#   type = "projector-product": -Q prod (1/4 - S_i.S_j) over the bonds of `shape`, placed at every unit
-#                               cell; coupling = Q >= 0.  symmetrize = true (default) also places the
-#                               shape rotated by 90 degrees.
+#   type = "projector":         -J P_ij on every bond of `bonds`, P_ij = 1/4 - S_i.S_j the singlet
+#                               projector (for N colours per site the SU(N) singlet projector).
+#   type = "projector-product": -Q prod P_ij over the bonds of `shape`, placed at every unit cell;
+#                               coupling = Q >= 0.  symmetrize = true (default) also places the shape
+#                               rotated by 90 degrees.  A shape is a name or a list of bonds, each two
+#                               unit-cell offsets with one number per lattice direction.
 # A coupling is a number or a scan name (or an expression such as "2*g").  Negative couplings have a
 # sign problem and are refused.  Each block's energy per site is measured as term_energy/<name>;
 # name = "..." sets that name.
@@ -99,9 +104,10 @@ _CRITICAL_BETA = ("# beta = L: at these transitions time scales like length (dyn
                   "# dimensionless quantities of different sizes cross at the critical coupling.\n")
 
 
-def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling: str) -> str:
-    return "\n".join([title, run, "[lattice]\n" + _LATTICE_HELP + lattice, _TERMS_HELP + terms,
-                      "[scan]\n" + _SCAN_HELP + scan, sampling])
+def _compose(title: str, run: str, lattice: str, terms: str, scan: str, sampling: str,
+             model: str = "") -> str:
+    return "\n".join([title, run, *([model] if model else []), "[lattice]\n" + _LATTICE_HELP + lattice,
+                      _TERMS_HELP + terms, "[scan]\n" + _SCAN_HELP + scan, sampling])
 
 
 TEMPLATES: dict[str, str] = {
@@ -187,6 +193,28 @@ TEMPLATES: dict[str, str] = {
         "L = [8, 12, 16]\n# J: Heisenberg coupling in units of Q, 7 values from 0.50 to 0.80.\n"
         "J = { start = 0.50, stop = 0.80, num = 7 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
         _sampling(2000, 20000, 100, exchange="J"),
+    ),
+    "su3-jq2": _compose(
+        "# SU(3) J-Q2 model: three colours per site (SU(3), fundamental representation on sublattice A,\n"
+        "# conjugate on B), H = -J sum_<ij> P_ij - Q sum P_ij P_kl with P_ij the projector on the SU(3)\n"
+        "# singlet of the bond and the projector pairs on the two parallel bonds of every 2x2 plaquette;\n"
+        "# J = 1 sets the energy unit.  With Q = 0 the colours order antiferromagnetically (m_stag2 finite,\n"
+        "# from the staggered colour order m_s = sum_i (delta(c_i, 0) - 1/3) / N); the Q term drives the\n"
+        "# model into columnar valence-bond order (vbs_x2, vbs_y2 finite).  The two meet near Q/J = 0.5 at\n"
+        "# these sizes; the scan 0.3 ... 0.8 brackets it.  The same file with colors = 2 is the S = 1/2 J-Q\n"
+        "# model, and colors may be a scan name to compare several N in one run.\n",
+        _run("su3-jq2-transition", 2718, "Neel to valence-bond-solid transition of the SU(3) J-Q2 model"),
+        'kind = "square"\nsize = ["L", "L"]\nboundary = "periodic"\n',
+        '[[terms]]\ntype = "projector"\nbonds = "nn"\ncoupling = 1.0\n\n'
+        '[[terms]]\ntype = "projector-product"\nshape = "plaquette-pair"\nsymmetrize = true\n'
+        'coupling = "Q"\n',
+        "L = [8, 12, 16]\n# Q: four-site coupling in units of J, 11 values from 0.3 to 0.8.\n"
+        "Q = { start = 0.3, stop = 0.8, num = 11 }\n" + _CRITICAL_BETA + "beta = \"L\"\n",
+        _sampling(2000, 20000, 100, exchange="Q"),
+        model="[model]\n# colors: colours per site, 2 (S = 1/2 spins, the default) or N > 2 for SU(N); an\n"
+              "# integer or a scan name.  A heisenberg term needs colors = 2: for N > 2 write\n"
+              "# type = \"projector\".\n"
+              "colors = 3\n",
     ),
 }
 

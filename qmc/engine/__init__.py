@@ -5,6 +5,7 @@
 - :mod:`qmc.engine.vertices`    operator encoding, leg numbering, the per-term table (k | kind | group, bonds)
 - :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
 - :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
+- :mod:`qmc.engine.colour`      the SU(N) colour kind (the same loops, each given one of N colours)
 - :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.equal_time`  estimators of a single propagated state
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
@@ -29,7 +30,8 @@ A new kind adds, next to the existing one:
 2. ``qmc/engine/<kind>.py`` beside ``projector.py``: a NamedTuple record class with the kind's own tables,
    ``record(model)`` building it, and the hooks with the stubs' arguments: ``insertion_allowed``
    (``@njit(inline="always")``; may draw random numbers; a kind covering several codes reads the term's
-   with ``meta_kind(table[t, TT_META])``) and ``loop_update``.
+   with ``meta_kind(table[t, TT_META])``), ``loop_update`` and the other hooks of ``kinds.HOOKS``
+   (``@njit(inline="always")``), plus ``initial_spins`` and ``SLOT_COLOURS`` (Python level).
 3. ``qmc/engine/kinds.py``: one ``register_kind(Record, module, covers)`` line, ``covers`` being the codes its
    update handles.  The first registered kind covering all of a model's codes runs it, so a kind that also
    handles projector vertices is registered after the projector and pure projector models keep the fast path.
@@ -38,15 +40,18 @@ A new kind adds, next to the existing one:
    bit-identical: tests/chain/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's
    version.
 
-The two kinds planned next, in these terms:
+The second kind, and the one planned next, in these terms:
 
-- SU(N) colours: a colour code (``projector`` terms with N > 2; N = 2 stays ``projector``); the site state
-  is a colour 0..N-1 in ``Chain.spins`` (A / conjugate-B basis); insertion allowed when every bond's two
-  colours agree (w_t = C_t / N^k); loops as the projector's, each given one of N colours.  New hooks: the
-  state's order parameter at slice 0, the propagation through an off-diagonal bond (a new colour pair rather
-  than a spin flip; the new colour in a per-slot array of the record, ``ops`` keeping ``(t << 3) | offmask``),
-  applying the loop update's colour changes to an operator (in place of the ``vflip`` xor), the equal-time
-  estimators and the initial state.
+- SU(N) colours (:mod:`qmc.engine.colour`, code ``"colour"``, every group of a model with N > 2 colours;
+  N = 2 stays ``projector``): the site state is a colour 0..N-1 in ``Chain.spins`` (A / conjugate-B basis);
+  insertion allowed when every bond's two colours agree (w_t = C_t / N^k); loops as the projector's, each
+  given one of N colours.  Hooks added for it, with the projector's code moved unchanged into
+  ``projector.py``: ``apply_changes`` (the loop update's changes to an operator: the ``vflip`` xor, or the
+  new colours), ``hop`` (propagation through an off-diagonal bond: a spin flip, or the colour above it from
+  ``Chain.above``, per slot, ``ops`` keeping ``(t << 3) | offmask``), ``site_value`` and ``bond_value`` (what
+  the order parameters and the equal-time estimators are built from), and at Python level
+  ``initial_spins`` and ``slot_colours``.  :func:`qmc.engine.diagonal.fold_pending` applies pending changes
+  for any kind (checkpoints, configuration swaps).
 - Directed loops: codes for XXZ bonds and fields; the record holds per-term diagonal weights and the
   exit-leg probability tables (fewest bounces); insertion accepts with probability W_t(s_i, s_j) / w_t; the
   kind covers the projector code too (projector vertices inside directed loops always leave at ``l ^ 1``).

@@ -9,11 +9,12 @@ is proposed with probability min(1, beta W_tot / (M - n)), the term being drawn 
 w_t / W_tot (w_t = C_t / 2^{k_t}, alias table), and accepted as its vertex kind says
 (:func:`qmc.engine.kinds.insertion_allowed`; singlet projectors: when all its bonds are antiparallel); a
 fully diagonal operator is removed with probability min(1, (M - n + 1) / (beta W_tot)).  Off-diagonal
-operators stay and propagate the spins.
+operators stay and propagate the state (hook ``hop``).
 
 One pass over the string does three things per slot:
 
-1. applies the loop flips of the previous step to the operator (``vflip``),
+1. applies the loop update's pending changes to the operator (hook ``apply_changes``: the projector kind
+   xors the flips in ``vflip`` into the off-diagonal bits),
 2. measures the *old* configuration (the one the previous loop update produced; diagonal updates do not
    change the propagated states): the number of operators per term group, the staggered magnetisation
    after each operator (for the Kubo-integrated susceptibility and time-averaged moments) and the winding
@@ -35,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.engine.kinds import insertion_allowed
+from qmc.engine.kinds import apply_changes, hop, insertion_allowed, site_value
 from qmc.engine.rng import next_double
 from qmc.engine.slots import (
     SW_MS_END,
@@ -56,7 +57,7 @@ from qmc.engine.vertices import (
     meta_group,
 )
 
-__all__ = ["diagonal_sweep"]
+__all__ = ["diagonal_sweep", "fold_pending"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 
@@ -65,7 +66,7 @@ U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot
 def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
     """One diagonal-update sweep; returns (n_new, n_vertices).  Fills ``tallies.sweep_out`` (slots ``SW_*``)
     and ``tallies.group_counts``; ``ms`` is 2 M_s (spins are +-1).  Records: :mod:`qmc.engine.records`."""
-    ops, spins, rng = chain.ops, chain.spins, chain.rng
+    ops, spins, rng, above = chain.ops, chain.spins, chain.rng, chain.above
     links, vflip, first, last = vertices.links, vertices.vflip, vertices.first, vertices.last
     table, alias_prob, alias_idx, beta_wtot = terms.table, terms.alias_prob, terms.alias_idx, terms.beta_wtot
     bond_disp, phase = probes.bond_disp, probes.phase
@@ -80,7 +81,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
     for i in range(n_sites):
         first[i] = -1
         last[i] = -1
-        ms += phase[U(i)] * spins[i]
+        ms += phase[U(i)] * site_value(kind, spins, i)
     for g in range(group_counts.shape[0]):
         group_counts[g] = 0
     w0 = 0.0
@@ -102,9 +103,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             t = op >> OP_TERM_SHIFT
             meta = table[U(t), TT_META]
             k = meta_bonds(meta)
-            for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
-                op ^= np.int32(vflip[U(v_old + a)]) << a
-                vflip[U(v_old + a)] = 0
+            op = apply_changes(kind, op, p, t, k, table, spins, above, vflip, v_old)
             v_old += k
             n_old += 1
             group_counts[U(meta_group(meta))] += 1
@@ -116,16 +115,14 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
                         i = table[U(t), col]
                         j = table[U(t), col + 1]
                         b = table[U(t), col + 2]
-                        si = spins[U(i)]
+                        si, d_ms = hop(kind, spins, phase, above, p, a, i, j)
                         if n_dirs > 0:
                             w0 += si * bond_disp[U(b), 0]
                             if n_dirs > 1:
                                 w1 += si * bond_disp[U(b), 1]
                                 if n_dirs > 2:
                                     w2 += si * bond_disp[U(b), 2]
-                        ms -= 2 * phase[U(i)] * si + 2 * phase[U(j)] * spins[U(j)]
-                        spins[U(i)] = -si
-                        spins[U(j)] = -spins[U(j)]
+                        ms += d_ms
                 fm = float(ms)
                 sum_ms += fm
                 sum_ms2 += fm * fm
@@ -198,3 +195,27 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
     out[SW_WINDING + 1] = w1
     out[SW_WINDING + 2] = w2
     return n, v
+
+
+@njit(cache=True, boundscheck=False)
+def fold_pending(chain, terms, kind, vertices, probes):
+    """Apply the loop update's pending changes to the operator string (and ``chain.above``) as the next
+    sweep would, without measuring or updating: the chain is unchanged in law and in bits.  The state at
+    slice 0 is left as it is (the propagation runs on a copy)."""
+    ops, above, table, vflip, phase = chain.ops, chain.above, terms.table, vertices.vflip, probes.phase
+    spins = chain.spins.copy()
+    v = 0
+    for p in range(ops.shape[0]):
+        op = ops[p]
+        if op < 0:
+            continue
+        t = op >> OP_TERM_SHIFT
+        k = meta_bonds(table[U(t), TT_META])
+        op = apply_changes(kind, op, p, t, k, table, spins, above, vflip, v)
+        ops[p] = op
+        v += k
+        for a in range(k):
+            if (op >> a) & 1:
+                col = TT_BOND + TT_BOND_WIDTH * a
+                hop(kind, spins, phase, above, p, a, table[U(t), col], table[U(t), col + 1])
+    return v

@@ -1,4 +1,7 @@
-"""Estimators of one propagated state |alpha(0)> (spins are +-1, i.e. S^z_i = spins[i] / 2).
+"""Estimators of one propagated state |alpha(0)>, written with the vertex kind's per-site value sigma_i and
+per-bond value c_ij (hooks ``site_value``, ``bond_value`` of :mod:`qmc.engine.kinds`).  For S = 1/2 spins
+(projector kind) sigma_i = 2 S^z_i and c_ij = 4 S^z_i S^z_j, and the estimators read (other kinds: their
+module docstring says what sigma and c are, chosen so that the same formulas hold at N = 2):
 
 Per configuration (N sites, phi_i the staggered sign):
 
@@ -15,13 +18,14 @@ from __future__ import annotations
 
 from numba import njit
 
+from qmc.engine.kinds import bond_value, site_value
 from qmc.engine.slots import ET_DX, ET_DY, ET_MZ2, ET_SQN
 
 __all__ = ["equal_time"]
 
 
 @njit(cache=True, boundscheck=False)
-def equal_time(spins, probes, tallies):
+def equal_time(kind, spins, probes, tallies):
     """Fill ``tallies.et_out`` (slots ``ET_*``: mz2, S(Q + dq), D_x, D_y) for the current spins and add
     (D_x, D_y) to ``tallies.hist``.  Records: :mod:`qmc.engine.records`."""
     cos_tab, sin_tab, hist_range = probes.cos_tab, probes.sin_tab, probes.hist_range
@@ -30,7 +34,7 @@ def equal_time(spins, probes, tallies):
     n_sites = spins.shape[0]
     mz = 0
     for i in range(n_sites):
-        mz += spins[i]
+        mz += site_value(kind, spins, i)
     out[ET_MZ2] = 0.25 * mz * mz
     n_dirs = cos_tab.shape[0]
     sqn = 0.0
@@ -38,7 +42,7 @@ def equal_time(spins, probes, tallies):
         re = 0.0
         im = 0.0
         for i in range(n_sites):
-            s = spins[i]
+            s = site_value(kind, spins, i)
             re += s * cos_tab[d, i]
             im += s * sin_tab[d, i]
         sqn += re * re + im * im
@@ -49,7 +53,7 @@ def equal_time(spins, probes, tallies):
     dx = 0.0
     dy = 0.0
     for b in range(vbs_bonds.shape[0]):
-        c = vbs_phase[b] * spins[vbs_bonds[b, 0]] * spins[vbs_bonds[b, 1]]
+        c = vbs_phase[b] * bond_value(kind, spins, vbs_bonds[b, 0], vbs_bonds[b, 1])
         if vbs_dir[b] == 0:
             dx += c
         else:

@@ -16,6 +16,22 @@ Hooks (a kind module defines a numba function of the same name and arguments for
     kind that covers several kinds which one term t has.
 ``loop_update(kind, chain, vertices, n_vertices) -> n_loops``
     the off-diagonal update on the linked vertex list the sweep built (records in :mod:`qmc.engine.records`).
+``apply_changes(kind, op, p, t, k, table, spins, above, vflip, v) -> op``
+    inlined into the sweep at an operator (slot p, term t, k bonds, bond vertices v .. v+k-1 of the last
+    loop update): the operator word with the loop update's pending changes (``vflip``) applied and those
+    cleared; ``spins`` is the state just below slot p, ``above`` the per-slot colours (``Chain.above``).
+``hop(kind, spins, phase, above, p, a, i, j) -> (weight, d_ms)``
+    inlined into the sweep at bond a (sites i, j) of an off-diagonal operator at slot p: propagate
+    ``spins`` through it; returns the weight of the hop i -> j in the winding number (the net charge moved
+    along the bond, e.g. S^z_i before the hop, times 2) and the change of ms = 2 x the staggered order.
+``site_value(kind, spins, i) -> sigma_i``
+    the site's share of the uniform order (2 S^z_i for spins); phase_i sigma_i is its share of ms.
+``bond_value(kind, spins, i, j) -> c_ij``
+    the bond correlation from which the dimer order parameters are built (4 S^z_i S^z_j for spins).
+
+Python-level parts of a kind module: ``record(model)``, ``initial_spins(kind, u)`` (the first state from
+uniform random numbers u, one per site) and ``SLOT_COLOURS`` (True if the kind keeps per-slot colours in
+``Chain.above``); :func:`initial_spins` and :func:`slot_colours` ask them for a record.
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
 (:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
@@ -32,10 +48,14 @@ import numpy as np
 from numba.core import types
 from numba.extending import overload
 
-from qmc.engine import projector
-from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
+from qmc.engine import colour, projector
+from qmc.models.compiled import KIND_COLOUR, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
-__all__ = ["insertion_allowed", "loop_update", "kind_record", "register_kind"]
+__all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
+           "kind_record", "register_kind", "initial_spins", "slot_colours"]
+
+HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value")
+"""The numba-level hooks every kind module defines."""
 
 _SELECTION: list[tuple[frozenset[int], ModuleType]] = []
 """(kind codes a module's record handles, the module), in order of preference."""
@@ -59,6 +79,16 @@ def kind_record(model: CompiledModel) -> Any:
             return module.record(model)
     names = ", ".join(VERTEX_KINDS[c] for c in sorted(codes))
     raise ValueError(f"no update in this engine handles a model with vertex kinds {names}")
+
+
+def initial_spins(kind: Any, u: np.ndarray) -> np.ndarray:
+    """The kind's first state (int8 per site) from uniform random numbers ``u`` in [0, 1), one per site."""
+    return _MODULE_OF_RECORD[type(kind)].initial_spins(kind, u)
+
+
+def slot_colours(kind: Any) -> bool:
+    """Whether the kind keeps per-slot colours (``Chain.above`` as long as the operator string)."""
+    return bool(_MODULE_OF_RECORD[type(kind)].SLOT_COLOURS)
 
 
 def _implementation(kind: Any, hook: str) -> Any:
@@ -90,4 +120,45 @@ def _loop_update(kind, chain, vertices, n_vertices):
     return _implementation(kind, "loop_update")
 
 
+def apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def hop(kind, spins, phase, above, p, a, i, j):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def site_value(kind, spins, i):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def bond_value(kind, spins, i, j):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+@overload(apply_changes, inline="always")
+def _apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
+    return _implementation(kind, "apply_changes")
+
+
+@overload(hop, inline="always")
+def _hop(kind, spins, phase, above, p, a, i, j):
+    return _implementation(kind, "hop")
+
+
+@overload(site_value, inline="always")
+def _site_value(kind, spins, i):
+    return _implementation(kind, "site_value")
+
+
+@overload(bond_value, inline="always")
+def _bond_value(kind, spins, i, j):
+    return _implementation(kind, "bond_value")
+
+
 register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))
+register_kind(colour.ColourKind, colour, frozenset({KIND_COLOUR}))

@@ -13,6 +13,10 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
   each loop is flipped with probability 1/2.  All loops are constructed (each leg visited exactly once);
   legs are marked -1 (visited, kept) or -2 (visited, flipped) in ``links``.  Sites without any operator are
   flipped with probability 1/2; the other sites follow the loop through their first leg.
+- The state is S^z_i = spins[i] / 2 (``spins`` +-1); a flipped loop toggles the diagonal/off-diagonal bit of
+  each bond side it passes (``vflip``), which the next sweep xors into ``ops`` (:func:`apply_changes`); an
+  off-diagonal bond flips both spins (:func:`hop`).  Per-site and per-bond values of the estimators
+  (:func:`site_value`, :func:`bond_value`) are 2 S^z_i and 4 S^z_i S^z_j.
 
 The kind needs no tables of its own: its record :class:`ProjectorKind` is empty.  It is the fast path
 (benchmarks/c_compare.py) and must stay bit-identical (tests/chain/test_stored_bins.py).
@@ -28,9 +32,12 @@ from numba import njit
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
-__all__ = ["ProjectorKind", "record", "insertion_allowed", "loop_update"]
+__all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
+           "apply_changes", "hop", "site_value", "bond_value", "bonds_blocked", "mark_loop"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
+SLOT_COLOURS = False
+"""The projector kind keeps no per-slot colours (``Chain.above`` is empty)."""
 
 
 class ProjectorKind(NamedTuple):
@@ -43,13 +50,41 @@ def record(model: object) -> ProjectorKind:
 
 
 @njit(inline="always")
-def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
-    """(allowed, rng words): may an operator of term t (k bonds, row ``table[t]``) be inserted now?"""
+def bonds_blocked(table, t, k, spins, blocked_if_equal):
+    """Whether a bond of term t (k bonds) blocks an insertion: one whose two site states are equal
+    (``blocked_if_equal``, S = 1/2 spins: a parallel pair) or differ (colours).  Shared with the colour
+    kind; the flag is a constant in each caller, so it folds away when inlined."""
     blocked = False
     for a in range(k):  # no early exit: one data-dependent branch per attempt, not one per bond
         col = TT_BOND + TT_BOND_WIDTH * a
-        blocked |= spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]
-    return not blocked, s0, s1, s2, s3
+        blocked |= (spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]) == blocked_if_equal
+    return blocked
+
+
+@njit(inline="always")
+def mark_loop(links, l0, mark):
+    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set every leg it
+    visits to ``mark`` (< 0: visited).  Shared with the colour kind."""
+    leg = l0
+    while True:
+        partner = leg ^ 1
+        nxt = links[U(partner)]
+        links[U(leg)] = mark
+        links[U(partner)] = mark
+        leg = nxt
+        if leg == l0:
+            break
+
+
+def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:
+    """Spins +-1, each up with probability 1/2 (u < 1/2)."""
+    return np.where(u < 0.5, 1, -1).astype(np.int8)
+
+
+@njit(inline="always")
+def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
+    """(allowed, rng words): may an operator of term t (k bonds, row ``table[t]``) be inserted now?"""
+    return not bonds_blocked(table, t, k, spins, True), s0, s1, s2, s3
 
 
 @njit(cache=True, boundscheck=False)
@@ -80,14 +115,7 @@ def loop_update(kind, chain, vertices, n_vertices):
                 if leg == l0:
                     break
         else:
-            while True:
-                partner = leg ^ 1
-                nxt = links[U(partner)]
-                links[U(leg)] = -1
-                links[U(partner)] = -1
-                leg = nxt
-                if leg == l0:
-                    break
+            mark_loop(links, l0, -1)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
@@ -101,3 +129,34 @@ def loop_update(kind, chain, vertices, n_vertices):
     rng[2] = s2
     rng[3] = s3
     return n_loops
+
+
+@njit(inline="always")
+def apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
+    """The operator word with the pending loop flips of bond vertices v .. v+k-1 xored in (and cleared)."""
+    for a in range(k):  # branch-free: a loop flips a vertex with probability 1/2
+        op ^= np.int32(vflip[U(v + a)]) << a
+        vflip[U(v + a)] = 0
+    return op
+
+
+@njit(inline="always")
+def hop(kind, spins, phase, above, p, a, i, j):
+    """Flip the antiparallel pair (i, j); returns (2 S^z_i before the flip, change of ms = 2 M_s)."""
+    si = spins[U(i)]
+    d_ms = -(2 * phase[U(i)] * si + 2 * phase[U(j)] * spins[U(j)])
+    spins[U(i)] = -si
+    spins[U(j)] = -spins[U(j)]
+    return si, d_ms
+
+
+@njit(inline="always")
+def site_value(kind, spins, i):
+    """2 S^z_i."""
+    return spins[i]
+
+
+@njit(inline="always")
+def bond_value(kind, spins, i, j):
+    """4 S^z_i S^z_j."""
+    return spins[i] * spins[j]

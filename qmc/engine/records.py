@@ -6,9 +6,11 @@ compile), the kernels take a few records and read every array by field name.  Bu
 wrong array is refused where the record is made, not silently used.
 
 ==============  =============================================================================================
-``Chain``       the Markov chain itself: ``spins`` int8[N] (+-1, the state at slice 0), ``ops`` int32[M]
-                (operator string, see :mod:`qmc.engine.vertices`), ``counters`` int64[1] (n), ``rng``
-                uint64[4] (xoshiro256** words)
+``Chain``       the Markov chain itself: ``spins`` int8[N] (the state at slice 0: +-1 spins, or colours
+                0..N-1 of the colour kind), ``ops`` int32[M] (operator string, see
+                :mod:`qmc.engine.vertices`), ``counters`` int64[1] (n), ``rng`` uint64[4] (xoshiro256**
+                words), ``above`` int32[M] (colour kind: the colours above the bonds of slot p, 8 bits per
+                bond; int32[0] for kinds without per-slot colours)
 ``Vertices``    the linked vertex list rebuilt by every sweep: ``links`` int32[4 M k_max], ``vflip``
                 uint8[M k_max] (loop flips not yet applied to ``ops``), ``first``/``last`` int32[N]
                 (first and last leg of each site's world line)
@@ -42,6 +44,7 @@ class Chain(NamedTuple):
     ops: np.ndarray
     counters: np.ndarray
     rng: np.ndarray
+    above: np.ndarray
 
 
 class Vertices(NamedTuple):
@@ -80,7 +83,8 @@ class Tallies(NamedTuple):
 
 _I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uint64, np.float64
 _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndim 0 is a Python float
-    Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1)},
+    Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1),
+            "above": (_I32, 1)},
     Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1)},
     Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "beta": (float, 0),
             "beta_wtot": (float, 0)},

@@ -96,7 +96,7 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
             for d in range(n_dirs):
                 w = sweep_out[SW_WINDING + d]
                 acc[A_W2 + d] += w * w
-            equal_time(spins, probes, tallies)
+            equal_time(kind, spins, probes, tallies)
             acc[A_MZ2] += et_out[ET_MZ2]
             acc[A_SQN] += et_out[ET_SQN]
             dx2 = et_out[ET_DX] * et_out[ET_DX]

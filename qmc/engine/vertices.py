@@ -17,7 +17,8 @@ operator of a k-bond term at slice p owns k consecutive bond vertices.  Bond ver
 above or the previous below, periodically in imaginary time).  The deterministic loop for singlet
 projectors enters a vertex at leg l and leaves at leg ``l ^ 1`` (same time side, other site), so a loop
 passing through a vertex toggles it between diagonal and off-diagonal; ``vflip[v]`` records the toggles,
-which the next diagonal sweep applies to ``ops`` (:func:`apply_pending_flips` does it explicitly).
+which the next diagonal sweep applies to ``ops`` (:func:`qmc.engine.diagonal.fold_pending` does it
+explicitly, for every vertex kind).
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["apply_pending_flips", "count_ops", "term_table", "TT_META", "TT_BOND", "TT_BOND_WIDTH",
+__all__ = ["count_ops", "term_table", "TT_META", "TT_BOND", "TT_BOND_WIDTH",
            "MAX_KINDS", "meta_bonds", "meta_kind", "meta_group", "OP_TERM_SHIFT", "OP_OFF_MASK", "EMPTY"]
 
 EMPTY = -1
@@ -98,25 +99,6 @@ def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.nd
         table[rows, col + 1] = sites[b, 1]
         table[rows, col + 2] = b
     return table
-
-
-@njit(cache=True)
-def apply_pending_flips(ops, vflip, term_start):
-    """Toggle the bonds recorded in ``vflip`` into ``ops`` and clear ``vflip`` (same order as the sweep)."""
-    v = 0
-    for p in range(ops.shape[0]):
-        op = ops[p]
-        if op < 0:
-            continue
-        t = op >> OP_TERM_SHIFT
-        k = term_start[t + 1] - term_start[t]
-        for a in range(k):
-            if vflip[v + a] != 0:
-                op ^= 1 << a
-                vflip[v + a] = 0
-        ops[p] = op
-        v += k
-    return v
 
 
 @njit(cache=True)

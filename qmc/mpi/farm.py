@@ -31,13 +31,19 @@ from qmc.run.plan import RunPlan
 from qmc.run.progress import NullProgress
 from qmc.storage.formats import quiet_old_format_notes
 
-__all__ = ["run_farm", "run_worker"]
+__all__ = ["progress_seconds", "run_farm", "run_worker"]
 
 
 def _abort(world: MpiWorld, exc: BaseException) -> None:
     print(f"error: rank {world.rank}: {type(exc).__name__}: {exc}; aborting all ranks", file=sys.stderr,
           flush=True)
     world.comm.Abort(1)
+
+
+def progress_seconds(ranks: int) -> float:
+    """How often a worker reports a running unit's progress: every 2 s, and every ranks/200 s beyond 400
+    ranks, so that rank 0 receives at most about 200 reports a second (about 2% of its time)."""
+    return max(2.0, ranks / 200.0)
 
 
 def run_farm(world: MpiWorld, plan: RunPlan, *, stop_flag: StopFlag | None = None, progress: Any = None,
@@ -53,7 +59,7 @@ def run_farm(world: MpiWorld, plan: RunPlan, *, stop_flag: StopFlag | None = Non
     prog = progress if progress is not None else NullProgress()
     try:
         Channel(world.comm).announce(Setup(True, str(plan.run_dir), plan.config.text,
-                                           plan.config.fingerprint(), deadline))
+                                           plan.config.fingerprint(), deadline, progress_seconds(world.size)))
         coord = Coordinator(world, plan, stop_flag, prog, log, deadline)
         report = coord.run()
         run_farm.stats = coord.stats  # type: ignore[attr-defined]

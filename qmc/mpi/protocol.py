@@ -11,13 +11,20 @@ kind           direction, tag          meaning
                                        that the run will not start
 REQUEST        worker -> 0, TO_RANK0   :class:`Request`: give me a unit (``prefetch``: while I run one)
 DONE           worker -> 0, TO_RANK0   :class:`Done`: outcomes of a unit, and the worker's log lines
-UNSTARTED      worker -> 0, TO_RANK0   :class:`Unstarted`: a unit handed back unstarted (stopping)
+UNSTARTED      worker -> 0, TO_RANK0   :class:`Unstarted`: a prefetched unit handed back unstarted
+                                       (taken back, or the run stops)
+PROGRESS       worker -> 0, TO_RANK0   :class:`Progress`: a unit's steps and bins (per task); the first
+                                       one of a unit says it has started
 UNIT           0 -> worker, WORK       :class:`Assign`: run this unit
 TEAM           0 -> worker, WORK       :class:`JoinTeam`: run your block of this ladder with these ranks
 NO_UNIT        0 -> worker, WORK       :class:`NoUnit`: no unit for a prefetch request
 FINISH         0 -> worker, WORK       :class:`Finish`: no more work, exit
-STOP           0 -> worker, STOP       :class:`Stop`: checkpoint the running unit and stop
+STOP           0 -> worker, CONTROL    :class:`Stop`: checkpoint the running unit and stop
+TAKE_BACK      0 -> worker, CONTROL    :class:`TakeBack`: hand back this prefetched unit if not started
 =============  ======================  ===========================================================
+
+A worker reads CONTROL messages between two chunks of its running unit and before it starts a prefetched
+one; WORK messages only when it has no unit to run.
 
 On the wire a message is a tuple ``(kind, *fields)`` with plain values (outcomes as dicts, tasks as
 pickled :class:`~qmc.config.parser.Task` objects), made by :func:`encode` and read by :func:`decode`; an
@@ -39,7 +46,8 @@ from qmc.config.parser import Task
 from qmc.run.outcome import TaskOutcome
 
 __all__ = [
-    "Kind", "Tag", "Setup", "Request", "Done", "Unstarted", "Assign", "JoinTeam", "NoUnit", "Finish", "Stop",
+    "Kind", "Tag", "Setup", "Request", "Done", "Unstarted", "Progress", "Assign", "JoinTeam", "NoUnit",
+    "Finish", "Stop", "TakeBack",
     "Message", "ProtocolError", "encode", "decode", "tag_of", "Channel", "POLL_MIN", "POLL_MAX", "poll_sleep",
 ]
 
@@ -63,13 +71,15 @@ class Kind(IntEnum):
     NO_UNIT = 6
     FINISH = 7
     STOP = 8
+    PROGRESS = 9
+    TAKE_BACK = 10
 
 
 class Tag(IntEnum):
     """MPI tags: one per direction and purpose, so that a poll looks only at what it waits for."""
 
     WORK = 11
-    STOP = 12
+    CONTROL = 12
     TO_RANK0 = 13
 
 
@@ -79,13 +89,15 @@ class ProtocolError(RuntimeError):
 
 @dataclass(frozen=True)
 class Setup:
-    """Broadcast by rank 0 before any work; ``ok`` False when the run will not start (rank 0 says why)."""
+    """Broadcast by rank 0 before any work; ``ok`` False when the run will not start (rank 0 says why);
+    a worker reports a running unit's progress at most every ``progress_seconds``."""
 
     ok: bool
     run_dir: str = ""
     config_text: str = ""
     fingerprint: str = ""
     deadline: float | None = None
+    progress_seconds: float = 2.0
 
 
 @dataclass(frozen=True)
@@ -102,6 +114,18 @@ class Done:
 
 @dataclass(frozen=True)
 class Unstarted:
+    unit: int
+
+
+@dataclass(frozen=True)
+class Progress:
+    unit: int
+    steps_done: int
+    bins_done: int
+
+
+@dataclass(frozen=True)
+class TakeBack:
     unit: int
 
 
@@ -133,15 +157,16 @@ class Stop:
     reason: str
 
 
-Message = Request | Done | Unstarted | Assign | JoinTeam | NoUnit | Finish | Stop
+Message = Request | Done | Unstarted | Progress | Assign | JoinTeam | NoUnit | Finish | Stop | TakeBack
 
 _KIND: dict[type, Kind] = {Request: Kind.REQUEST, Done: Kind.DONE, Unstarted: Kind.UNSTARTED,
-                           Assign: Kind.UNIT, JoinTeam: Kind.TEAM, NoUnit: Kind.NO_UNIT, Finish: Kind.FINISH,
-                           Stop: Kind.STOP}
+                           Progress: Kind.PROGRESS, Assign: Kind.UNIT, JoinTeam: Kind.TEAM,
+                           NoUnit: Kind.NO_UNIT, Finish: Kind.FINISH, Stop: Kind.STOP,
+                           TakeBack: Kind.TAKE_BACK}
 _CLASS = {k: c for c, k in _KIND.items()}
 _TAG = {Kind.REQUEST: Tag.TO_RANK0, Kind.DONE: Tag.TO_RANK0, Kind.UNSTARTED: Tag.TO_RANK0,
-        Kind.UNIT: Tag.WORK, Kind.TEAM: Tag.WORK, Kind.NO_UNIT: Tag.WORK, Kind.FINISH: Tag.WORK,
-        Kind.STOP: Tag.STOP}
+        Kind.PROGRESS: Tag.TO_RANK0, Kind.UNIT: Tag.WORK, Kind.TEAM: Tag.WORK, Kind.NO_UNIT: Tag.WORK,
+        Kind.FINISH: Tag.WORK, Kind.STOP: Tag.CONTROL, Kind.TAKE_BACK: Tag.CONTROL}
 
 
 def encode(msg: Message) -> tuple:

@@ -3,10 +3,14 @@
 A worker asks for work (:class:`~qmc.mpi.protocol.Request`), runs the unit it gets (a single task, or its
 block of a ladder with the team named in :class:`~qmc.mpi.protocol.JoinTeam`), and reports the outcomes
 with the log lines it buffered meanwhile (:class:`~qmc.mpi.protocol.Done`; rank 0 writes them to
-``run.log``).  Having started a single task it asks at once for the next one (``prefetch``); the answer
-waits in its queue while the task runs.  Between chunks it looks for rank 0's
-:class:`~qmc.mpi.protocol.Stop`; a prefetched unit not yet started when stopping is handed back
-(:class:`~qmc.mpi.protocol.Unstarted`).  Each task file is written only by the rank that runs the task.
+``run.log``).  When a unit has started it says so and then reports the unit's steps and bins every few
+seconds (:class:`~qmc.mpi.protocol.Progress`; for a ladder only the team's member 0); having started a
+single task it asks at once for the next one (``prefetch``), and the answer waits in its queue while the
+task runs.  Between chunks, and before it starts a prefetched unit, it reads rank 0's control messages:
+:class:`~qmc.mpi.protocol.Stop`, and :class:`~qmc.mpi.protocol.TakeBack` of the prefetched unit, which
+it hands back (:class:`~qmc.mpi.protocol.Unstarted`) unless it has started it; a prefetched unit not yet
+started when stopping is handed back too.  Each task file is written only by the rank that runs the
+task.
 """
 
 from __future__ import annotations
@@ -24,13 +28,16 @@ from qmc.mpi.protocol import (
     Finish,
     JoinTeam,
     Message,
+    Progress,
     Request,
     Setup,
     Tag,
+    TakeBack,
     Unstarted,
     poll_sleep,
 )
 from qmc.run.outcome import StopFlag
+from qmc.run.task_identity import steps_total
 from qmc.run.units import run_unit
 
 __all__ = ["LogBuffer", "Worker"]
@@ -56,16 +63,33 @@ class LogBuffer(logging.Handler):
 
 
 class _WorkerSink:
-    """Progress sink of a worker: between chunks, looks for rank 0's stop message."""
+    """Progress sink of a worker's unit: reports its start (and then asks for the next unit, if
+    ``prefetch``) and its progress at most every ``every`` seconds (if ``report``: a single task, or member
+    0 of a ladder's team), and reads rank 0's control messages between chunks."""
 
-    def __init__(self, worker: Worker) -> None:
-        self.worker = worker
+    def __init__(self, worker: Worker, unit: int, tasks: list[Any], report: bool, prefetch: bool,
+                 every: float) -> None:
+        self.worker, self.unit, self.first = worker, unit, tasks[0]
+        self.report, self.prefetch, self.every = report, prefetch, every
+        self.per_task = 1
+        self.last = 0.0
 
-    def task_started(self, *args: Any) -> None:
-        pass
+    def _send(self, steps_done: int, bins_done: int) -> None:
+        self.worker.channel.send(Progress(self.unit, steps_done // self.per_task, bins_done), 0)
+        self.last = time.monotonic()
+
+    def task_started(self, task_id: str, steps_done: int, steps_total_: int, bins_total: int) -> None:
+        self.per_task = max(1, steps_total_ // max(steps_total(self.first), 1))  # chains run here
+        if self.report:
+            self._send(steps_done, -1)
+        if self.prefetch:  # the answer waits in the queue while this unit runs
+            self.worker.channel.send(Request(prefetch=True), 0)
+            self.worker.asked = True
 
     def task_advanced(self, steps_done: int, bins_done: int) -> None:
-        self.worker.check_stop()
+        self.worker.check_control()
+        if self.report and time.monotonic() - self.last >= self.every:
+            self._send(steps_done, bins_done)
 
     def task_finished(self, status: str) -> None:
         pass
@@ -82,30 +106,41 @@ class Worker:
         self.log.setLevel(logging.INFO)
         self.log.propagate = False
         self.log.addHandler(self.buffer)
+        self.started: set[int] = set()  # units this worker has started
+        self.dropped: set[int] = set()  # prefetched units handed back before they started
+        self.asked = False  # a prefetch request of the running unit awaits its answer
 
-    def check_stop(self) -> None:
-        """Set the stop flag if rank 0 has sent a stop."""
-        if self.channel.waiting(0, Tag.STOP):
-            msg = self.channel.receive(0, Tag.STOP)
-            if self.flag is not None:
+    def check_control(self) -> None:
+        """Read rank 0's control messages: a stop sets the stop flag; a prefetched unit not started yet is
+        handed back when taken back (a unit already started is not)."""
+        while self.channel.waiting(0, Tag.CONTROL):
+            msg = self.channel.receive(0, Tag.CONTROL)
+            if isinstance(msg, TakeBack):
+                if msg.unit not in self.started and msg.unit not in self.dropped:
+                    self.dropped.add(msg.unit)
+                    self.channel.send(Unstarted(msg.unit), 0)
+            elif self.flag is not None:
                 self.flag.set(f"{getattr(msg, 'reason', 'stop')} (stop sent by rank 0)")
 
     def _next_message(self) -> Message:
-        """The next answer of rank 0 (polling, and looking for a stop meanwhile)."""
+        """The next answer of rank 0 (polling, and reading control messages meanwhile)."""
         wait = POLL_MIN
         while not self.channel.waiting(0, Tag.WORK):
-            self.check_stop()
+            self.check_control()
             wait = poll_sleep(wait)
         return self.channel.receive(0, Tag.WORK)
 
     def _stopped(self) -> bool:
-        self.check_stop()
+        self.check_control()
         return self.flag is not None and self.flag.is_set()
 
     def _run(self, msg: Assign | JoinTeam, setup: Setup) -> None:
-        kwargs = dict(stop_flag=self.flag, progress=_WorkerSink(self), logger=self.log,
-                      deadline=setup.deadline, config_text=setup.config_text,
-                      config_fingerprint=setup.fingerprint)
+        self.started.add(msg.unit)
+        team_msg = isinstance(msg, JoinTeam)
+        report = not team_msg or min(msg.ranks) == self.world.rank
+        sink = _WorkerSink(self, msg.unit, msg.tasks, report, not team_msg, setup.progress_seconds)
+        kwargs = dict(stop_flag=self.flag, progress=sink, logger=self.log, deadline=setup.deadline,
+                      config_text=setup.config_text, config_fingerprint=setup.fingerprint)
         if isinstance(msg, JoinTeam):  # a block of an exchange ladder, side by side with the other ranks
             team = form_team(self.world.comm, msg.ranks, tag=msg.unit)
             try:
@@ -133,12 +168,14 @@ class Worker:
                 continue
             if not isinstance(msg, Assign):
                 raise RuntimeError(f"rank 0 answered a request with {msg!r}")
-            if self._stopped():
-                self.channel.send(Unstarted(msg.unit), 0)
+            if self._stopped() or msg.unit in self.dropped:  # (a unit taken back is not handed back twice)
+                if msg.unit not in self.dropped:
+                    self.channel.send(Unstarted(msg.unit), 0)
                 continue
-            self.channel.send(Request(prefetch=True), 0)  # the answer waits in the queue while this unit runs
+            self.asked = False
             self._run(msg, setup)
-            answer = self._next_message()
-            if isinstance(answer, Assign):
-                reserve = answer
+            if self.asked:
+                answer = self._next_message()
+                if isinstance(answer, Assign):
+                    reserve = answer
         self.channel.flush()

@@ -9,6 +9,7 @@
 - :mod:`qmc.run.single`        a single task (``run_task``)
 - :mod:`qmc.run.ladder_run`    an exchange ladder (``run_group``): adds resuming together and meetings
 - :mod:`qmc.run.serial`        the serial runner behind ``qmc run``
+- :mod:`qmc.run.sharing`       a run directory shared with other processes: claims, index entries kept here
 - :mod:`qmc.run.outcome`       outcomes, the stop flag, index entries of outcomes
 - :mod:`qmc.run.pacing`        chunk lengths and write intervals
 - :mod:`qmc.run.progress`      the progress display

@@ -47,6 +47,7 @@ from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
 from qmc.run.task_identity import finished
 from qmc.run.task_run import Decision, RunContext, TaskRun, run_guarded
+from qmc.storage.faults import WriteFault
 from qmc.storage.task_file import TaskData
 
 __all__ = ["LadderRun", "run_group"]
@@ -194,7 +195,8 @@ class LadderRun(TaskRun):
         assert lad is not None
         target = lad.next_stop()
         ahead = pacer.step_seconds * (target - lad.steps_done + lad.every)  # this interval and the next
-        lad.vote = Vote(self.local_stop(ahead), self.write_error, self.write_is_due())
+        stop = self.local_stop(ahead) or (str(self.fault) if self.fault is not None else "")
+        lad.vote = Vote(stop, self.write_error, self.write_is_due() and self.fault is None)
         return min(pacer.chunk, target - lad.steps_done)
 
     def _advance(self, n: int) -> list[Sequence[np.ndarray]]:
@@ -221,9 +223,14 @@ class LadderRun(TaskRun):
 
     def _write_running(self) -> None:
         """A failed intermediate write on one member of a team is voted at the next meeting, where every
-        member stops."""
+        member stops: a write fault as a stop (every member writes its checkpoint; this one tries again
+        and reports the fault), any other error as an error."""
         try:
             self._write("running")
+        except WriteFault as exc:
+            if self.team.size == 1:
+                raise
+            self.fault = exc
         except Exception as exc:
             if self.team.size == 1:
                 raise

@@ -20,8 +20,11 @@ from qmc.config.parser import RunConfig, Task, config_fingerprint, validate
 from qmc.errors import UserError, did_you_mean
 from qmc.exchange.ladder import check_ladders
 from qmc.run.changes import survey
+from qmc.run.outcome import WHERE_KEYS
 from qmc.run.task_identity import steps_total
-from qmc.storage.atomic import atomic_write_text
+from qmc.storage.atomic import atomic_write_text, remove_leftovers
+from qmc.storage.claims import ClaimBook
+from qmc.storage.faults import write_fault
 from qmc.storage.run_index import new_index, write_index
 
 __all__ = ["RunPlan", "prepare_run"]
@@ -98,6 +101,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
     physics, task files of another chain, warm-up or bin length; without ``force``), a foreign or damaged
     ``index.json`` (without ``force``) or task file.  With ``force`` the old index, a
     differing ``config.toml`` and the task files of changed tasks are renamed to ``<name>.<time>.old``.
+    Raises :class:`~qmc.storage.faults.WriteFault` when the machine refuses to write in the run directory.
     """
     where = "--out" if out is not None else config.where("run.output")
     run_dir = Path(os.path.abspath(out if out is not None else config.output_dir))
@@ -130,8 +134,8 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
     try:
         moved = [(str(p), str(_aside(p, stamp)), why) for p, why in aside + found.aside]
         (run_dir / "tasks").mkdir(parents=True, exist_ok=True)
-        for tmp in (run_dir / "tasks").glob("*.h5.tmp"):
-            tmp.unlink()  # a write interrupted by a kill; the previous complete file is in place
+        for folder in (run_dir, run_dir / "tasks"):  # writes interrupted by a kill: the previous complete
+            remove_leftovers(folder)                 # files are in place
         if not same_file:
             atomic_write_text(copy, config.text)
         index = found.index
@@ -140,6 +144,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
                               [_entry(t) for t in config.tasks()])
         index.update(fingerprint=fp, physics=config.physics_fingerprint(),
                      config_source=os.path.abspath(config.path), name=config.name)
+        live = ClaimBook(run_dir).live()  # tasks other processes run now: their entries stay theirs
         for task in config.tasks():
             entry = index["tasks"].setdefault(task.task_id, new_index(fp, "", "", [_entry(task)])["tasks"][
                 task.task_id])
@@ -153,11 +158,13 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
                              steps_done=int(head.get("checkpoint_steps_done", 0)))
             else:
                 entry.update(status="pending", message="", bins_done=0, steps_done=0)
+            for k in WHERE_KEYS:
+                entry.pop(k, None)
         for tid in found.others:
             index["tasks"][tid]["note"] = "not in the current configuration (its file is kept)"
-        write_index(run_dir, index)
-    except OSError as exc:
-        raise UserError(f"cannot write in the run directory ({exc.strerror or exc})", str(run_dir)) from None
+        write_index(run_dir, index, mine=[tid for tid in index["tasks"] if tid not in live])
+    except OSError as exc:  # the machine refuses (a WriteFault of the atomic writes passes as it is)
+        raise write_fault(run_dir, exc) from None
 
     order = {t.task_id: i for i, t in enumerate(config.tasks())}
     todo = [t for t in selected if index["tasks"][t.task_id]["status"] != "done"]

@@ -1,8 +1,9 @@
 """The state of a run directory at a glance (``qmc status``): :func:`run_status`.
 
 Read are the run index and every task file's header (root attributes, checkpoint counters, sessions; never
-the bins), so it is cheap also for a run in progress.  Per task: its state (``pending``, ``running``,
-``stopped``, ``done``, ``failed``), steps and bins done of those asked for, the time of its last checkpoint,
+the bins), so it is cheap also for a run in progress.  Per task: its state (``pending``, ``queued`` on a
+busy MPI rank, ``running`` -- with the counters its process keeps current in the index --, ``stopped``,
+``done``, ``failed``), steps and bins done of those asked for, the time of its last checkpoint,
 a failure's message, and the seconds per Monte Carlo step measured in its sessions (wall time of each
 session over the steps it made).
 
@@ -140,6 +141,11 @@ def run_status(run_dir: str | Path, *, now: float | None = None) -> RunStatus:
                 st.message = st.message or str(head.get("message", ""))
             if st.state == "running" and st.checkpoint_time is not None:
                 st.stale = now - st.checkpoint_time > (interval or 300.0) + STALE_SECONDS
+        if entry.get("status") in ("queued", "running") and st.state not in ("done", "failed"):
+            # what the running process says: queued on a busy MPI rank, or the counters between checkpoints
+            st.state = str(entry["status"])
+            st.steps_done = max(st.steps_done, int(entry.get("steps_done", 0)))
+            st.bins_done = max(st.bins_done, int(entry.get("bins_done", 0)))
         out.tasks.append(st)
     _estimate(out, weights)
     return out

@@ -24,6 +24,7 @@ from qmc.errors import UserError
 from qmc.models.compiled import CompiledModel
 from qmc.run.outcome import TaskOutcome
 from qmc.run.task_identity import LENGTH, SAME, mismatch_text, steps_total, stored_relation, task_fingerprint
+from qmc.storage.faults import write_fault
 from qmc.storage.provenance import now_iso, session_entry, task_provenance
 from qmc.storage.task_file import TaskData, TaskRecord, read_task, task_path, write_task
 
@@ -143,8 +144,15 @@ class TaskBook:
         )
 
     def write(self, record: TaskRecord) -> None:
-        """Replace the task file by ``record`` (atomically)."""
-        self.path.parent.mkdir(parents=True, exist_ok=True)
+        """Replace the task file by ``record`` (atomically); WriteFault when the machine refuses.
+
+        The ``tasks`` folder (and the run directory) is created by the first write of this process only:
+        a directory that vanishes during the run is a fault, not silently made anew."""
+        if self.last is None:
+            try:
+                self.path.parent.mkdir(parents=True, exist_ok=True)
+            except OSError as exc:
+                raise write_fault(self.path, exc) from None
         write_task(self.path, record)
         self.last = record
         self.bins_done = int(record.checkpoint_attrs["bins_done"])
@@ -163,8 +171,8 @@ class TaskBook:
         except Exception as exc:  # the previous file stays; the failure is in the log and the outcome
             log.error("task %s: could not record the failure in %s: %s", self.task.task_id, self.path, exc)
 
-    def outcome(self, status: str, message: str, seconds: float) -> TaskOutcome:
+    def outcome(self, status: str, message: str, seconds: float, fault: bool = False) -> TaskOutcome:
         """The outcome of this task, with the counters of its file."""
         t = self.task
         return TaskOutcome(t.task_id, status, message, self.bins_done, t.sampling.bins, self.steps_done,
-                           steps_total(t), seconds, str(self.path))
+                           steps_total(t), seconds, str(self.path), fault)

@@ -45,6 +45,8 @@ def task_fingerprint(task: Task) -> str:
                "measure_steps": s.measure_steps, "bins": s.bins}
     if task.exchange is not None:  # only then: fingerprints of plain tasks stay what they were
         content["exchange"] = [task.exchange, task.exchange_group, s.exchange_every]
+    if task.colors != 2:  # likewise: S = 1/2 tasks keep their fingerprints
+        content["colors"] = task.colors
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
 

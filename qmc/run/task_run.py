@@ -42,6 +42,7 @@ from qmc.run.pacing import Pacer, write_due
 from qmc.run.progress import NullProgress, ProgressSink
 from qmc.run.task_book import ConfigSource, TaskBook, config_source
 from qmc.run.task_identity import steps_total
+from qmc.storage.faults import WriteFault
 
 __all__ = ["RunContext", "Decision", "TaskRun", "run_guarded"]
 
@@ -101,6 +102,7 @@ class TaskRun:
         self.write_seconds = 0.0
         self.last_write = time.monotonic()
         self.pending = False  # completed bins not yet written
+        self.fault: WriteFault | None = None  # a write fault this run carried on after (a ladder member)
         self._source: ConfigSource | None = None
 
     # ------------------------------------------------------------------------------------------ hooks
@@ -207,7 +209,7 @@ class TaskRun:
                 f"({self._chains()[0].bins_done} of {bins_total} bins)")
         ctx.sink.task_started(first.task.task_id, m * self.steps_done, m * self.total_steps, bins_total)
         if self.fresh:  # the files exist from the first step on
-            self._write("running")
+            self._write_running()
         self.last_write = time.monotonic()
         self.pending = False
         pacer = Pacer()
@@ -243,20 +245,29 @@ def run_guarded(label: str, make: Callable[[], TaskRun], tasks_here: Callable[[]
 
     Returns one outcome per task run here (``tasks_here()`` names them when ``make`` itself fails, e.g. a
     model that cannot be built).  A failure is logged with its traceback as ``"<label> failed: ..."`` and
-    recorded in the outcomes and in the files written in this call."""
+    recorded in the outcomes and in the files written in this call.  A write fault
+    (:class:`~qmc.storage.faults.WriteFault`) is no failure of the task: status ``stopped`` with the fault
+    marked in the outcomes, one log line, nothing more written."""
     t_call = time.time()
     run: TaskRun | None = None
+    fault: WriteFault | None = None
     try:
         run = make()
         status = run.execute()
         message = run.stop_reason if status == "stopped" else ""
+        fault = run.fault
+    except WriteFault as exc:  # the machine, not the task: the last complete checkpoint stays
+        fault, status = exc, "stopped"
     except Exception as exc:  # recorded, not hidden: message in the outcomes, traceback in the log
         message = failure_message(exc)
         ctx.log.error("%s failed: %s\n%s", label, message, traceback.format_exc().rstrip())
         if run is not None:
             run.record_failure(message)
         status = "failed"
+    if fault is not None:
+        message = str(fault)
+        ctx.log.error("%s: %s; stopped, the last complete checkpoint is intact", label, message)
     ctx.sink.task_finished(status)
     books = run.books if run is not None else [TaskBook(t, ctx.run_dir) for t in tasks_here()]
     seconds = (time.time() - t_call) / len(books)
-    return [book.outcome(status, message, seconds) for book in books]
+    return [book.outcome(status, message, seconds, fault is not None) for book in books]

@@ -19,9 +19,11 @@ have the same layout and are read too, see :mod:`qmc.storage.formats`)::
     /exchange         optional, written by replica exchange (:mod:`qmc.exchange.records`): attrs for scalars
                       and short lists, datasets for numpy arrays, subgroups for nested mappings
 
-Crash safety: :func:`write_task` replaces the whole file atomically (:mod:`qmc.storage.atomic`), so a kill
-at any moment leaves the previous complete file.  A file that is not a task file of the same task is never
-overwritten.
+Crash safety: :func:`write_task` builds the new file in memory and replaces the whole file atomically
+(:mod:`qmc.storage.atomic`), so a kill at any moment leaves the previous complete file, and a full disk or
+another fault of the machine is one :class:`~qmc.storage.faults.WriteFault` (the HDF5 library itself never
+writes to the disk, so it is never left with a half-written file).  A file that is not a task file of the
+same task is never overwritten.
 """
 
 from __future__ import annotations
@@ -36,7 +38,7 @@ from typing import Any
 import numpy as np
 
 from qmc.errors import UserError
-from qmc.storage.atomic import replacing
+from qmc.storage.atomic import atomic_write_bytes
 from qmc.storage.formats import TASK_FORMAT, TASK_VERSION, known_format, note_old_format, short_reason
 from qmc.storage.hdf5_values import attribute, fill_mapping, plain, read_mapping, storable
 from qmc.storage.provenance import now_iso
@@ -123,7 +125,11 @@ def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
 
 
 def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
-    """Write the whole task file atomically; refuses to replace a file that is not this task's file."""
+    """Write the whole task file atomically; refuses to replace a file that is not this task's file.
+
+    The file is built in memory (HDF5 core driver without backing store) and its bytes are written with
+    plain system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
+    :class:`~qmc.storage.faults.WriteFault`, the previous file stays, no temporary file is left."""
     import h5py
 
     path = Path(path)
@@ -132,9 +138,11 @@ def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
         if head["task_id"] != record.task_id:
             raise UserError(f"holds task {head['task_id']!r}, not {record.task_id!r}; not overwriting it",
                             str(path))
-    with replacing(path) as tmp, h5py.File(tmp, "w") as f:
+    with h5py.File(f"{record.task_id}.h5", "w", driver="core", backing_store=False) as f:
         _fill(f, record)
         f.flush()
+        image = f.id.get_file_image()
+    atomic_write_bytes(path, image)
 
 
 def _fill(f: Any, rec: TaskRecord) -> None:

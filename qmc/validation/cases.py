@@ -11,6 +11,8 @@ results into :class:`~qmc.validation.checks.Check` rows.  Case families (builder
   finite-size extrapolation against Sandvik (1997) and Sandvik and Evertz (2010).
 * :func:`bilayer_critical_case` -- the bilayer's critical J_inter/J_intra bracketed by the crossings of the
   Binder ratio and of rho_s L, against Wang, Beach and Sandvik (2006).
+* :func:`qmc.validation.colour_cases.sun_order_case` -- the SU(N) Heisenberg model: Neel order for N = 4,
+  valence-bond order for N = 5 (Harada, Kawashima and Troyer 2003; Beach, Alet, Mambrini and Capponi 2009).
 
 :func:`build_cases` assembles the ``quick`` and ``thorough`` suites.  Statistical errors: binning analysis
 of the bins (:func:`qmc.analysis.error_estimate`), jackknife with binning for ratios
@@ -21,22 +23,26 @@ of the bins (:func:`qmc.analysis.error_estimate`), jackknife with binning for ra
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
-from qmc.analysis import derived_estimates, error_estimate, find_crossing
+from qmc.analysis import derived_estimates, find_crossing
 from qmc.analysis.powerfit import drop_smallest_shift, fit_powers
 from qmc.analysis.size_extrapolation import default_powers, full_vector_magnetisation
 from qmc.errors import UserError
 from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
+from .case_base import Case
+from .case_base import mean_error as _mean_error
+from .case_base import merged as _merged
+from .case_base import simulations as _sims
 from .checks import Check
+from .colour_cases import sun_order_case
 from .exact.bethe import chain_ground_state_energy
 from .exact.clusters import cluster_observables
-from .jobs import ExactJob, Job, ModelSpec, SimJob, SimResult
+from .jobs import ExactJob, ModelSpec, SimJob
 from .references import (
     BETHE_SOURCE,
     BILAYER_CRITICAL_COUPLING,
@@ -44,7 +50,6 @@ from .references import (
     CHAIN_GROUND_STATE_ENERGY,
     SQUARE_GROUND_STATE_ENERGY,
     SQUARE_STAGGERED_MAGNETIZATION,
-    Reference,
     computed,
 )
 
@@ -61,53 +66,6 @@ __all__ = [
 
 MODES = ("quick", "thorough")
 CLUSTER_OBSERVABLES = ("energy", "specific_heat", "chi_uniform", "m_stag2", "stiffness")
-
-
-@dataclass(frozen=True)
-class Case:
-    """A named check: ``evaluate(results)`` gets ``{job.key: result}`` for its ``jobs``.
-
-    ``reference`` is used for the failure row when the case cannot be evaluated."""
-
-    name: str
-    jobs: tuple[Job, ...]
-    evaluate: Callable[[Mapping[str, Any]], list[Check]]
-    reference: Reference
-
-
-def _steps(measure: int, bins: int) -> int:
-    """Round ``measure`` up to a multiple of ``bins``."""
-    return bins * max(1, math.ceil(measure / bins))
-
-
-def _sims(key: str, spec: ModelSpec, beta: float, warmup: int, measure: int, bins: int, n_sites: int,
-          density: float, max_seconds: float | None) -> tuple[SimJob, ...]:
-    """One simulation, or independent replicas (keys ``key/r=i``) of it when its estimated cost exceeds
-    ``max_seconds``: each replica runs its own warm-up and ~1/k of the measurement with the same steps
-    per bin, so their bins can be concatenated (:func:`_merged`)."""
-    one = SimJob(key, spec, float(beta), int(warmup), _steps(measure, bins), int(bins), n_sites, density)
-    k = 1 if not max_seconds else max(1, math.ceil(one.cost / max_seconds))
-    if k == 1:
-        return (one,)
-    per_bin = one.measure // one.bins
-    bins_r = math.ceil(one.bins / k)
-    return tuple(SimJob(f"{key}/r={i}", spec, float(beta), int(warmup), per_bin * bins_r, bins_r, n_sites,
-                        density) for i in range(k))
-
-
-def _merged(results: Mapping[str, Any], jobs: Sequence[SimJob]) -> SimResult:
-    """The bins of the replicas ``jobs``, concatenated (equal steps per bin: common practice, no source)."""
-    parts: list[SimResult] = [results[j.key] for j in jobs]
-    if len(parts) == 1:
-        return parts[0]
-    bins = {name: np.concatenate([p.bins[name] for p in parts]) for name in parts[0].bins}
-    first = parts[0]
-    return SimResult(bins, first.n_sites, first.linear_size, first.beta, sum(p.seconds for p in parts))
-
-
-def _mean_error(series: np.ndarray) -> tuple[float, float]:
-    est = error_estimate(series)
-    return est.mean, est.error
 
 
 # ------------------------------------------------------------------------------------------ ED clusters
@@ -362,5 +320,6 @@ def build_cases(mode: str) -> list[Case]:
                                        measure_for={8: 400_000, 10: 300_000, 12: 200_000}, max_seconds=long),
             bilayer_critical_case((8, 16, 32), [2.44 + 0.02 * k for k in range(8)], measure=40_000,
                                   max_seconds=long),
+            *(sun_order_case(N, (8, 12, 16, 24, 32), measure=100_000, max_seconds=long) for N in (4, 5)),
         ]
     raise UserError(f"unknown mode {mode!r}; choose one of {', '.join(MODES)}", "qmc validate")

@@ -8,7 +8,11 @@ crossing bracket, residual temperature) and the reference's own uncertainty:
     sys = sqrt(systematic^2 + reference.error^2),   sigma = sqrt(error^2 + sys^2),
     deviation = |value - reference.value| / sigma,   PASS  <=>  deviation <= SIGMAS = 4.
 
-A check whose value or error is not finite, or whose sigma is zero, fails.
+One-sided checks compare with a bound instead, deviation = (value - reference.value) / sigma (signed):
+``side = +1`` asks for a significant excess (PASS <=> deviation >= SIGMAS; e.g. correlations that grow
+faster than short-ranged ones), ``side = -1`` for no significant excess (PASS <=> deviation <= SIGMAS;
+e.g. correlations that do not grow).  A check whose value or error is not finite, or whose sigma is zero,
+fails.
 """
 
 from __future__ import annotations
@@ -34,6 +38,7 @@ class Check:
     reference: Reference
     systematic: float = 0.0
     note: str = ""
+    side: int = 0
 
     @property
     def sys(self) -> float:
@@ -47,20 +52,23 @@ class Check:
 
     @property
     def deviation(self) -> float:
-        """|value - reference| in units of the combined error bar (NaN when undefined)."""
-        diff = abs(self.value - self.reference.value)
+        """|value - reference| (one-sided: value - reference) in units of the combined error bar (NaN when
+        undefined)."""
+        diff = self.value - self.reference.value
+        if not self.side:
+            diff = abs(diff)
         if not (math.isfinite(diff) and math.isfinite(self.sigma)):
             return float("nan")
         if self.sigma == 0.0:
-            return 0.0 if diff == 0.0 else float("inf")
+            return 0.0 if diff == 0.0 else math.copysign(float("inf"), diff)
         return diff / self.sigma
 
     @property
     def passed(self) -> bool:
-        """True when the deviation is finite and at most :data:`SIGMAS`."""
+        """True when the deviation is finite and at most :data:`SIGMAS` (``side = +1``: at least)."""
         if not (math.isfinite(self.value) and math.isfinite(self.error) and self.sigma > 0.0):
             return False
-        return self.deviation <= SIGMAS
+        return self.deviation >= SIGMAS if self.side > 0 else self.deviation <= SIGMAS
 
 
 def failed_check(case: str, reference: Reference, reason: str) -> Check:

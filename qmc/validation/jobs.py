@@ -43,16 +43,18 @@ SECONDS_PER_OP = 1.0e-7
 
 @dataclass(frozen=True)
 class ModelSpec:
-    """Recipe for :func:`models.compile_model`: lattice kind and size, and the terms (plain data)."""
+    """Recipe for :func:`models.compile_model`: lattice kind and size, the terms (plain data) and the number
+    of colours per site."""
 
     lattice: str
     size: tuple[int, ...]
     terms: tuple[Any, ...]
+    colours: int = 2
 
     def build(self):  # -> models.CompiledModel (imported lazily: workers import the engine themselves)
         from qmc.models import build_lattice, compile_model
 
-        return compile_model(build_lattice(self.lattice, self.size), list(self.terms))
+        return compile_model(build_lattice(self.lattice, self.size), list(self.terms), colours=self.colours)
 
 
 @dataclass(frozen=True)

@@ -22,7 +22,9 @@ __all__ = [
     "Reference",
     "SQUARE_GROUND_STATE_ENERGY",
     "SQUARE_STAGGERED_MAGNETIZATION",
+    "SUN_NEEL_VBS_SOURCE",
     "computed",
+    "short_ranged",
 ]
 
 
@@ -72,6 +74,20 @@ SQUARE_STAGGERED_MAGNETIZATION = Reference(0.30743, 0.00001,
 # (Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006)); value and error bar from memory.
 BILAYER_CRITICAL_COUPLING = Reference(2.5220, 0.0001,
                                       "Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006)")
+
+
+SUN_NEEL_VBS_SOURCE = ("Harada, Kawashima and Troyer, PRL 90, 117203 (2003); Beach, Alet, Mambrini and "
+                       "Capponi, PRB 80, 184401 (2009)")
+"""SU(N) Heisenberg model on the square lattice (fundamental representation on A, conjugate on B): Neel order
+for N <= 4, columnar valence-bond order for N >= 5.  Harada et al. (citation from memory) found the two
+phases; Beach et al. (title and the transition at N_c = 4.57(5), treating N as continuous, checked in their
+arXiv version 0812.3657; journal reference from memory) located the transition between them."""
+
+
+def short_ranged(source: str) -> Reference:
+    """The growth factor of L^2 x (order parameter)^2 between L and 2L for correlations that are short-ranged:
+    1 (the structure factor saturates); an ordered phase has 4, a critical point 2^(1 - eta)."""
+    return Reference(1.0, 0.0, source)
 
 
 def computed(value: float, source: str = ED_SOURCE) -> Reference:

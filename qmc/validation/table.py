@@ -1,7 +1,9 @@
 """The printed result table of ``qmc validate``.
 
 Columns: case, value, error (statistical, one sigma), sys (systematic allowance including the reference's
-uncertainty), reference value, source, deviation |value - reference| / sqrt(error^2 + sys^2), PASS/FAIL.
+uncertainty), reference value (``>`` marks a one-sided check asking for a significant excess, ``<=`` one
+asking for none), source, deviation |value - reference| / sqrt(error^2 + sys^2) (signed for one-sided
+checks), PASS/FAIL.
 Values are rounded to the second significant digit of their error; the notes of the cases (methods, fit
 forms, allowances) follow the table, then a one-line summary.
 """
@@ -43,12 +45,13 @@ def format_reference(check: Check) -> str:
     """Reference value: ``-0.669437(5)`` style when it has an uncertainty, else one decimal more than the
     value column (8 significant digits at least for an exact value without a QMC error)."""
     ref = check.reference
+    mark = {1: "> ", -1: "<= "}.get(check.side, "")
     d = _decimals(ref.error, 1)
     if d is not None:
         unit = 10.0 ** (-d)
-        return f"{ref.value:.{d}f}({int(round(ref.error / unit))})"
+        return f"{mark}{ref.value:.{d}f}({int(round(ref.error / unit))})"
     dv = _decimals(check.error)
-    return f"{ref.value:.8g}" if dv is None else f"{ref.value:.{min(dv + 1, 12)}f}"
+    return mark + (f"{ref.value:.8g}" if dv is None else f"{ref.value:.{min(dv + 1, 12)}f}")
 
 
 def _row(c: Check) -> tuple[str, ...]:
@@ -74,6 +77,9 @@ def format_table(checks: Sequence[Check]) -> str:
         out += ["", "notes:"] + [f"  - {n}" for n in notes]
     n_fail = sum(not c.passed for c in checks)
     out += ["", f"criterion: PASS when |value - reference| <= {SIGMAS:g} sqrt(error^2 + sys^2)"]
+    if any(c.side for c in checks):
+        out.append(f"  one-sided rows: '> ref' PASS when value - ref >= {SIGMAS:g} sqrt(error^2 + sys^2), "
+                   f"'<= ref' when value - ref <= {SIGMAS:g} sqrt(error^2 + sys^2)")
     if n_fail:
         out.append(f"FAILED: {n_fail} of {len(checks)} checks")
     else:

@@ -57,6 +57,8 @@ _SCRIPT = textwrap.dedent('''
 
 
     loop_update = projector.loop_update  # the loops of the projector kind, reused as they are
+    for _hook in kinds.HOOKS:  # and every other hook of the projector kind
+        globals().setdefault(_hook, getattr(projector, _hook))
     kinds.register_kind(DilutedKind, sys.modules[__name__], frozenset())
 
     J, Q, BETA, accept, n_bins, per_bin = (float(x) for x in sys.argv[1:7])

@@ -235,3 +235,64 @@ def test_sigterm_checkpoints_every_rank_and_resumes_bit_identically(tmp_path):
             assert d.status == "done" and np.array_equal(got, ref), t.task_id
             ended = ["stopped", "done"] if unit is units[0] else ["done"]
             assert [s["ended"] for s in d.provenance["sessions"]] == ended
+
+
+# ------------------------------------------------------------------------------------------- index
+
+
+EQUAL = """
+[run]
+seed = 33
+output = "run"
+[lattice]
+kind = "square"
+size = [6, 6]
+[[terms]]
+type = "heisenberg"
+bonds = "nn"
+coupling = 1.0
+[scan]
+beta = 3.0
+[sampling]
+warmup_steps = 200
+measure_steps = {measure}
+bins = {bins}
+copies = 6
+checkpoint_seconds = 60
+"""
+
+
+def test_index_shows_queued_units_and_live_counters(tmp_path):
+    """Six equal tasks on two ranks: a prefetched task reads "queued" with its rank until the rank starts it,
+    and the steps of running tasks move while they run (not only at checkpoints: 60 s here)."""
+    config = write(tmp_path, EQUAL, "c.toml", measure=150000, bins=20)
+    run_dir = tmp_path / "run"
+    proc = start(config, run_dir, 2)
+    seen: dict[str, list[tuple[str, int | None, int]]] = {}
+    t0 = time.monotonic()
+    while proc.poll() is None and time.monotonic() - t0 < 240:
+        try:
+            index = load_index(run_dir)
+        except Exception:  # not written yet
+            index = None
+        for tid, e in (index or {"tasks": {}})["tasks"].items():
+            state = (e["status"], e.get("rank"), e["steps_done"])
+            if not seen.get(tid) or seen[tid][-1] != state:
+                seen.setdefault(tid, []).append(state)
+        time.sleep(0.05)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 0, err
+    queued = [tid for tid, states in seen.items() if any(s[0] == "queued" for s in states)]
+    assert queued, seen
+    for tid in queued:  # queued on a rank, then running on the same rank, then done
+        states = [s for s in seen[tid] if s[0] != "pending"]
+        q = next(s for s in states if s[0] == "queued")
+        assert q[1] is not None and all(s[1] == q[1] for s in states if s[0] in ("queued", "running"))
+        assert [s[0] for s in states][-1] == "done"
+    # counters between start and end while running: they come from progress reports (the checkpoint
+    # interval is 60 s, and the outcome arrives only at the end)
+    moving = [tid for tid, states in seen.items()
+              if any(s[0] == "running" and 0 < s[2] < 150200 for s in states)]
+    assert moving, seen
+    log = (run_dir / "run.log").read_text()
+    assert '"progress_reports": ' in log and '"prefetch_granted": 0' not in log

@@ -113,3 +113,24 @@ def test_long_runs_fit_one_screen(mixed_run):
 def test_not_a_run_directory(tmp_path):
     result = invoke("status", tmp_path)
     assert result.exit_code == 2 and "not a run directory" in result.stderr
+
+
+def test_queued_tasks_and_live_counters_of_the_index_are_shown(mixed_run, tmp_path):
+    """What a running MPI farm writes into the index: a task queued on a busy rank, and a running task's
+    counters between two checkpoints."""
+    import json
+    import shutil
+
+    run = tmp_path / "run"
+    shutil.copytree(mixed_run, run)
+    index = json.loads((run / "index.json").read_text())
+    index["tasks"]["L6_J0.5_beta1_c0"].update(status="queued", rank=1)  # never started, no file
+    index["tasks"]["L6_J1_beta1_c0"].update(status="running", rank=0, steps_done=1500, bins_done=14)
+    (run / "index.json").write_text(json.dumps(index))
+    by_id = {t.task_id: t for t in run_status(run).tasks}
+    queued, running = by_id["L6_J0.5_beta1_c0"], by_id["L6_J1_beta1_c0"]
+    assert queued.state == "queued" and queued.steps_done == 0
+    assert running.state == "running" and (running.steps_done, running.bins_done) == (1500, 14)
+    assert by_id["L4_J1_beta1_c0"].state == "done" and by_id["L4_J0.5_beta1_c0"].state == "failed"
+    text = status_text(run_status(run))
+    assert "1 running, 1 queued" in text and "1500/2050" in text
