@@ -10,11 +10,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from helpers.chains import SIGMAS, mean_err, run_qmc
 from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 
 from qmc.analysis.jackknife import jackknife
-from qmc.chain.simulation import Simulation
-from qmc.engine.rng import stream_seed
 from qmc.validation.exact import (
     ExactSpectrum,
     SymmetryGroup,
@@ -29,8 +28,6 @@ from qmc.validation.exact import (
     square_bonds,
     square_translations,
 )
-
-SIGMAS = 4.0
 
 
 # ----------------------------------------------------------------------------- exact side
@@ -206,17 +203,6 @@ def _exact(name):
     return _exact_cache[name]
 
 
-def run_qmc(model, beta, steps, seed_key, bins=100):
-    sim = Simulation(model, beta, warmup_steps=5000, measure_steps=steps, bins=bins,
-                     seed_words=stream_seed(20261202, seed_key))
-    rows = sim.advance(10**12)
-    return {name: rows[:, k] for k, name in enumerate(sim.bin_names)}
-
-
-def _mean_err(x):
-    return float(np.mean(x)), float(np.std(x, ddof=1) / np.sqrt(len(x)))
-
-
 # the columnar cluster has only 8 translations, so its exact spectrum takes minutes: run it with -m slow
 SLOW_CASES = {"columnar4"}
 PARAMS = [pytest.param(name, beta, id=f"{name}-beta{beta}",
@@ -236,7 +222,7 @@ def test_thermal_averages_match_exact(name, beta):
             c, err, _ = jackknife(lambda a, b: (b - a * a - a) / n, bins["n_ops"], bins["n_ops_sq"])
             results[key] = (c, err)
         else:
-            results[key] = _mean_err(bins[key])
+            results[key] = mean_err(bins[key])
     e, de = results["energy"]
     assert de / abs(e) < 2e-3, f"energy error bar too large to be a test: {de / abs(e):.2%}"
     # 1e-6 absolute floor: quantities that are exponentially small in a gapped cluster (e.g. chi_uniform at

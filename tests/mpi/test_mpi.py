@@ -240,26 +240,7 @@ def test_sigterm_checkpoints_every_rank_and_resumes_bit_identically(tmp_path):
 # ------------------------------------------------------------------------------------------- index
 
 
-EQUAL = """
-[run]
-seed = 33
-output = "run"
-[lattice]
-kind = "square"
-size = [6, 6]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[scan]
-beta = 3.0
-[sampling]
-warmup_steps = 200
-measure_steps = {measure}
-bins = {bins}
-copies = 6
-checkpoint_seconds = 60
-"""
+EQUAL = dict(seed=33, size=[6, 6], scan={"beta": 3.0}, warmup_steps=200, copies=6, checkpoint_seconds=60)
 
 
 def test_index_shows_queued_units_and_live_counters(tmp_path):

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from test_storage import make_record
+from helpers.task_records import make_record
 
 import qmc.storage.atomic as atomic
 from qmc.config.parser import load_config

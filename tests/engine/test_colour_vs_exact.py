@@ -8,15 +8,15 @@ chi_uniform, s_q_shifted, the dimer order parameter and, on the periodic chains,
 (exact: second derivative of the free energy in the twist).  Criterion: |QMC - exact| < 4 error bars, and the
 energy's relative error bar must be below 0.3% so that the comparison has power.  The exact module itself is
 checked at N = 2 against the S = 1/2 reference (qmc/validation/exact/clusters.py) in
-tests/test_colour_kind.py.
+tests/engine/test_colour_kind.py.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
+from helpers.chains import SIGMAS, mean_err, run_qmc
 from qmc.models import ProjectorProductTerm, ProjectorTerm, build_lattice, compile_model
-from test_engine_vs_exact import SIGMAS, _mean_err, run_qmc
 
 from qmc.analysis.jackknife import jackknife
 from qmc.validation.exact import chain_bonds
@@ -121,7 +121,7 @@ def test_colour_averages_match_exact(name, beta):
             c, err, _ = jackknife(lambda a, b: (b - a * a - a) / n, bins["n_ops"], bins["n_ops_sq"])
             results[key] = (c, err)
         else:
-            results[key] = _mean_err(bins[key])
+            results[key] = mean_err(bins[key])
     e, de = results["energy"]
     assert de / abs(e) < 3e-3, f"energy error bar too large to be a test: {de / abs(e):.2%}"
     # 1e-5 absolute floor: a quantity with no fluctuation in a finite run has a zero error bar (at high
