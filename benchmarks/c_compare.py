@@ -1,7 +1,9 @@
 """Engine speed against the reference C implementation of the same algorithm (benchmarks/c_reference).
 
 Usage:  python benchmarks/c_compare.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
-                                       [--warmup 300] [--repeats 3] [--seed 1] [--cc cc]
+                                       [--warmup 300] [--repeats 3] [--seed 1] [--cc cc] [--c-variant 0]
+        python benchmarks/c_compare.py --scaling 16,32,64,128 [--case ...] [--variants 1,16:0,32:4]
+                                       [--rounds 3] [--work 2e7]
 
 Compiles ``c_reference/sse_ref.c`` with ``<cc> -O3 -march=native`` into a temporary directory (if there is
 no C compiler it prints a JSON note and exits with status 0), then for each case runs ``--repeats``
@@ -18,6 +20,18 @@ all its measurements, as in benchmarks/throughput.py) and prints one JSON object
   over the independent chains), their difference in combined error bars, and ``energies_agree``:
   |difference| < 5 error bars or < 2e-3 relative (independent Markov chains; a loose check that the two
   programs sample the same distribution, not a precision test).
+
+``--c-variant`` is the C program's loop variant (``K`` or ``K:E``, see ``--scaling``; default 0: chosen by
+size, as the C program does by itself).
+
+``--scaling`` runs only the C program, on L x L lattices at beta = L, to compare loop-update variants on
+one Markov chain (the variants give the same chain bit for bit, so one warm-up serves all): ``K`` tracers
+(1 = one loop at a time; K >= 2 interleaved, up to K cache misses in flight) and ``E`` eager pairs (a
+fresh tracer walks up to E pairs alone before it joins the round-robin).  Each of ``--rounds`` rounds runs
+about ``--work`` slot-steps (steps x cutoff) of every variant back to back; per variant the fastest round
+counts (the machine is shared).  One JSON object per case and L: the variants' CPU ns per slot per step
+with the sweep / loop split and loop ns per leg visit, the links array size, and each variant's speed-up
+over the single tracer.
 
 Canonical cases (the same as benchmarks/throughput.py): square-lattice Heisenberg 32x32 at beta = 32
 (J = 1), and J-Q2 32x32 at beta = 32 with J = 0.05, Q = 1.
@@ -42,7 +56,7 @@ from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.projector import loop_update
 from qmc.engine.rng import stream_seed
 
-__all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "main"]
+__all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "scaling_case", "main"]
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SOURCE = os.path.join(HERE, "c_reference", "sse_ref.c")
@@ -57,11 +71,18 @@ def compile_reference(cc: str, workdir: str) -> str:
     return exe
 
 
-def run_c(exe: str, L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int) -> dict:
-    """One run of the C program (its JSON output as a dict)."""
-    out = subprocess.run([exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(steps), str(seed)],
-                         check=True, capture_output=True, text=True)
-    return json.loads(out.stdout)
+def run_c(exe: str, L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int,
+          variants: str = "0", rounds: int = 1) -> dict:
+    """One run of the C program (its JSON output as a dict).
+
+    ``variants`` is the program's list of loop variants (``K`` or ``K:E``: K tracers, E eager pairs; ``0``
+    chooses by size); every round runs ``steps`` steps of each variant in turn on the same chain.  The
+    timings of the first variant are also copied to the top level of the dict."""
+    out = subprocess.run([exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(steps), str(seed),
+                          variants, str(rounds)], check=True, capture_output=True, text=True)
+    res = json.loads(out.stdout)
+    res.update({k: v for k, v in res["variants"][0].items() if k != "auto"})
+    return res
 
 
 def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
@@ -130,17 +151,18 @@ def _summary(runs: list[dict], prefix: str) -> dict:
 
 
 def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, repeats: int,
-                 seed: int) -> dict:
+                 seed: int, c_variant: str = "0") -> dict:
     """Timings and energies of the C program and the numba engine on one case (see module docstring)."""
     J, Q = CASES[case]
     split_steps = max(10, steps // 4)
     c_runs, nb_runs = [], []
     for r in range(repeats):  # interleaved, so that a burst of load on the machine hits both
-        c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r))
+        c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r, c_variant))
         nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps))
     out = {"case": case, "L": L, "beta": beta, "J": J, "Q": Q, "warmup": warmup, "steps": steps,
            "repeats": repeats}
     out.update(_summary(c_runs, "c"))
+    out["c_loop_variant"] = {"tracers": c_runs[0]["tracers"], "eager": c_runs[0]["eager"]}
     out.update(_summary(nb_runs, "numba"))
     out["ratio_numba_over_c"] = out["numba_cpu_ns_per_slot_per_step"] / out["c_cpu_ns_per_slot_per_step"]
     out["ratio_numba_over_c_per_op"] = out["numba_cpu_ns_per_op_per_step"] / out["c_cpu_ns_per_op_per_step"]
@@ -154,15 +176,47 @@ def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: i
     return out
 
 
+def scaling_case(exe: str, case: str, L: int, variants: str, rounds: int, work: float, seed: int) -> dict:
+    """Loop-variant comparison of the C program on one case at L x L, beta = L (see module docstring)."""
+    J, Q = CASES[case]
+    slots = 1.2 * L**3  # about 4/3 n for both cases at beta = L (n ~ 0.9-1.2 beta N)
+    steps = max(2, int(work / slots))
+    warmup = max(30, steps)
+    res = run_c(exe, L, float(L), J, Q, warmup, steps, seed, variants, rounds)
+    single = next((v["cpu_ns_per_slot_per_step"] for v in res["variants"]
+                   if v["tracers"] == 1 and not v["auto"]), None)
+    for v in res["variants"]:
+        v["speedup_over_single"] = single / v["cpu_ns_per_slot_per_step"] if single else None
+    best = min(res["variants"], key=lambda v: v["cpu_ns_per_slot_per_step"])
+    keep = ("L", "N", "beta", "cutoff", "mean_n", "mean_vertices", "mean_loops", "bytes_per_slot",
+            "energy_per_site", "energy_per_site_err", "steps", "rounds", "warmup")
+    out = {"case": case, "implementation": "c"}
+    out.update({k: res[k] for k in keep})
+    out["links_MB"] = round(16 * res["mean_vertices"] / 2**20, 2)
+    out["variants"] = res["variants"]
+    out["best"] = {k: best[k] for k in ("tracers", "eager", "cpu_ns_per_slot_per_step")}
+    return out
+
+
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     add_case_arguments(p)
     p.add_argument("--repeats", type=int, default=3)
     p.add_argument("--seed", type=int, default=1)
     p.add_argument("--cc", default=os.environ.get("CC", "cc"))
+    p.add_argument("--c-variant", default="0", help="loop variant of the C program (K or K:E; 0 = by size)")
+    p.add_argument("--scaling", default="", metavar="L1,L2,...",
+                   help="C program only: compare loop variants at these L (beta = L)")
+    p.add_argument("--variants", default="1,8:0,16:0,32:0,16:4,32:4",
+                   help="--scaling: comma-separated K or K:E (K tracers, E eager pairs)")
+    p.add_argument("--rounds", type=int, default=3, help="--scaling: rounds of all variants back to back")
+    p.add_argument("--work", type=float, default=2e7, help="--scaling: slot-steps per variant and round")
     a = p.parse_args()
-    if a.L < 4 or a.L % 2 or a.steps < 1 or a.repeats < 1 or a.warmup < 1:
-        raise SystemExit("need an even --L >= 4 and positive --steps, --warmup and --repeats")
+    if a.L < 4 or a.L % 2 or a.steps < 1 or a.repeats < 1 or a.warmup < 1 or a.rounds < 1:
+        raise SystemExit("need an even --L >= 4 and positive --steps, --warmup, --repeats and --rounds")
+    sizes = [int(x) for x in a.scaling.split(",")] if a.scaling else []
+    if any(L < 4 or L % 2 for L in sizes):
+        raise SystemExit("--scaling needs even sizes >= 4")
     if shutil.which(a.cc) is None:
         print(json.dumps({"note": f"no C compiler ({a.cc!r} not found): comparison skipped"}))
         return
@@ -174,7 +228,13 @@ def main() -> None:
                               "stderr": err.stderr[-2000:]}))
             return
         for case in selected_cases(a.case):
-            print(json.dumps(compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed)))
+            if sizes:
+                for L in sizes:
+                    print(json.dumps(scaling_case(exe, case, L, a.variants, a.rounds, a.work, a.seed)))
+                    sys.stdout.flush()
+                continue
+            print(json.dumps(compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed,
+                                          a.c_variant)))
             sys.stdout.flush()
 
 

@@ -1,9 +1,20 @@
 /*
  * Reference C implementation of the project's SSE loop algorithm, used only as a speed yardstick for the
- * numba engine (benchmarks/c_compare.py).  Single file, C99, no dependencies:
+ * numba engine (benchmarks/c_compare.py).  C99 plus __builtin_prefetch (gcc, clang), no dependencies:
  *
  *     cc -O3 -march=native -o sse_ref sse_ref.c -lm
- *     ./sse_ref L beta J Q warmup_steps measured_steps seed
+ *     ./sse_ref L beta J Q warmup_steps measured_steps seed [variants [rounds]]
+ *
+ * variants: comma-separated loop-update variants K[:E[:W[:I]]] (sse_loops.h): K = 1 one loop at a time
+ * (loops_single), K >= 2 K interleaved tracers (loops_interleaved) that walk up to E steps alone while
+ * within W KiB of the scan, with at most I fragment ids (0: no cap but the room in links; a small cap
+ * exercises the single-tracer finish); K = 0 (the default) chooses by size: one tracer while the links array is at
+ * most AUTO_BYTES, else AUTO_TRACERS:AUTO_EAGER:AUTO_WINDOW_KIB (measured with benchmarks/c_compare.py
+ * --scaling).  All variants give the same Markov chain bit for bit, so one chain can take turns: each of
+ * `rounds` rounds (default 1) runs measured_steps steps with every variant; the timings of each variant
+ * are those of its fastest round.
+ * Compile with -DSSE_CHECK to verify after every sweep that the world lines close (periodic in imaginary
+ * time) and that every operator acts on antiparallel bonds, i.e. that every loop was flipped as a whole.
  *
  * Model (periodic L x L square lattice, L even >= 4), written as H = E_const - sum_t C_t prod_a P_{i_a j_a}
  * with P_ij = 1/4 - S_i.S_j:
@@ -15,41 +26,50 @@
  *     W = beta^n (M - n)! / M!  prod_p C_{t_p} / 2^{k_{t_p}};
  * one Monte Carlo step = one diagonal sweep + one full loop decomposition.
  *   - The diagonal sweep is fused: per slot it applies the loop flips of the previous step (vflip, one
- *     byte per bond vertex), measures the propagated state (operators per group, staggered magnetisation
+ *     byte per bond vertex, cleared as it is read), measures the propagated state (operators per group, staggered magnetisation
  *     after every operator, winding), does the diagonal update (insert with probability
  *     min(1, beta W_tot / (M - n)) if all bonds of the chosen term are antiparallel, the term chosen
  *     uniformly within its kind and the kind by weight; remove a fully diagonal operator with probability
  *     min(1, (M - n + 1) / (beta W_tot))) and appends the operator's bond vertices to the linked vertex
  *     list.  Vertices are numbered compactly: a k-bond operator is k four-leg bond vertices.
  *     Leg 4v + l: l = 0 site i below, 1 site j below, 2 site i above, 3 site j above.
- *   - The loop update builds every deterministic singlet-projector loop (enter at leg l, leave at l ^ 1),
- *     each leg visited once, flips each loop with probability 1/2 by toggling vflip of the vertices it
- *     passes, and flips free sites with probability 1/2.
+ *     Everything the sweep needs about a term is one 32-byte row of the term table (bond count, group,
+ *     bond directions, sites).
+ *   - The loop update (sse_loops.h) builds every deterministic singlet-projector loop (enter at leg l,
+ *     leave at l ^ 1), each leg visited once, flips each loop with probability 1/2 and flips free sites
+ *     with probability 1/2.
  *   - Per measured step it also does the numba engine's equal-time measurements (uniform magnetisation,
  *     S(Q + dq) from cos/sin tables, columnar dimer order parameter and its 64 x 64 histogram).
  *
  * Random numbers: xoshiro256** (Blackman and Vigna), doubles = top 53 bits * 2^-53; seeded by splitmix64.
  *
- * Differences from the numba engine (deliberate; each makes the C side slightly cheaper, not dearer):
- * the term is chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no
- * table) instead of by an alias table over all terms; per-term site pairs are stored together
- * (tsite[t][a]) instead of term -> bond -> sites; k <= 2 is a compile-time bound; winding numbers are
- * integer sums; seeding uses splitmix64 rather than numpy's SeedSequence.  Cutoff start and growth
- * (1.2 beta W_tot + 16, then n + n/2 + 16 whenever fewer than n/3 slots are empty) are the engine's.
+ * Differences from the numba engine (deliberate; each makes the C side cheaper, not dearer): the term is
+ * chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no table)
+ * instead of by an alias table over all terms; k <= 2 is a compile-time bound; winding numbers are integer
+ * sums; loop flips are one byte per leg pair written by the loops (no clearing) instead of one byte per
+ * vertex toggled by them; seeding uses splitmix64 rather than numpy's SeedSequence.  Cutoff: starts at
+ * 1.2 beta W_tot + 16 and, during warm-up, grows to n + n/3 + 16 whenever fewer than n/3 slots are empty
+ * (M about 4n/3; the engine uses n + n/2 + 16).
  * Output: one JSON object.  CPU time (CLOCK_PROCESS_CPUTIME_ID) of the measured steps only.
  */
-#define _POSIX_C_SOURCE 199309L
+#define _DEFAULT_SOURCE
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/mman.h>
 #include <time.h>
 
 #define KMAX 2
+#define TTW 8 /* int32 per term-table row: meta, then (i, j) per bond */
 #define HIST_BINS 64
 #define HIST_RANGE 0.25
 #define TWO_PI 6.283185307179586476925286766559
+#define AUTO_TRACERS 32
+#define AUTO_BYTES (1L << 20)
+#define AUTO_EAGER 32
+#define AUTO_WINDOW_KIB 256
 
 /* ------------------------------------------------------------------------------------------ RNG */
 static inline uint64_t rotl(uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
@@ -75,27 +95,32 @@ static uint64_t splitmix64(uint64_t *x)
     return z ^ (z >> 31);
 }
 
+#include "sse_loops.h"
+
 /* ------------------------------------------------------------------------------------------ state */
 typedef struct {
     int L, N, T, nJ, nQ;
     double beta, J, Q, beta_wtot, wJ_tot, inv_wJ, inv_wQ;
     /* model */
     int8_t *phase;          /* [N] staggered sign */
-    uint8_t *term_k;        /* [T] bonds per term */
-    uint8_t *term_group;    /* [T] 0 = J, 1 = Q */
-    int32_t *tsite;         /* [T * KMAX * 2] sites (i, j) of each bond of each term */
-    uint8_t *tdir;          /* [T * KMAX] 0 = x bond, 1 = y bond (displacement +1 along it) */
+    int32_t *tt;            /* [T * TTW] term rows: k | group << 2 | dir_a << (3 + a), then i_a, j_a */
     double *cos_tab, *sin_tab; /* [2 * N] phase_i cos/sin(2 pi r_a / L) */
     int32_t *vbs_bonds;     /* [2N * 2] */
     int8_t *vbs_dir, *vbs_phase;
     /* configuration and work arrays */
     int M;                  /* cutoff */
     int n;                  /* operators in the string */
+    int vcap;               /* bond vertices the work arrays hold */
+    int tracers;            /* loop update: 1 single tracer, K >= 2 interleaved */
+    int eager;              /* pairs a fresh tracer walks alone before it is interleaved */
+    int window;             /* ... as long as it stays within this many legs of the scan (0: no limit) */
     int8_t *spins;          /* [N] +-1 */
     int32_t *ops;           /* [M] -1 or (t << 3) | offmask */
-    uint8_t *vflip;         /* [M * KMAX] pending loop flips per bond vertex */
-    int32_t *links;         /* [4 * M * KMAX] */
+    uint8_t *vflip;         /* [vcap] pending loop flips per bond vertex */
+    int32_t *links;         /* [4 * vcap] */
     int32_t *first, *last;  /* [N] */
+    long fragments;         /* fragment ids used by the interleaved loop update, summed over steps */
+    int max_ids;            /* cap on fragment ids per step (0: what the tail of links holds) */
     int64_t hist[HIST_BINS * HIST_BINS];
     uint64_t rng[4];
 } sse_t;
@@ -107,6 +132,8 @@ typedef struct {
     int wind[2];
 } sweep_out_t;
 
+/* Zeroed memory; blocks of 4 MiB and more are marked for transparent huge pages, as numpy does for its
+ * arrays (fewer TLB misses when the loop update jumps around a large vertex list). */
 static void *xcalloc(size_t n, size_t size)
 {
     void *p = calloc(n ? n : 1, size);
@@ -114,18 +141,39 @@ static void *xcalloc(size_t n, size_t size)
         fprintf(stderr, "out of memory\n");
         exit(2);
     }
+#ifdef MADV_HUGEPAGE
+    const size_t bytes = n * size;
+    if (bytes >= ((size_t)4 << 20)) {
+        const uintptr_t a = ((uintptr_t)p + 4095) & ~(uintptr_t)4095;
+        madvise((void *)a, (bytes - (a - (uintptr_t)p)) & ~(size_t)4095, MADV_HUGEPAGE);
+    }
+#endif
     return p;
 }
 
 static void add_term(sse_t *s, int t, int k, int group, const int *sites, const int *dirs)
 {
-    s->term_k[t] = (uint8_t)k;
-    s->term_group[t] = (uint8_t)group;
+    int32_t *row = s->tt + (size_t)t * TTW;
+    row[0] = k | group << 2;
     for (int a = 0; a < k; a++) {
-        s->tsite[(t * KMAX + a) * 2] = sites[2 * a];
-        s->tsite[(t * KMAX + a) * 2 + 1] = sites[2 * a + 1];
-        s->tdir[t * KMAX + a] = (uint8_t)dirs[a];
+        row[0] |= dirs[a] << (3 + a);
+        row[1 + 2 * a] = sites[2 * a];
+        row[2 + 2 * a] = sites[2 * a + 1];
     }
+}
+
+/* Work arrays for a cutoff of M slots (at most KMAX * M bond vertices); pending flips are kept. */
+static void alloc_work(sse_t *s, int M)
+{
+    const int vcap = M * (s->nQ ? KMAX : 1);
+    if (vcap <= s->vcap) return;
+    uint8_t *vf = xcalloc((size_t)vcap, 1);
+    if (s->vflip) memcpy(vf, s->vflip, (size_t)s->vcap);
+    free(s->vflip);
+    s->vflip = vf;
+    free(s->links);
+    s->links = xcalloc(4 * (size_t)vcap + 16 + 1024, sizeof(int32_t)); /* padding, then >= 1024 ids */
+    s->vcap = vcap;
 }
 
 static void setup(sse_t *s, int L, double beta, double J, double Q, uint64_t seed)
@@ -140,10 +188,7 @@ static void setup(sse_t *s, int L, double beta, double J, double Q, uint64_t see
     s->nQ = Q > 0 ? 2 * N : 0;
     s->T = s->nJ + s->nQ;
     s->phase = xcalloc(N, 1);
-    s->term_k = xcalloc(s->T, 1);
-    s->term_group = xcalloc(s->T, 1);
-    s->tsite = xcalloc((size_t)s->T * KMAX * 2, sizeof(int32_t));
-    s->tdir = xcalloc((size_t)s->T * KMAX, 1);
+    s->tt = xcalloc((size_t)s->T * TTW, sizeof(int32_t));
     s->cos_tab = xcalloc(2 * (size_t)N, sizeof(double));
     s->sin_tab = xcalloc(2 * (size_t)N, sizeof(double));
     s->vbs_bonds = xcalloc(4 * (size_t)N, sizeof(int32_t));
@@ -198,31 +243,25 @@ static void setup(sse_t *s, int L, double beta, double J, double Q, uint64_t see
     s->n = 0;
     s->ops = malloc(sizeof(int32_t) * (size_t)s->M);
     for (int p = 0; p < s->M; p++) s->ops[p] = -1;
-    s->vflip = xcalloc((size_t)s->M * KMAX, 1);
-    s->links = xcalloc((size_t)s->M * KMAX * 4, sizeof(int32_t));
+    alloc_work(s, s->M);
     s->first = xcalloc(N, sizeof(int32_t));
     s->last = xcalloc(N, sizeof(int32_t));
 }
 
-/* Append empty slots at the end (warm-up only, between steps).  Vertex numbering, and hence the pending
- * vflip entries, does not change when empty slots are appended after the last operator. */
+/* Append empty slots at the end (warm-up only, between steps): M -> n + n/3 + 16.  Vertex numbering, and
+ * hence the pending flips, does not change when empty slots are appended after the last operator. */
 static void grow_cutoff(sse_t *s)
 {
-    const int new_m = s->n + s->n / 2 + 16;
+    const int new_m = s->n + s->n / 3 + 16;
     if (new_m <= s->M) return;
     s->ops = realloc(s->ops, sizeof(int32_t) * (size_t)new_m);
-    uint8_t *vf = xcalloc((size_t)new_m * KMAX, 1);
-    memcpy(vf, s->vflip, (size_t)s->M * KMAX);
-    free(s->vflip);
-    s->vflip = vf;
-    free(s->links);
-    s->links = xcalloc((size_t)new_m * KMAX * 4, sizeof(int32_t));
     if (!s->ops) {
         fprintf(stderr, "out of memory\n");
         exit(2);
     }
     for (int p = s->M; p < new_m; p++) s->ops[p] = -1;
     s->M = new_m;
+    alloc_work(s, new_m);
 }
 
 /* ------------------------------------------------------------------------------------------ sweep */
@@ -239,10 +278,7 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
     int32_t *restrict first = s->first;
     int32_t *restrict last = s->last;
     const int8_t *restrict phase = s->phase;
-    const uint8_t *restrict term_k = s->term_k;
-    const uint8_t *restrict term_group = s->term_group;
-    const int32_t *restrict tsite = s->tsite;
-    const uint8_t *restrict tdir = s->tdir;
+    const int32_t *restrict tt = s->tt;
     uint64_t rng[4] = {s->rng[0], s->rng[1], s->rng[2], s->rng[3]};
 
     int ms = 0;
@@ -251,55 +287,74 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
         last[i] = -1;
         ms += phase[i] * spins[i];
     }
-    int64_t group[2] = {0, 0};
+#ifdef SSE_CHECK
+    const size_t n_sites = (size_t)s->L * (size_t)s->L;
+    int8_t *spins0 = malloc(n_sites);
+    memcpy(spins0, spins, n_sites);
+#endif
+    int n_q = 0;
     int wind[2] = {0, 0};
     double sum_ms = 0.0, sum_ms2 = 0.0, sum_ms4 = 0.0;
     int n = s->n, n_old = 0, v_old = 0, v = 0;
 
     for (int p = 0; p < M; p++) {
         int op = ops[p];
-        int t;
+        const int32_t *row;
         if (op >= 0) {
-            t = op >> 3;
-            const int k = term_k[t];
-            for (int a = 0; a < k; a++) {
+            row = tt + (size_t)(op >> 3) * TTW;
+            const int meta = row[0], k = meta & 3;
+            for (int a = 0; a < k; a++) { /* branch-free: a loop flips a vertex with probability 1/2 */
                 op ^= vflip[v_old + a] << a;
                 vflip[v_old + a] = 0;
             }
             v_old += k;
             n_old++;
-            group[term_group[t]]++;
-            if (op & 7) {
-                for (int a = 0; a < k; a++) {
-                    if ((op >> a) & 1) {
-                        const int i = tsite[(t * KMAX + a) * 2], j = tsite[(t * KMAX + a) * 2 + 1];
-                        const int si = spins[i], sj = spins[j];
-                        wind[tdir[t * KMAX + a]] += si;
-                        ms -= 2 * phase[i] * si + 2 * phase[j] * sj;
-                        spins[i] = (int8_t)-si;
-                        spins[j] = (int8_t)-sj;
-                    }
+            n_q += (meta >> 2) & 1;
+#ifdef SSE_CHECK
+            for (int a = 0; a < k; a++)
+                if (spins[row[1 + 2 * a]] == spins[row[2 + 2 * a]]) {
+                    fprintf(stderr, "SSE_CHECK: parallel bond under an operator at slot %d\n", p);
+                    exit(3);
                 }
-                ops[p] = op;
-                const double fm = ms, fm2 = fm * fm;
-                sum_ms += fm;
-                sum_ms2 += fm2;
-                sum_ms4 += fm2 * fm2;
+#endif
+            /* propagate through the off-diagonal bonds: one branch for a one-bond operator, none for a
+               multi-bond one (f = 1 flips the pair), whose bond pattern the predictor cannot guess */
+            if (k == 1) {
+                if (op & 1) {
+                    const int i = row[1], j = row[2];
+                    const int si = spins[i], sj = spins[j];
+                    wind[(meta >> 3) & 1] += si;
+                    ms -= 2 * (phase[i] * si + phase[j] * sj);
+                    spins[i] = (int8_t)-si;
+                    spins[j] = (int8_t)-sj;
+                }
             } else {
-                const double fm = ms, fm2 = fm * fm;
-                sum_ms += fm;
-                sum_ms2 += fm2;
-                sum_ms4 += fm2 * fm2;
+                for (int a = 0; a < k; a++) {
+                    const int f = (op >> a) & 1, sign = 1 - 2 * f;
+                    const int i = row[1 + 2 * a], j = row[2 + 2 * a];
+                    const int si = spins[i], sj = spins[j];
+                    wind[(meta >> (3 + a)) & 1] += f * si;
+                    ms -= f * 2 * (phase[i] * si + phase[j] * sj);
+                    spins[i] = (int8_t)(sign * si);
+                    spins[j] = (int8_t)(sign * sj);
+                }
+            }
+            ops[p] = op;
+            const double fm = ms, fm2 = fm * fm;
+            sum_ms += fm;
+            sum_ms2 += fm2;
+            sum_ms4 += fm2 * fm2;
+            if ((op & 7) == 0) {
                 if (next_double(rng) * beta_wtot < (double)(M - n + 1)) {
                     ops[p] = -1;
                     n--;
                     continue;
                 }
-                ops[p] = op;
             }
         } else {
             if (next_double(rng) * (double)(M - n) >= beta_wtot) continue;
             const double r = next_double(rng) * wtot;
+            int t;
             if (r < wJ_tot) {
                 t = (int)(r * inv_wJ);
                 if (t >= nJ) t = nJ - 1;
@@ -307,19 +362,18 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
                 t = nJ + (int)((r - wJ_tot) * inv_wQ);
                 if (t >= T) t = T - 1;
             }
-            const int k = term_k[t];
-            const int32_t *ts = tsite + t * KMAX * 2;
-            int ok = 1;
-            for (int a = 0; a < k; a++) ok &= spins[ts[2 * a]] != spins[ts[2 * a + 1]];
-            if (!ok) continue;
+            row = tt + (size_t)t * TTW;
+            const int k = row[0] & 3;
+            int blocked = 0;
+            for (int a = 0; a < k; a++) blocked |= spins[row[1 + 2 * a]] == spins[row[2 + 2 * a]];
+            if (blocked) continue;
             ops[p] = t << 3;
             n++;
         }
         /* append the bond vertices of the operator now at slot p */
-        const int k = term_k[t];
-        const int32_t *ts = tsite + t * KMAX * 2;
+        const int k = row[0] & 3;
         for (int a = 0; a < k; a++) {
-            const int i = ts[2 * a], j = ts[2 * a + 1];
+            const int i = row[1 + 2 * a], j = row[2 + 2 * a];
             const int leg = 4 * v;
             int prev = last[i];
             if (prev >= 0) {
@@ -347,12 +401,19 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
             links[last[i]] = f;
         }
     }
+#ifdef SSE_CHECK
+    if (memcmp(spins0, spins, n_sites) != 0) {
+        fprintf(stderr, "SSE_CHECK: world lines do not close in imaginary time\n");
+        exit(3);
+    }
+    free(spins0);
+#endif
     memcpy(s->rng, rng, sizeof rng);
     s->n = n;
     out->n_old = n_old;
     out->ms_end = ms;
-    out->group[0] = group[0];
-    out->group[1] = group[1];
+    out->group[0] = n_old - n_q;
+    out->group[1] = n_q;
     out->sum_ms = sum_ms;
     out->sum_ms2 = sum_ms2;
     out->sum_ms4 = sum_ms4;
@@ -362,46 +423,12 @@ static int diagonal_sweep(sse_t *restrict s, sweep_out_t *restrict out)
 }
 
 /* ------------------------------------------------------------------------------------------ loops */
+/* One loop update, the variant chosen by s->tracers (sse_loops.h). */
 static int loop_update(sse_t *restrict s, int n_vertices)
 {
-    int32_t *restrict links = s->links;
-    uint8_t *restrict vflip = s->vflip;
-    int8_t *restrict spins = s->spins;
-    const int32_t *restrict first = s->first;
-    uint64_t rng[4] = {s->rng[0], s->rng[1], s->rng[2], s->rng[3]};
-    const int n_legs = 4 * n_vertices;
-    int n_loops = 0;
-    for (int l0 = 0; l0 < n_legs; l0 += 2) {
-        if (links[l0] < 0) continue;
-        n_loops++;
-        int leg = l0;
-        if (next_double(rng) < 0.5) {
-            do {
-                vflip[leg >> 2] ^= 1;
-                const int nxt = links[leg ^ 1];
-                links[leg] = -2;
-                links[leg ^ 1] = -2;
-                leg = nxt;
-            } while (leg != l0);
-        } else {
-            do {
-                const int nxt = links[leg ^ 1];
-                links[leg] = -1;
-                links[leg ^ 1] = -1;
-                leg = nxt;
-            } while (leg != l0);
-        }
-    }
-    for (int i = 0; i < s->N; i++) {
-        const int f = first[i];
-        if (f < 0) {
-            if (next_double(rng) < 0.5) spins[i] = (int8_t)-spins[i];
-        } else if (links[f] == -2) {
-            spins[i] = (int8_t)-spins[i];
-        }
-    }
-    memcpy(s->rng, rng, sizeof rng);
-    return n_loops;
+    if (s->tracers == 1) return loops_single(s->links, s->vflip, n_vertices, s->spins, s->first, s->N, s->rng);
+    return loops_interleaved(s->links, 4L * s->vcap + 16 + 1024, s->vflip, n_vertices, s->spins, s->first,
+                             s->N, s->tracers, s->eager, s->window, s->max_ids, s->rng, &s->fragments);
 }
 
 /* ------------------------------------------------------------------------------------------ measurement */
@@ -473,19 +500,79 @@ static double cpu_seconds(void)
     return ts.tv_sec + 1e-9 * ts.tv_nsec;
 }
 
+/* Loop variant K[:E[:W[:I]]]: K tracers (1 = single tracer; 0 = chosen by size), E steps alone within
+   W KiB of the scan, at most I fragment ids per step (0: as many as the tail of links holds). */
+typedef struct {
+    int tracers, eager, window_kib, max_ids, auto_choice;
+    double best_step, best_sweep, best_loop, frag_per_loop; /* fastest round */
+} variant_t;
+
+/* The variant used for a vertex list of nv vertices when none is asked for (measured with --scaling of
+   benchmarks/c_compare.py): one tracer while the links array (16 bytes per vertex) fits the per-core
+   cache, interleaved tracers beyond. */
+static void auto_variant(int nv, variant_t *v)
+{
+    const int big = 16L * nv > AUTO_BYTES;
+    v->tracers = big ? AUTO_TRACERS : 1;
+    v->eager = big ? AUTO_EAGER : 0;
+    v->window_kib = big ? AUTO_WINDOW_KIB : 0;
+    v->max_ids = 0;
+}
+
+static int parse_variants(const char *text, variant_t *v, int max)
+{
+    static const long limit[4] = {MAX_TRACERS, 1L << 30, 1L << 20, 1L << 30};
+    int n = 0;
+    const char *c = text;
+    while (*c && n < max) {
+        long f[4] = {0, 0, 0, 0};
+        for (int a = 0; a < 4; a++) {
+            char *end;
+            f[a] = strtol(c, &end, 10);
+            if (end == c || f[a] < 0 || f[a] > limit[a]) return -1;
+            c = end;
+            if (*c != ':') break;
+            c++;
+        }
+        v[n] = (variant_t){(int)f[0], (int)f[1], (int)f[2], (int)f[3], f[0] == 0, 1e300, 1e300, 1e300, 0};
+        n++;
+        if (*c == ',') c++;
+        else if (*c) return -1;
+    }
+    return *c ? -1 : n;
+}
+
+static void use_variant(sse_t *s, const variant_t *v, int nv)
+{
+    variant_t u = *v;
+    if (v->auto_choice) auto_variant(nv, &u);
+    s->tracers = u.tracers;
+    s->eager = u.eager;
+    s->window = u.window_kib * 256; /* legs of 4 bytes */
+    s->max_ids = u.max_ids;
+}
+
 /* ------------------------------------------------------------------------------------------ main */
 int main(int argc, char **argv)
 {
-    if (argc != 8) {
-        fprintf(stderr, "usage: %s L beta J Q warmup_steps measured_steps seed\n", argv[0]);
+    if (argc < 8 || argc > 10) {
+        fprintf(stderr, "usage: %s L beta J Q warmup_steps measured_steps seed [variants [rounds]]\n"
+                        "  variants: comma-separated K[:E[:W[:I]]] (K tracers, E steps alone within W KiB of\n"
+                        "  the scan, at most I fragment ids; K = 0: chosen by size)\n",
+                argv[0]);
         return 1;
     }
     const int L = atoi(argv[1]);
     const double beta = atof(argv[2]), J = atof(argv[3]), Q = atof(argv[4]);
     const long warmup = atol(argv[5]), steps = atol(argv[6]);
     const uint64_t seed = strtoull(argv[7], NULL, 10);
-    if (L < 4 || (L & 1) || !(beta > 0) || J < 0 || Q < 0 || !(J > 0 || Q > 0) || warmup < 0 || steps < 1) {
-        fprintf(stderr, "need even L >= 4, beta > 0, J, Q >= 0 (not both 0), warmup >= 0, steps >= 1\n");
+    variant_t var[16];
+    const int n_var = parse_variants(argc >= 9 ? argv[8] : "0", var, 16);
+    const long rounds = argc >= 10 ? atol(argv[9]) : 1;
+    if (L < 4 || (L & 1) || !(beta > 0) || J < 0 || Q < 0 || !(J > 0 || Q > 0) || warmup < 0 || steps < 1
+        || n_var < 1 || rounds < 1) {
+        fprintf(stderr, "need even L >= 4, beta > 0, J, Q >= 0 (not both 0), warmup >= 0, steps >= 1, "
+                        "up to 16 variants K[:E[:W[:I]]] with 0 <= K <= %d, rounds >= 1\n", MAX_TRACERS);
         return 1;
     }
     static sse_t s;
@@ -494,57 +581,92 @@ int main(int argc, char **argv)
 
     for (long w = 0; w < warmup; w++) {
         const int nv = diagonal_sweep(&s, &o);
+        use_variant(&s, &var[0], nv);
         loop_update(&s, nv);
         if (3 * (s.M - s.n) < s.n) grow_cutoff(&s);
     }
 
-    const long n_bins = steps >= 40 ? 20 : steps;
-    const long per_bin = steps / n_bins;
+    /* measured steps: `rounds` rounds, each `steps` steps of every variant in turn (the same Markov chain
+       whatever the variant, so the chain simply continues); per variant the fastest round counts */
+    const long total = rounds * n_var * steps;
+    const long n_bins = total >= 40 ? 20 : total;
+    const long per_bin = total / n_bins;
     double *bin_n = xcalloc(n_bins, sizeof(double));
     double acc[A_SIZE] = {0};
-    double sum_loops = 0.0, t_sweep = 0.0, t_loop = 0.0, min_sweep = 1e300, min_loop = 1e300;
-    const double c0 = cpu_seconds();
-    for (long st = 0; st < steps; st++) {
-        const double a0 = cpu_seconds();
-        const int nv = diagonal_sweep(&s, &o);
-        const double a1 = cpu_seconds();
-        sum_loops += loop_update(&s, nv);
-        const double a2 = cpu_seconds();
-        t_sweep += a1 - a0;
-        t_loop += a2 - a1;
-        if (a1 - a0 < min_sweep) min_sweep = a1 - a0;
-        if (a2 - a1 < min_loop) min_loop = a2 - a1;
-        measure(&s, &o, acc);
-        if (st / per_bin < n_bins) bin_n[st / per_bin] += o.n_old;
-    }
-    const double cpu = cpu_seconds() - c0;
+    double sum_loops = 0.0, sum_nv = 0.0, cpu = 0.0;
+    long st = 0;
+    for (long r = 0; r < rounds; r++)
+        for (int k = 0; k < n_var; k++) {
+            variant_t *v = &var[k];
+            const long frag0 = s.fragments;
+            double t_sweep = 0.0, t_loop = 0.0, loops = 0.0;
+            for (long i = 0; i < steps; i++, st++) {
+                const double a0 = cpu_seconds();
+                const int nv = diagonal_sweep(&s, &o);
+                use_variant(&s, v, nv);
+                const double a1 = cpu_seconds();
+                loops += loop_update(&s, nv);
+                const double a2 = cpu_seconds();
+                sum_nv += nv;
+                t_sweep += a1 - a0;
+                t_loop += a2 - a1;
+                measure(&s, &o, acc);
+                if (st / per_bin < n_bins) bin_n[st / per_bin] += o.n_old;
+            }
+            sum_loops += loops;
+            cpu += t_sweep + t_loop;
+            if (t_sweep + t_loop < v->best_step) {
+                v->best_step = t_sweep + t_loop;
+                v->best_sweep = t_sweep;
+                v->best_loop = t_loop;
+            }
+            if (v->auto_choice) { /* report what was chosen */
+                v->tracers = s.tracers;
+                v->eager = s.eager;
+                v->window_kib = s.window / 256;
+            }
+            v->frag_per_loop = s.tracers > 1 ? (s.fragments - frag0) / (loops > 1 ? loops : 1) : 1.0;
+        }
 
-    const long used = n_bins * per_bin;
-    double mean = 0.0, var = 0.0;
+    double mean = 0.0, var_n = 0.0;
     for (long b = 0; b < n_bins; b++) mean += bin_n[b] / per_bin;
     mean /= n_bins;
     for (long b = 0; b < n_bins; b++) {
         const double d = bin_n[b] / per_bin - mean;
-        var += d * d;
+        var_n += d * d;
     }
-    const double err = n_bins > 1 ? sqrt(var / (n_bins - 1) / n_bins) : 0.0;
+    const double err = n_bins > 1 ? sqrt(var_n / (n_bins - 1) / n_bins) : 0.0;
     const int N = s.N;
     const double e_const = 0.25 * J * s.nJ / N;
-    const double ns = 1e9 / ((double)steps * s.M);
+    const double nv_mean = sum_nv / total, legs = 4.0 * nv_mean;
+    /* bytes per slot of the configuration and work arrays as allocated: ops, links and vflip (room for
+       KMAX vertices per slot when there are multi-bond terms; fragment ids live in its tail) */
+    const double bytes = 4.0 * s.M + 17.0 * s.vcap + 4.0 * (16 + 1024);
+    const double per_slot = 1e9 / ((double)steps * s.M);
     printf("{\"implementation\": \"c\", \"L\": %d, \"N\": %d, \"beta\": %.17g, \"J\": %.17g, \"Q\": %.17g, "
-           "\"warmup\": %ld, \"steps\": %ld, \"seed\": %llu, \"cutoff\": %d, \"final_n_ops\": %d, "
-           "\"mean_n\": %.10g, \"mean_n_err\": %.6g, \"energy_per_site\": %.10g, \"energy_per_site_err\": %.6g, "
-           "\"bins\": %ld, \"steps_in_bins\": %ld, "
-           "\"cpu_seconds\": %.6g, \"cpu_ns_per_slot_per_step\": %.6g, \"cpu_ns_per_op_per_step\": %.6g, "
-           "\"sweep_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_slot\": %.6g, "
-           "\"sweep_cpu_ns_per_slot_fastest_step\": %.6g, \"loop_cpu_ns_per_slot_fastest_step\": %.6g, "
-           "\"mean_loops\": %.6g, "
-           "\"m_stag2_time_avg\": %.8g, \"s_q_next\": %.8g, \"w2\": %.8g, \"mz2\": %.8g}\n",
-           L, N, beta, J, Q, warmup, steps, (unsigned long long)seed, s.M, s.n, mean, err,
-           e_const - mean / (beta * N), err / (beta * N), n_bins, used,
-           cpu, cpu * ns, cpu * 1e9 / ((double)steps * (mean > 1 ? mean : 1)),
-           t_sweep * ns, t_loop * ns, min_sweep * 1e9 / s.M, min_loop * 1e9 / s.M, sum_loops / steps,
-           acc[A_MS2] / steps / ((double)N * N), acc[A_SQN] / steps,
-           (acc[A_W2X] + acc[A_W2Y]) / steps, acc[A_MZ2] / steps);
+           "\"warmup\": %ld, \"steps\": %ld, \"rounds\": %ld, \"seed\": %llu, \"cutoff\": %d, "
+           "\"final_n_ops\": %d, \"mean_n\": %.10g, \"mean_n_err\": %.6g, "
+           "\"energy_per_site\": %.10g, \"energy_per_site_err\": %.6g, \"bins\": %ld, \"steps_in_bins\": %ld, "
+           "\"mean_vertices\": %.8g, \"mean_loops\": %.8g, \"bytes_per_slot\": %.4g, "
+           "\"m_stag2_time_avg\": %.8g, \"s_q_next\": %.8g, \"w2\": %.8g, \"mz2\": %.8g, "
+           "\"cpu_seconds\": %.6g, \"variants\": [",
+           L, N, beta, J, Q, warmup, steps, rounds, (unsigned long long)seed, s.M, s.n, mean, err,
+           e_const - mean / (beta * N), err / (beta * N), n_bins, n_bins * per_bin,
+           nv_mean, sum_loops / total, bytes / s.M,
+           acc[A_MS2] / total / ((double)N * N), acc[A_SQN] / total,
+           (acc[A_W2X] + acc[A_W2Y]) / total, acc[A_MZ2] / total, cpu);
+    for (int k = 0; k < n_var; k++) {
+        const variant_t *v = &var[k];
+        printf("%s{\"tracers\": %d, \"eager\": %d, \"window_kib\": %d, \"max_ids\": %d, \"auto\": %s, "
+               "\"cpu_ns_per_slot_per_step\": %.6g, "
+               "\"cpu_ns_per_op_per_step\": %.6g, \"cpu_ms_per_step\": %.6g, "
+               "\"sweep_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_slot\": %.6g, \"loop_cpu_ns_per_leg\": %.6g, "
+               "\"fragments_per_loop\": %.6g}",
+               k ? ", " : "", v->tracers, v->eager, v->window_kib, v->max_ids, v->auto_choice ? "true" : "false",
+               v->best_step * per_slot, v->best_step * 1e9 / steps / (mean > 1 ? mean : 1),
+               v->best_step * 1e3 / steps, v->best_sweep * per_slot, v->best_loop * per_slot,
+               v->best_loop * 1e9 / steps / (legs > 1 ? legs : 1), v->frag_per_loop);
+    }
+    printf("]}\n");
     return 0;
 }
