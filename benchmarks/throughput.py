@@ -1,7 +1,7 @@
 """Engine throughput: ns per operator slot per Monte Carlo step, steps/s, memory per slot, start-up.
 
-Usage:  python benchmarks/throughput.py [--case square|jq2|jq2_su3|jq2_su4|jq2_colour2|all] [--L 32]
-                                       [--beta 32] [--steps 200] [--repeats 1]
+Usage:  python benchmarks/throughput.py [--case square|jq2|jq2_su3|jq2_su4|jq2_colour2|xxz|xxz-field|all]
+                                       [--L 32] [--beta 32] [--steps 200] [--repeats 1]
         python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
 
 ``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
@@ -13,7 +13,8 @@ subprocesses: once with an empty numba cache directory (cold: every kernel compi
 same directory (cached).  Canonical cases: square-lattice Heisenberg 32x32 at beta = 32, and J-Q2 32x32
 at beta = 32 with J/Q = 0.05.  SU(N) cases (benchmarks/_cases.py): the SU(3) and SU(4) J-Q2 models with
 the same couplings, and the S = 1/2 J-Q2 model run by the colour kind; each reports ``ratio_to_jq2``, its
-CPU ns per slot per step over that of ``jq2`` (when ``jq2`` is measured in the same call).
+CPU ns per slot per step over that of ``jq2`` (when ``jq2`` is measured in the same call).  Directed
+loops: XXZ 32x32 at beta = 32 with delta = 1, h = 0 and delta = 0.5, h = 1.
 """
 
 from __future__ import annotations
@@ -27,7 +28,7 @@ import tempfile
 import time
 
 import numpy as np
-from _cases import CASES, COLOUR_CASES, add_case_arguments, case_model, colour_case_model, selected_cases
+from _cases import CASES, COLOUR_CASES, XXZ_CASES, add_case_arguments, any_case_model, selected_cases
 
 from qmc.chain.simulation import Simulation
 from qmc.engine.rng import stream_seed
@@ -36,11 +37,9 @@ __all__ = ["measure_case", "main"]
 
 
 def make_model(case: str, L: int):
-    if case in COLOUR_CASES:
-        return colour_case_model(L, *COLOUR_CASES[case])
-    if case not in CASES:
+    if case not in CASES and case not in COLOUR_CASES and case not in XXZ_CASES:
         raise SystemExit(f"unknown case {case!r}")
-    return case_model(L, *CASES[case])
+    return any_case_model(case, L)
 
 
 def measure_case(case: str, L: int, beta: float, steps: int, warmup: int, repeats: int = 1) -> dict:
@@ -98,14 +97,14 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
 
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    add_case_arguments(p, colour_cases=True)
+    add_case_arguments(p, colour_cases=True, directed=True)
     p.add_argument("--repeats", type=int, default=1,
                    help="independent chains per case; the minimum time is reported")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="measure these L at beta = L (linearity in N beta) instead of one size")
     a = p.parse_args()
     if a.scaling:
-        for case in selected_cases(a.case, colour_cases=True):
+        for case in selected_cases(a.case, colour_cases=True, directed=True):
             for L in (int(x) for x in a.scaling.split(",")):
                 r = measure_case(case, L, float(L), a.steps, a.warmup, a.repeats)
                 r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
@@ -118,7 +117,7 @@ def main() -> None:
     print(json.dumps({"startup_cold_seconds": cold, "startup_cold_process_seconds": cold_whole,
                       "startup_cached_seconds": warm, "startup_cached_process_seconds": warm_whole}))
     reference = None
-    for case in selected_cases(a.case, colour_cases=True):
+    for case in selected_cases(a.case, colour_cases=True, directed=True):
         r = measure_case(case, a.L, a.beta, a.steps, a.warmup, a.repeats)
         if case == "jq2":
             reference = r["cpu_ns_per_slot_per_step"]

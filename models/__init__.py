@@ -14,13 +14,13 @@ from .errors import ModelError
 from .lattice import BOUNDARIES, LATTICE_KINDS, Lattice, build_lattice, tile_lattice
 from .named import NAMED_MODELS, bilayer, columnar_dimer, heisenberg, jq2, jq3, ladder
 from .shapes import SHAPE_LATTICES, SHAPES, parse_shape, place_shape, rotations, translate_shape
-from .terms import HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term
+from .terms import FieldTerm, HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term, XXZTerm
 from .unit_cell import Site, UnitCell
 
 __all__ = [
-    "BOUNDARIES", "CompiledModel", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice", "MAX_COLOURS",
-    "ModelError", "NAMED_MODELS", "ProjectorProductTerm", "ProjectorTerm", "SHAPES", "SHAPE_LATTICES", "Site",
-    "Term", "UnitCell", "bilayer",
+    "BOUNDARIES", "CompiledModel", "FieldTerm", "HeisenbergTerm", "LATTICES", "LATTICE_KINDS", "Lattice",
+    "MAX_COLOURS", "ModelError", "NAMED_MODELS", "ProjectorProductTerm", "ProjectorTerm", "SHAPES",
+    "SHAPE_LATTICES", "Site", "Term", "UnitCell", "bilayer",
     "build_lattice", "columnar_dimer", "compile_model", "group_names", "heisenberg", "jq2", "jq3",
-    "ladder", "parse_shape", "place_shape", "rotations", "tile_lattice", "translate_shape",
+    "ladder", "parse_shape", "place_shape", "rotations", "tile_lattice", "translate_shape", "XXZTerm",
 ]

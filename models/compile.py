@@ -8,14 +8,23 @@ Every term entry becomes one *group*, of one vertex kind (``group_kind``, see
 * ``ProjectorTerm(bonds, J)``: each bond of the class gives a k = 1 term with ``C_t = J``; constant 0;
 * ``ProjectorProductTerm(shape, Q)``: each placement gives a k-bond term with ``C_t = Q``; constant 0.
 
-With ``colours = 2`` (S = 1/2 spins, the default) every group is of the ``"projector"`` kind.  With
-``colours = N > 2`` (SU(N): N colours per site, fundamental representation on sublattice A, conjugate on B)
-every group is of the ``"colour"`` kind; ``P_ij`` is then the SU(N) singlet projector, and a Heisenberg term
-(defined through S = 1/2 spin operators) is refused with a pointer to ``ProjectorTerm``.
+* ``XXZTerm(bonds, J, delta)``: each bond a k = 1 term of the ``"directed"`` kind with ``C_t = J`` and its
+  row (J, delta, h_i, h_j, C_b) in ``term_xxz``; the group constant is sum_b C_b (:mod:`models.directed`);
+* ``FieldTerm(h, staggered)``: no operators; its field is folded into the directed bonds touching each site
+  (``group_field`` records the shares).  In a model with a field, ``heisenberg`` terms become directed
+  bonds with delta = 1 so that every site can carry its share.
+
+With ``colours = 2`` (S = 1/2 spins, the default) the groups are of the ``"projector"`` kind, except those of
+the ``"directed"`` kind above.  With ``colours = N > 2`` (SU(N): N colours per site, fundamental
+representation on sublattice A, conjugate on B) every group is of the ``"colour"`` kind; ``P_ij`` is then the
+SU(N) singlet projector, and a Heisenberg, XXZ or field term (defined through S = 1/2 spin operators) is
+refused (a Heisenberg term with a pointer to ``ProjectorTerm``).
 
 Sign-problem guard (the decomposition ``H = E_const - sum_t C_t prod P`` is sign-free when every
 ``C_t > 0`` and every bond joins opposite sublattices): J must be > 0 and Q >= 0; a zero coupling drops
-the term's operators but keeps its group (constant 0).  Any violation raises :class:`ModelError` naming
+the term's operators but keeps its group (constant 0).  An ``xxz`` J may be negative (ferromagnetic in
+the xy plane) on any bonds; then :func:`models.directed.check_gauge` checks that all hops can be made
+positive.  Any violation raises :class:`ModelError` naming
 the term (index and group name) and, for a bond, its sites.
 
 Bonds are deduplicated into ``bond_sites`` by (site0, site1, displacement), in order of first use, so a
@@ -30,16 +39,17 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .compiled import KIND_COLOUR, KIND_PROJECTOR, CompiledModel
+from . import directed
+from .compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, CompiledModel
 from .errors import ModelError
 from .lattice import Lattice
 from .shapes import parse_shape, place_shape
-from .terms import HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term
+from .terms import FieldTerm, HeisenbergTerm, ProjectorProductTerm, ProjectorTerm, Term, XXZTerm
 
 __all__ = ["compile_model", "group_names", "MAX_COLOURS"]
 
 _MAX_NAME = 64  # group names are stored as 64-byte strings (CompiledModel.to_arrays)
-_TERMS = (HeisenbergTerm, ProjectorTerm, ProjectorProductTerm)
+_TERMS = (HeisenbergTerm, ProjectorTerm, ProjectorProductTerm, XXZTerm, FieldTerm)
 MAX_COLOURS = 100
 """The largest number of colours per site (the engine stores a colour, plus one, in a byte)."""
 
@@ -62,19 +72,30 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2) -> 
     names = group_names(terms)
     sites_parts, disp_parts, couplings, groups, k_per_term = [], [], [], [], []
     constants = np.zeros(len(terms))
+    fielded = any(isinstance(term, FieldTerm) for term in terms)
+    kinds = [_kind(term, fielded, colours) for term in terms]
+    site_field = np.zeros((len(terms), lattice.n_sites))
+    deltas, hops = [], []
     for t, term in enumerate(terms):
         label = f"term {t} ({names[t]!r})"
         if colours > 2 and isinstance(term, HeisenbergTerm):
             raise ModelError(f"{label}: a heisenberg term (S_i.S_j of S = 1/2 spins) needs 2 colours, "
                              f"not {colours}; for SU({colours}) write it as a projector term, -J sum P_ij "
                              "(for two colours that is J S_i.S_j - J/4)", f"terms[{t}].type")
+        if colours > 2 and isinstance(term, XXZTerm | FieldTerm):
+            kind = "an xxz" if isinstance(term, XXZTerm) else "a field"
+            raise ModelError(f"{label}: {kind} term (S = 1/2 spin operators) needs 2 colours, not {colours}",
+                             f"terms[{t}].type")
+        if isinstance(term, FieldTerm):
+            site_field[t] = _field(lattice, term, t)
+            continue
         try:
             sites, disp, coupling = _expand(lattice, term)
         except ModelError as err:
             raise ModelError(f"{label}: {err.message}", err.where).within(f"terms[{t}]") from None
         sub = lattice.sublattice
         same = np.flatnonzero(np.any(sub[sites[..., 0]] == sub[sites[..., 1]], axis=1))
-        if same.size:
+        if same.size and coupling >= 0.0:
             i, j = sites[same[0]][np.argmax(sub[sites[same[0], :, 0]] == sub[sites[same[0], :, 1]])]
             raise ModelError(f"{label}: bond ({i}, {j}) joins two sites of the same sublattice; such a term "
                              "has a sign problem", f"terms[{t}].{_bond_field(term)}")
@@ -83,8 +104,10 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2) -> 
         if sites.shape[0] == 0:
             raise ModelError(f"{label}: no bonds of this term fit on the {_describe(lattice)} lattice",
                              f"terms[{t}].{_bond_field(term)}")
-        if isinstance(term, HeisenbergTerm):
+        if isinstance(term, HeisenbergTerm) and kinds[t] == KIND_PROJECTOR:
             constants[t] = 0.25 * coupling * sites.shape[0]
+        deltas.append(np.full(sites.shape[0], getattr(term, "delta", 1.0)))
+        hops.append((sites, coupling > 0.0, label, f"terms[{t}].coupling"))
         sites_parts.append(sites.reshape(-1, 2))
         disp_parts.append(disp.reshape(sites.shape[0] * sites.shape[1], lattice.n_dirs))
         couplings.append(np.full(sites.shape[0], coupling))
@@ -96,6 +119,11 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2) -> 
     all_sites, all_disp = np.concatenate(sites_parts), np.concatenate(disp_parts)
     first, bond_of = _first_use_ids(all_sites, all_disp, lattice.n_sites)
     k = np.concatenate(k_per_term)
+    term_group = np.concatenate(groups)
+    group_kind = np.array(kinds, dtype=np.int8)
+    term_xxz, group_field = _directed_tables(lattice, terms, names, constants, site_field, group_kind,
+                                             term_group, np.concatenate(couplings), np.concatenate(deltas),
+                                             all_sites, k, hops)
     dir_lengths = np.ascontiguousarray(lattice.dir_lengths, dtype=np.float64)
     return CompiledModel(
         n_sites=lattice.n_sites,
@@ -108,11 +136,13 @@ def compile_model(lattice: Lattice, terms: Sequence[Term], colours: int = 2) -> 
         term_start=np.concatenate([[0], np.cumsum(k)]).astype(np.int32),
         term_bonds=bond_of.astype(np.int32),
         term_coupling=np.concatenate(couplings),
-        term_group=np.concatenate(groups),
+        term_group=term_group,
         group_names=tuple(names),
         group_constant=constants,
-        group_kind=np.full(len(terms), KIND_PROJECTOR if colours == 2 else KIND_COLOUR, dtype=np.int8),
+        group_kind=group_kind,
         n_colours=colours,
+        term_xxz=term_xxz,
+        group_field=group_field,
         vbs_bonds=np.ascontiguousarray(lattice.vbs_bonds, dtype=np.int32),
         vbs_dir=np.ascontiguousarray(lattice.vbs_dir, dtype=np.int8),
         vbs_phase=np.ascontiguousarray(lattice.vbs_phase, dtype=np.int8),
@@ -132,11 +162,13 @@ def group_names(terms: Sequence[Term]) -> list[str]:
     raw = []
     for t, term in enumerate(terms):
         if not isinstance(term, _TERMS):
-            raise ModelError(f"expected a HeisenbergTerm, ProjectorTerm or ProjectorProductTerm, got "
-                             f"{type(term).__name__}", f"terms[{t}]")
+            raise ModelError(f"expected a HeisenbergTerm, ProjectorTerm, ProjectorProductTerm, XXZTerm or "
+                             f"FieldTerm, got {type(term).__name__}", f"terms[{t}]")
         if term.name is not None:
             raw.append(term.name)
-        elif isinstance(term, HeisenbergTerm | ProjectorTerm):
+        elif isinstance(term, FieldTerm):
+            raw.append("field_stag" if term.staggered is True else "field")
+        elif isinstance(term, HeisenbergTerm | ProjectorTerm | XXZTerm):
             raw.append(term.bonds if isinstance(term.bonds, str) else "bonds")
         else:
             try:
@@ -161,10 +193,14 @@ def group_names(terms: Sequence[Term]) -> list[str]:
 
 def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float]:
     """(sites int[P, k, 2], disp float[P, k, D], coupling) of one validated term."""
-    if isinstance(term, HeisenbergTerm | ProjectorTerm):
+    if isinstance(term, HeisenbergTerm | ProjectorTerm | XXZTerm):
         if not isinstance(term.bonds, str):
             raise ModelError(f"bonds must be the name of a bond class, got {term.bonds!r}", "bonds")
-        coupling = _coupling(term.coupling, strict=isinstance(term, HeisenbergTerm), symbol="J")
+        if isinstance(term, XXZTerm):
+            coupling = _real(term.coupling, "coupling")
+            _real(term.delta, "delta")
+        else:
+            coupling = _coupling(term.coupling, strict=isinstance(term, HeisenbergTerm), symbol="J")
         try:
             sites, disp = lattice.bonds(term.bonds)
         except ModelError as err:
@@ -175,6 +211,57 @@ def _expand(lattice: Lattice, term: Term) -> tuple[np.ndarray, np.ndarray, float
         raise ModelError(f"symmetrize must be true or false, got {term.symmetrize!r}", "symmetrize")
     sites, disp = place_shape(lattice, term.shape, bool(term.symmetrize))
     return sites, disp, coupling
+
+
+def _real(value, where: str) -> float:
+    """A finite real number of either sign."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
+        raise ModelError(f"{where} must be a finite real number, got {value!r}", where)
+    return float(value)
+
+
+def _field(lattice: Lattice, term: FieldTerm, t: int) -> np.ndarray:
+    """h (or h phi_i) on every site for a validated field term."""
+    h = _real(term.coupling, f"terms[{t}].coupling")
+    if not isinstance(term.staggered, bool | np.bool_):
+        raise ModelError(f"staggered must be true or false, got {term.staggered!r}", f"terms[{t}].staggered")
+    phi = np.where(lattice.sublattice == 0, 1.0, -1.0)
+    return h * phi if term.staggered else np.full(lattice.n_sites, h)
+
+
+def _directed_tables(lattice: Lattice, terms: Sequence[Term], names: list[str], constants: np.ndarray,
+                     site_field: np.ndarray, group_kind: np.ndarray, term_group: np.ndarray,
+                     coupling: np.ndarray, delta: np.ndarray, sites: np.ndarray, k: np.ndarray,
+                     hops: list) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """term_xxz and group_field of a model with directed terms (None, None without); adds each directed
+    group's sum of C_b to ``constants`` and checks the field's bonds and the hops' gauge."""
+    if not np.any(group_kind == KIND_DIRECTED):
+        return None, None
+    n = lattice.n_sites
+    if any(c < 0.0 for c in coupling[group_kind[term_group] == KIND_DIRECTED]):
+        directed.check_gauge(n, hops)
+    rows = np.flatnonzero(group_kind[term_group] == KIND_DIRECTED)
+    start = np.concatenate([[0], np.cumsum(k)])[rows]
+    bond_sites = sites[start]
+    total = site_field.sum(axis=0)
+    lonely = directed.unfolded_sites(n, bond_sites, total)
+    if lonely.size:
+        t = int(np.flatnonzero(site_field[:, lonely[0]])[0])
+        raise ModelError(f"term {t} ({names[t]!r}): site {int(lonely[0])} has a field but no xxz or "
+                         "heisenberg bond to carry it; the directed loops fold the field into those bonds",
+                         f"terms[{t}].coupling")
+    h_i, h_j = directed.fold_fields(n, bond_sites, total)
+    J, D = coupling[rows], delta[rows]
+    C = directed.bond_constant(J, D, h_i, h_j)
+    term_xxz = np.zeros((coupling.size, 5))
+    term_xxz[rows] = np.column_stack([J, D, h_i, h_j, C])
+    group_field = -site_field
+    for g in np.unique(term_group[rows]):
+        mine = np.flatnonzero(term_group[rows] == g)  # positions in rows
+        constants[g] += float(np.sum(C[mine]))
+        np.add.at(group_field[g], bond_sites[mine, 0], h_i[mine])
+        np.add.at(group_field[g], bond_sites[mine, 1], h_j[mine])
+    return term_xxz, group_field
 
 
 def _coupling(value, strict: bool, symbol: str = "Q") -> float:
@@ -211,6 +298,17 @@ def _first_use_ids(sites: np.ndarray, disp: np.ndarray, n_sites: int) -> tuple[n
     ids = np.empty(m, dtype=np.int64)
     ids[order] = rank[np.cumsum(new) - 1]
     return np.sort(first), ids
+
+
+def _kind(term: Term, fielded: bool, colours: int) -> int:
+    """The vertex kind of a term's operators: SU(N) colours for N > 2 colours; directed loops for xxz and
+    field terms, and for heisenberg terms of a model with a field (which is folded into their bonds);
+    singlet projectors otherwise."""
+    if colours > 2:
+        return KIND_COLOUR
+    if isinstance(term, XXZTerm | FieldTerm) or (fielded and isinstance(term, HeisenbergTerm)):
+        return KIND_DIRECTED
+    return KIND_PROJECTOR
 
 
 def _bond_field(term: Term) -> str:

@@ -38,7 +38,15 @@ Conventions (all arrays are C-contiguous numpy arrays):
                      (0, ``"projector"``: the S = 1/2 singlet projectors above; 1, ``"colour"``: the
                      SU(N) projectors, N = ``n_colours`` colours per site).  The engine picks its update
                      from the kinds present (see :mod:`qmc.engine`); models stored before kinds existed
-                     are read as all ``"projector"`` (and stored without ``n_colours`` as 2 colours).
+                     are read as all ``"projector"`` (and stored without ``n_colours`` as 2 colours);
+                     2, ``"directed"``: XXZ bonds with folded fields, and the field terms (groups without
+                     operators), see :mod:`models.directed`.
+``term_xxz``         float64[T, 5], per directed term (J, delta, h_i, h_j, C_b) (columns
+                     :data:`models.directed.XXZ_COLUMNS`); zeros for other terms.  A directed term's
+                     ``term_coupling`` is its J.
+``group_field``      float64[G, N], f_{g,i}: group g's energy contains -sum_i f_{g,i} S^z_i that its operator
+                     count does not show apart (folded field shares: +share; a field term: -h_i); zeros for
+                     models without fields.  term_energy/g = (const_g - <n_g>/beta + sum_i f_{g,i} <S^z_i>)/N.
 ``vbs_bonds``        int32[nv, 2], nearest-neighbour bonds used for the columnar dimer order parameter.
 ``vbs_dir``          int8[nv], 0 for an x-bond, 1 for a y-bond.
 ``vbs_phase``        int8[nv], (-1)^x for x-bonds and (-1)^y for y-bonds (x, y of site0).
@@ -53,12 +61,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["CompiledModel", "VERTEX_KINDS", "KIND_PROJECTOR", "KIND_COLOUR"]
+from .directed import diagonal_weights
 
-VERTEX_KINDS = ("projector", "colour")
+__all__ = ["CompiledModel", "VERTEX_KINDS", "KIND_PROJECTOR", "KIND_COLOUR", "KIND_DIRECTED"]
+
+VERTEX_KINDS = ("projector", "colour", "directed")
 """Names of the vertex kinds; a group's kind code is the position of its name here."""
 KIND_PROJECTOR = VERTEX_KINDS.index("projector")
 KIND_COLOUR = VERTEX_KINDS.index("colour")
+KIND_DIRECTED = VERTEX_KINDS.index("directed")
 
 
 @dataclass(frozen=True)
@@ -87,6 +98,8 @@ class CompiledModel:
     lattice_kind: str = "explicit"
     group_kind: np.ndarray | None = None
     n_colours: int = 2
+    term_xxz: np.ndarray | None = None
+    group_field: np.ndarray | None = None
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -97,9 +110,17 @@ class CompiledModel:
         if kind.shape != (len(self.group_names),) or np.any((kind < 0) | (kind >= len(VERTEX_KINDS))):
             raise ValueError(f"group_kind must hold one code of {VERTEX_KINDS} per term group")
         object.__setattr__(self, "group_kind", kind)
-        if int(self.n_colours) < 2 or (self.n_colours != 2 and np.any(kind == KIND_PROJECTOR)):
-            raise ValueError("n_colours must be at least 2, and 2 when a group is of the projector kind")
+        if int(self.n_colours) < 2 or (self.n_colours != 2 and np.any(kind != KIND_COLOUR)):
+            raise ValueError("n_colours must be at least 2, and 2 when a group is of the projector or "
+                             "directed kind")
         object.__setattr__(self, "n_colours", int(self.n_colours))
+        for name, shape in (("term_xxz", (self.n_terms, 5)), ("group_field", (len(self.group_names),
+                                                                                self.n_sites))):
+            value = getattr(self, name)
+            value = np.zeros(shape) if value is None else np.ascontiguousarray(value, dtype=np.float64)
+            if value.shape != shape:
+                raise ValueError(f"{name} must have shape {shape}, got {value.shape}")
+            object.__setattr__(self, name, value)
 
     @property
     def n_terms(self) -> int:
@@ -118,9 +139,14 @@ class CompiledModel:
         """w_t, the largest SSE weight of one operator of each term (energy units): the diagonal update draws
         terms with probability w_t / sum(w).  Projector kind: w_t = C_t / 2^{k_t} (k_t bonds of term t; an
         operator is any of its 2^k diagonal/off-diagonal patterns, each with matrix element C_t / 2^k).
-        Colour kind: w_t = C_t / N^{k_t} (every bond vertex, diagonal or not, has <c c|P|a a> = 1/N)."""
+        Colour kind: w_t = C_t / N^{k_t} (every bond vertex, diagonal or not, has <c c|P|a a> = 1/N).
+        Directed kind: w_t = max_q W_t(q), the largest diagonal weight (:mod:`models.directed`)."""
         k = np.diff(np.asarray(self.term_start)).astype(np.int64)  # one formula per vertex kind
-        return np.asarray(self.term_coupling, dtype=np.float64) / float(self.n_colours) ** k
+        w = np.asarray(self.term_coupling, dtype=np.float64) / float(self.n_colours) ** k
+        directed = self.group_kind[np.asarray(self.term_group)] == KIND_DIRECTED
+        if np.any(directed):
+            w[directed] = np.max(diagonal_weights(*self.term_xxz[directed].T), axis=-1)
+        return w
 
     @property
     def energy_constant(self) -> float:

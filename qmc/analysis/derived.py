@@ -10,6 +10,8 @@ Hamiltonian, temperature T = 1/beta):
     xi_over_L     = corr_length / L
     binder_vbs    = <|D|^4> / (<D_x^2> + <D_y^2>)^2   from vbs4, vbs_x2, vbs_y2
     stiffness_L   = rho_s L                           from stiffness
+    chi_uniform   = beta N (<m^2> - <m>^2)            from m_uniform2, magnetization (models with directed
+                                                      loops; needs beta)
 
 (standard definitions, common practice, no source).  ``corr_length`` is NaN where
 ``S(Q) < S(Q + 2 pi/L)``.
@@ -37,6 +39,7 @@ __all__ = [
     "DerivedEstimate",
     "binder_stag",
     "binder_vbs",
+    "chi_uniform_connected",
     "corr_length",
     "derived_estimates",
     "derived_observables",
@@ -81,6 +84,11 @@ def stiffness_L(stiffness: Num, L: float) -> Num:
     return stiffness * L
 
 
+def chi_uniform_connected(m_uniform2: Num, magnetization: Num, N: float, beta: float) -> Num:
+    """beta (<M^2> - <M>^2) / N from <(M/N)^2> and <M/N> (M = sum_i S^z_i)."""
+    return beta * N * (m_uniform2 - magnetization**2)
+
+
 DERIVED_INPUTS: dict[str, tuple[str, ...]] = {
     "specific_heat": ("n_ops", "n_ops_sq"),
     "binder_stag": ("m_stag4", "m_stag2"),
@@ -88,11 +96,15 @@ DERIVED_INPUTS: dict[str, tuple[str, ...]] = {
     "xi_over_L": ("s_q", "s_q_shifted"),
     "binder_vbs": ("vbs4", "vbs_x2", "vbs_y2"),
     "stiffness_L": ("stiffness",),
+    "chi_uniform": ("m_uniform2", "magnetization"),
 }
 """Stored bin observables needed by each derived quantity."""
 
 
-def _function(name: str, n_sites: int, L: float) -> Callable[..., np.ndarray]:
+_NEEDS_BETA = ("chi_uniform",)
+
+
+def _function(name: str, n_sites: int, L: float, beta: float | None) -> Callable[..., np.ndarray]:
     table: dict[str, Callable[..., np.ndarray]] = {
         "specific_heat": lambda a, b: specific_heat(a, b, n_sites),
         "binder_stag": binder_stag,
@@ -100,6 +112,7 @@ def _function(name: str, n_sites: int, L: float) -> Callable[..., np.ndarray]:
         "xi_over_L": lambda a, b: xi_over_L(a, b, L),
         "binder_vbs": binder_vbs,
         "stiffness_L": lambda a: stiffness_L(a, L),
+        "chi_uniform": lambda a, b: chi_uniform_connected(a, b, n_sites, beta),
     }
     return table[name]
 
@@ -116,9 +129,11 @@ class DerivedEstimate(NamedTuple):
 
 
 def derived_estimates(
-    bins: Mapping[str, np.ndarray], n_sites: int, linear_size: float, names: tuple[str, ...] | None = None
+    bins: Mapping[str, np.ndarray], n_sites: int, linear_size: float, names: tuple[str, ...] | None = None,
+    beta: float | None = None,
 ) -> dict[str, DerivedEstimate]:
-    """All derived quantities whose inputs are present in ``bins`` (or only ``names``).
+    """All derived quantities whose inputs are present in ``bins`` (or only ``names``); those that need the
+    inverse temperature only when ``beta`` is given.
 
     Input series of unequal length (e.g. a partially written bin) are cut to the shortest one.
     """
@@ -126,10 +141,12 @@ def derived_estimates(
     for name, inputs in DERIVED_INPUTS.items():
         if (names is not None and name not in names) or not all(k in bins for k in inputs):
             continue
+        if name in _NEEDS_BETA and beta is None:
+            continue
         arrays = [np.asarray(bins[k], dtype=float).ravel() for k in inputs]
         n = min(a.size for a in arrays)
         arrays = [a[:n] for a in arrays]
-        func = _function(name, n_sites, float(linear_size))
+        func = _function(name, n_sites, float(linear_size), beta)
         if n < 2:
             value = float(func(*(a.mean() for a in arrays))) if n else float("nan")
             out[name] = DerivedEstimate(value, float("nan"), float("nan"), float("nan"), False, True)
@@ -147,7 +164,8 @@ def derived_estimates(
 
 
 def derived_observables(
-    bins: Mapping[str, np.ndarray], n_sites: int, linear_size: float
+    bins: Mapping[str, np.ndarray], n_sites: int, linear_size: float, beta: float | None = None
 ) -> dict[str, tuple[float, float]]:
-    """``{name: (value, error)}`` for every derived quantity the available bins allow."""
-    return {k: (v.value, v.error) for k, v in derived_estimates(bins, n_sites, linear_size).items()}
+    """``{name: (value, error)}`` for every derived quantity the available bins (and ``beta``) allow."""
+    return {k: (v.value, v.error) for k, v in derived_estimates(bins, n_sites, linear_size,
+                                                                  beta=beta).items()}

@@ -3,11 +3,27 @@
 ``summarize_task`` returns
 
     {"task": task_id, "params": {...}, "info": {...},
-     "observables": {name: {"mean", "error", "tau_int"}},       # derived ones add "bias_corrected"
+     "observables": {name: {"mean", "error", "tau_int", "tau_int_steps"}},  # derived: + "bias_corrected"
      "vbs": {"cos4_hist", "counts", ...},                        # when a VBS histogram is stored
+     "target": {"met", "bins", "checks": [...]},                 # with a precision target
+     "ground_state": {"outcome", "betas", "stages": [...], ...}, # with a search by beta doubling
      "warnings": [text, ...]}
 
 ``tau_int`` is in units of bins (1/2 for uncorrelated bins), see :mod:`qmc.analysis.binning`.
+``tau_int_steps = tau_int * steps_per_bin`` is the same time in Monte Carlo steps.  It is the
+autocorrelation time of the underlying steps when the bins are correlated (tau_int >> 1/2); for nearly
+uncorrelated bins it is only an upper bound (a bin of B steps whose chain decorrelates within tau_s steps
+has tau_int = tau_s / g with 2 tau_s >= g >= 1, g <= B, so tau_s <= tau_int * B; common practice, no
+source), flagged by ``tau_int_steps_bound`` (tau_int < 1).
+
+Precision target (``target``, when the task has one): ``met`` says whether the run ended because the
+target was met (at ``bins`` bins, the number stored), ``checks`` judges every goal on the stored bins
+with the rule of :mod:`qmc.chain.target` (``observable``, ``mean``, ``error``, ``allowed``, ``plateau``,
+``met``, ``goal`` as written: ``"1e-04"`` or ``"0.5%"``).
+
+Ground-state search (``ground_state``, a task with ``[ground_state]``): the beta ladder and outcome of
+:func:`qmc.analysis.groundstate.search_summary`; the observables of the summary are those of the last stage
+(the converged one when the search converged), at ``info["beta"]``.
 
 Independent copies: tasks that differ only in their copy index (``params["copy"]``, see
 :data:`~qmc.analysis.tasks.COPY_PARAMS`) are independent Markov chains of the same parameters.
@@ -24,9 +40,12 @@ from typing import Any
 
 import numpy as np
 
+from qmc.chain.target import bound_text, check_goals
+
 from .binning import MIN_SERIES, error_estimate
 from .chains import bins_compatible, merge_bin_dicts, weighted_mean
 from .derived import derived_estimates
+from .groundstate import search_summary
 from .tasks import COPY_PARAMS, AnalysisTask, as_record, canonical_params, params_key
 from .vbs import vbs_anisotropy
 
@@ -85,20 +104,27 @@ def group_copies(tasks: Iterable[Any]) -> list[AnalysisTask]:
     return out
 
 
+def _in_steps(tau_bins: float, steps_per_bin: int) -> dict[str, float | bool]:
+    """``tau_int_steps`` and ``tau_int_steps_bound`` of a bin autocorrelation time (module docstring)."""
+    return {"tau_int_steps": float(tau_bins) * steps_per_bin, "tau_int_steps_bound": bool(tau_bins < 1.0)}
+
+
 def _stored(rec: AnalysisTask, warn: dict[str, list[str]]) -> dict[str, dict[str, float]]:
     obs = {}
     for name in sorted(rec.bins):
         est = error_estimate(rec.bins[name])
-        obs[name] = {"mean": est.mean, "error": est.error, "tau_int": est.tau_int}
+        obs[name] = {"mean": est.mean, "error": est.error, "tau_int": est.tau_int,
+                     **_in_steps(est.tau_int, rec.steps_per_bin)}
         if not est.plateau_ok:
             warn["plateau"].append(name)
         if not est.halves_ok:
             warn["halves"].append(name)
-    for name, d in derived_estimates(rec.bins, rec.n_sites, rec.linear_size).items():
+    for name, d in derived_estimates(rec.bins, rec.n_sites, rec.linear_size, beta=rec.beta).items():
         obs[name] = {
             "mean": d.value,
             "error": d.error,
             "tau_int": d.tau_int,
+            **_in_steps(d.tau_int, rec.steps_per_bin),
             "bias_corrected": d.bias_corrected,
         }
         if not np.isfinite(d.value):
@@ -116,7 +142,9 @@ def _weighted(parts: list[dict[str, dict[str, float]]]) -> dict[str, dict[str, f
     for name in sorted(names):
         mean, err = weighted_mean([p[name]["mean"] for p in parts], [p[name]["error"] for p in parts])
         tau = float(np.nanmean([p[name]["tau_int"] for p in parts]))
-        obs[name] = {"mean": mean, "error": err, "tau_int": tau}
+        steps = float(np.nanmean([p[name]["tau_int_steps"] for p in parts]))
+        obs[name] = {"mean": mean, "error": err, "tau_int": tau, "tau_int_steps": steps,
+                     "tau_int_steps_bound": any(p[name]["tau_int_steps_bound"] for p in parts)}
     return obs
 
 
@@ -192,4 +220,26 @@ def summarize_task(task_data: Any) -> dict[str, Any]:
     if rec.vbs_histogram is not None and rec.vbs_hist_range is not None:
         cos4 = rec.bins.get("vbs_cos4")
         summary["vbs"] = vbs_anisotropy(rec.vbs_histogram, rec.vbs_hist_range, cos4)
+    if rec.target and not rec.parts:
+        summary["target"] = target_summary(rec, n_bins)
+    if rec.ground_state and not rec.parts:
+        gs = summary["ground_state"] = search_summary(rec.ground_state, tid)
+        if gs["outcome"] == "not reached":
+            names = ", ".join(gs["observables"])
+            warnings.append(f"{tid}: ground state not reached: the observables {names} did not agree for two "
+                            f"doublings in a row up to max_beta = {gs['max_beta']:g}")
     return summary
+
+
+def target_summary(rec: AnalysisTask, n_bins: int) -> dict[str, Any]:
+    """The ``target`` entry of a summary (module docstring)."""
+    goals = [(str(name), float(value), bool(rel)) for name, value, rel in rec.target or []]
+    names = [g[0] for g in goals]
+    if n_bins and all(n in rec.bins for n in names):
+        table = np.column_stack([rec.bins[n][:n_bins] for n in names])
+        checks = [{"observable": c.name, "goal": bound_text(g), "mean": c.mean,
+                   "error": c.error, "allowed": c.allowed, "plateau": c.plateau, "met": c.met}
+                  for g, c in zip(goals, check_goals(goals, table, names), strict=True)]
+    else:
+        checks = [{"observable": g[0], "goal": bound_text(g), "met": False} for g in goals]
+    return {"met": bool(rec.target_met), "bins": n_bins, "checks": checks}

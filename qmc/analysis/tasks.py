@@ -29,7 +29,8 @@ class AnalysisTask:
 
     ``copies`` lists the task ids merged into it; ``parts`` holds the original copies when their bins
     could not be concatenated (unequal, incompatible bin lengths); their estimates are then combined by
-    weighting.
+    weighting.  ``target``, ``target_met`` and ``ground_state`` are those of ``TaskData`` (a single task's
+    precision target and ground-state search; not kept for merged copies).
     """
 
     task_id: str
@@ -45,6 +46,9 @@ class AnalysisTask:
     exchange: dict | None = None
     copies: tuple[str, ...] = ()
     parts: tuple[AnalysisTask, ...] = field(default_factory=tuple)
+    target: list | None = None
+    target_met: bool = False
+    ground_state: dict | None = None
 
 
 def canonical_value(v: Any) -> Any:
@@ -102,6 +106,9 @@ def as_record(task: Any) -> AnalysisTask:
             status=str(getattr(task, "status", "done")),
             exchange=getattr(task, "exchange", None),
             copies=(str(task.task_id),),
+            target=getattr(task, "target", None),
+            target_met=bool(getattr(task, "target_met", False)),
+            ground_state=getattr(task, "ground_state", None),
         )
     except AttributeError as exc:
         from .errors import AnalysisError

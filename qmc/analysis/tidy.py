@@ -8,7 +8,8 @@ parameters :data:`DESCRIPTIVE_PARAMS` are left out), then
     tau_int        integrated autocorrelation time in Monte Carlo steps = tau_int_bins * steps_per_bin
     tau_int_bins   the same in units of bins (1/2 for uncorrelated bins, see :mod:`qmc.analysis.binning`)
     n_bins         number of bins measured, steps_per_bin their length in Monte Carlo steps
-    derived        True for quantities computed from several bin series by jackknife
+    derived        True for quantities computed from several bin series by jackknife (chi_uniform is stored
+                   per bin for most models and derived only for models with directed loops)
     status         the task's status (done, stopped, ...)
 
 When the bins are much longer than the correlation time, ``tau_int_bins`` is 1/2 and ``tau_int`` =
@@ -52,6 +53,7 @@ def tidy_rows(tasks: Iterable[Any], merge_copies: bool = False) -> tuple[list[st
             rows.append({"task": s["task"], **scan, "observable": name, "mean": o["mean"],
                          "error": o["error"], "tau_int": o["tau_int"] * info["steps_per_bin"],
                          "tau_int_bins": o["tau_int"], "n_bins": info["n_bins"],
-                         "steps_per_bin": info["steps_per_bin"], "derived": name in DERIVED_INPUTS,
+                         "steps_per_bin": info["steps_per_bin"],
+                         "derived": name in DERIVED_INPUTS and name not in rec.bins,
                          "status": info["status"]})
     return ["task", *params, *TIDY_COLUMNS], rows

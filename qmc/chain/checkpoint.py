@@ -12,6 +12,11 @@ Layouts:
 2. the same arrays with the same meaning, plus ``layout``.  Layout 1 is migrated by adding the number;
 3. layout 2 plus ``above`` (int32, the per-slot colours of the SU(N) colour kind, ``Chain.above``; empty for
    S = 1/2 models).  Layout 2 is migrated by adding an empty ``above`` (it only held S = 1/2 models).
+4. layout 3, and ``counters`` has four entries (n, directed loops per step, frozen flag, unused; see
+   :mod:`qmc.chain.simulation`); models with directed loops have accumulator slots after the groups
+   (:mod:`qmc.engine.slots`).  Layout 3 (no directed-loop models) is migrated by padding ``counters`` with
+   zeros (a layout-3 state without ``above``, as the directed-loop development branch wrote it, also gets
+   the empty ``above``).
 """
 
 from __future__ import annotations
@@ -24,12 +29,13 @@ from qmc.errors import UserError
 
 __all__ = ["CHECKPOINT_LAYOUT", "STATE_KEYS", "LAYOUT_KEY", "current_layout"]
 
-CHECKPOINT_LAYOUT = 3
+CHECKPOINT_LAYOUT = 4
 STATE_KEYS = ("spins", "ops", "counters", "rng", "acc", "hist", "steps", "above")
 LAYOUT_KEY = "layout"
 
 _RELEASES = {1: "seriesloop 0.1.0", 2: "the releases after seriesloop 0.1.0 without SU(N) models",
-             3: "the releases with SU(N) models"}
+             3: "the releases with SU(N) models but without directed loops",
+             4: "the releases with directed loops"}
 """The releases that write each layout (named in the refusal message)."""
 
 
@@ -41,8 +47,18 @@ def _from_layout_2(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     return {**state, "above": np.zeros(0, dtype=np.int32), LAYOUT_KEY: np.asarray(3, dtype=np.int64)}
 
 
+def _from_layout_3(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    counters = np.zeros(4, dtype=np.int64)
+    old = np.asarray(state["counters"], dtype=np.int64).reshape(-1)
+    counters[:old.size] = old
+    out = {**state, "counters": counters, LAYOUT_KEY: np.asarray(4, dtype=np.int64)}
+    out.setdefault("above", np.zeros(0, dtype=np.int32))
+    return out
+
+
 _MIGRATIONS: dict[int, Callable[[dict[str, np.ndarray]], dict[str, np.ndarray]]] = {1: _from_layout_1,
-                                                                                     2: _from_layout_2}
+                                                                                     2: _from_layout_2,
+                                                                                     3: _from_layout_3}
 """layout n -> function turning a layout-n state into a layout-(n+1) state."""
 
 

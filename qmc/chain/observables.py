@@ -14,7 +14,9 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``energy``         <H>/N = (E_const - <n>/beta)/N  (H exactly as written, constants included)
 ``n_ops``          <n>, expansion order (raw moment)
 ``n_ops_sq``       <n^2> (raw moment); specific heat per site C/N = (<n^2> - <n>^2 - <n>)/N by jackknife
-``chi_uniform``    beta <(sum_i S^z_i)^2>/N
+``chi_uniform``    beta <(sum_i S^z_i)^2>/N (models without directed loops: <sum_i S^z_i> = 0)
+``magnetization``  <M>/N, M = sum_i S^z_i (models with directed loops: xxz or field terms)
+``m_uniform2``     <(M/N)^2> (directed loops); chi_uniform = beta N (m_uniform2 - magnetization^2), jackknife
 ``m_stag2``        <(M_s/N)^2>, M_s = sum_i phi_i S^z_i, time-averaged over the propagated states
 ``m_stag4``        <(M_s/N)^4>; binder_stag = m_stag4 / m_stag2^2 by jackknife
 ``chi_stag``       (1/N) int_0^beta <M_s(tau) M_s(0)> dtau
@@ -29,8 +31,9 @@ N is the number of sites, beta the inverse temperature, H = E_const - sum_t C_t 
 ``vbs_x2``         <D_x^2>, D_x = (1/N) sum_r (-1)^x S^z_r S^z_{r+x}; likewise ``vbs_y2``
 ``vbs4``           <(D_x^2 + D_y^2)^2>; VBS Binder ratio vbs4 / (vbs_x2 + vbs_y2)^2
 ``vbs_cos4``       <cos 4 theta> of (D_x, D_y) = |D| (cos theta, sin theta)
-``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta)/N; a group is the
-                   terms of one [[terms]] block or one bond class (Heisenberg and projector-product alike)
+``term_energy/g``  contribution of term group g to <H>/N: (const_g - <n_g>/beta + sum_i f_{g,i} <S^z_i>)/N
+                   (f: ``group_field``, the field folded into the directed bonds, zero without fields); a
+                   group is the terms of one [[terms]] block or one bond class (all term types alike)
 =================  ===========================================================================================
 """
 
@@ -39,7 +42,8 @@ from __future__ import annotations
 import numpy as np
 
 from qmc.engine import slots as S
-from qmc.models.compiled import CompiledModel
+from qmc.engine.directed import X_FIELD, X_MZ
+from qmc.models.compiled import KIND_DIRECTED, CompiledModel
 
 __all__ = ["RENAMED_OBSERVABLES", "bin_names", "bin_row"]
 
@@ -50,7 +54,8 @@ task files written before the rename."""
 
 def bin_names(model: CompiledModel) -> tuple[str, ...]:
     """Column names of a bin row for this model (order matches :func:`bin_row`)."""
-    names = ["energy", "n_ops", "n_ops_sq", "chi_uniform", "m_stag2", "m_stag4", "chi_stag", "s_q"]
+    uniform = ["magnetization", "m_uniform2"] if _directed(model) else ["chi_uniform"]
+    names = ["energy", "n_ops", "n_ops_sq", *uniform, "m_stag2", "m_stag4", "chi_stag", "s_q"]
     if _has_winding(model):
         names += ["s_q_shifted", "stiffness"] + [f"stiffness/{d}" for d in model.dir_names]
     elif model.n_dirs > 0:
@@ -65,6 +70,10 @@ def bin_names(model: CompiledModel) -> tuple[str, ...]:
         names += ["vbs_cos4"]
     names += [f"term_energy/{g}" for g in model.group_names]
     return tuple(names)
+
+
+def _directed(model: CompiledModel) -> bool:
+    return bool(np.any(model.group_kind == KIND_DIRECTED))
 
 
 def _has_winding(model: CompiledModel) -> bool:
@@ -95,6 +104,13 @@ def bin_row(model: CompiledModel, beta: float, acc: np.ndarray, n_steps: int) ->
         vals["stiffness"] = float(np.mean(rho))
         for d, name in enumerate(model.dir_names):
             vals[f"stiffness/{name}"] = rho[d]
+    n_groups = len(model.group_names)
+    if _directed(model):
+        kind = S.A_GROUP + n_groups
+        vals["magnetization"] = a[kind + X_MZ] / n
+        vals["m_uniform2"] = a[S.A_MZ2] / n**2
     for g, name in enumerate(model.group_names):
         vals[f"term_energy/{name}"] = (model.group_constant[g] - a[S.A_GROUP + g] / beta) / n
+        if _directed(model):
+            vals[f"term_energy/{name}"] += a[S.A_GROUP + n_groups + X_FIELD + g] / n
     return np.array([vals[name] for name in bin_names(model)], dtype=np.float64)

@@ -6,10 +6,17 @@ bit-identically, however the work is chunked by :meth:`Simulation.advance`.
 
 One Monte Carlo step = one diagonal-update sweep over the operator string + one full loop decomposition
 (every vertex leg visited once; each loop flipped with probability 1/2, or for N colours given one of them
-uniformly).  Warm-up steps and measurement steps are counted the same way.
+uniformly); for models with directed loops (:mod:`qmc.engine.directed`) the loop part is a number of
+directed loops adapted during the warm-up to the same work and fixed when measuring starts.  Warm-up steps
+and measurement steps are counted the same way.
+
+``counters`` (int64[COUNTERS]): n, the operators in the string; directed loops per step; 1 once that number
+is frozen (measurement started); unused.
 """
 
 from __future__ import annotations
+
+from collections.abc import Callable
 
 import numpy as np
 
@@ -17,7 +24,7 @@ from qmc.chain.alias import alias_table
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
 from qmc.engine.diagonal import fold_pending
-from qmc.engine.kinds import initial_spins, kind_record, slot_colours
+from qmc.engine.kinds import initial_spins, kind_acc_slots, kind_record, slot_colours, vertex_state_length
 from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
 from qmc.engine.slots import ET_SIZE, SW_SIZE, acc_size
@@ -25,7 +32,9 @@ from qmc.engine.steps import bound_run_steps
 from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, term_table
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE"]
+__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS"]
+
+COUNTERS = 4
 
 HIST_BINS = 64
 HIST_RANGE = 0.25  # |D_a| <= 1/4 for the columnar dimer order parameter
@@ -55,9 +64,10 @@ class Simulation:
         u = draw_doubles(rng, model.n_sites)
         cutoff = max(32, int(1.2 * self.terms.beta_wtot) + 16)
         self.chain = build(Chain, spins=initial_spins(self.kind, u),
-                           ops=np.full(cutoff, EMPTY, dtype=np.int32), counters=np.zeros(1, dtype=np.int64),
-                           rng=rng, above=np.zeros(cutoff if slot_colours(self.kind) else 0, dtype=np.int32))
-        self.acc = np.zeros(acc_size(len(model.group_names)), dtype=np.float64)
+                           ops=np.full(cutoff, EMPTY, dtype=np.int32),
+                           counters=np.zeros(COUNTERS, dtype=np.int64), rng=rng,
+                           above=np.zeros(cutoff if slot_colours(self.kind) else 0, dtype=np.int32))
+        self.acc = np.zeros(self._acc_size, dtype=np.float64)
         self.hist = np.zeros((self._hist_bins, self._hist_bins), dtype=np.int64)
         self.steps = np.zeros(1, dtype=np.int64)
         self._allocate_work()
@@ -86,7 +96,8 @@ class Simulation:
         self.acc = np.array(state["acc"], dtype=np.float64)
         self.hist = np.array(state["hist"], dtype=np.int64)
         self.steps = np.array(state["steps"], dtype=np.int64)
-        if self.spins.shape != (model.n_sites,) or self.acc.shape != (acc_size(len(model.group_names)),):
+        if (self.spins.shape != (model.n_sites,) or self.acc.shape != (self._acc_size,)
+                or self.counters.shape != (COUNTERS,)):
             raise ValueError("checkpoint does not match the model (site or term-group count differs)")
         if (np.any(self.ops >= (model.n_terms << OP_TERM_SHIFT))
                 or int(np.sum(self.ops >= 0)) != int(self.counters[0])
@@ -120,6 +131,7 @@ class Simulation:
         self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, beta=self.beta,
                            beta_wtot=self.beta * float(np.sum(weights)))
         self.kind = kind_record(model)
+        self._acc_size = acc_size(len(model.group_names), kind_acc_slots(self.kind, len(model.group_names)))
         phase = np.ascontiguousarray(model.phase, dtype=np.int8)
         coords = np.asarray(model.site_coords, dtype=np.float64).reshape(model.n_sites, model.n_dirs)
         lengths = np.asarray(model.dir_lengths, dtype=np.float64)
@@ -147,7 +159,8 @@ class Simulation:
         n_sites = self.model.n_sites
         self.vertices = build(Vertices, links=np.zeros(4 * n_slots, dtype=np.int32),
                               vflip=np.zeros(n_slots, dtype=np.uint8),
-                              first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32))
+                              first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32),
+                              state=np.zeros(vertex_state_length(self.kind, n_slots), dtype=np.int32))
         self.tallies = build(Tallies, acc=self.acc, hist=self.hist,
                              group_counts=np.zeros(max(len(self.model.group_names), 1), dtype=np.int64),
                              sweep_out=np.zeros(SW_SIZE, dtype=np.float64),
@@ -243,8 +256,12 @@ class Simulation:
             self._kernel = bound_run_steps(*records)
         return self._kernel(n_steps, measure, stop_when_full, *records)
 
-    def advance(self, max_steps: int) -> np.ndarray:
-        """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names))."""
+    def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
+        """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).
+
+        ``until`` (optional) is called with every completed bin row; when it returns True the chain stops
+        right after that bin and the rest of ``max_steps`` is not run (a precision target met,
+        :class:`qmc.chain.target.TargetWatch`)."""
         rows = []
         left = int(max_steps)
         while left > 0 and not self.done:
@@ -257,6 +274,7 @@ class Simulation:
                 if 3 * (self.cutoff - n) < n:
                     self._grow_cutoff()
             else:
+                self.counters[2] = 1  # freezes the directed-loop count (qmc.engine.directed)
                 in_bin = (done - self.warmup_steps) % self.steps_per_bin
                 k = min(left, self.steps_per_bin - in_bin)
                 self._run(k, True, False)
@@ -265,6 +283,8 @@ class Simulation:
                 if (self.steps_done - self.warmup_steps) % self.steps_per_bin == 0:
                     rows.append(bin_row(self.model, self.beta, self.acc, self.steps_per_bin))
                     self.acc[:] = 0.0
+                    if until is not None and until(rows[-1]):
+                        break
         return np.array(rows, dtype=np.float64).reshape(len(rows), len(self.bin_names))
 
     # ------------------------------------------------------------------ replica exchange support
@@ -296,8 +316,9 @@ class Simulation:
         if (spins.shape != self.spins.shape or np.any(ops >= (self.model.n_terms << OP_TERM_SHIFT))
                 or above.shape[0] != self._above_length(ops.shape[0])):
             raise ValueError("configuration does not fit this model")
-        self.chain = build(Chain, spins=spins, ops=ops, counters=np.array(conf["counters"], dtype=np.int64),
-                           rng=self.rng, above=above)
+        counters = self.counters.copy()  # the loop count stays with the chain
+        counters[0] = np.asarray(conf["counters"]).reshape(-1)[0]
+        self.chain = build(Chain, spins=spins, ops=ops, counters=counters, rng=self.rng, above=above)
         self._allocate_work()
 
     def state(self) -> dict[str, np.ndarray]:

@@ -22,9 +22,12 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
     """Mean, error bar and autocorrelation time of every observable of every task in RUN_DIR.
 
     The error is one standard error of the mean from a binning analysis of the stored bins; tau_int is
-    the integrated autocorrelation time of the bins in units of bins (1/2: uncorrelated).  Derived
-    quantities (binder_stag, specific_heat, corr_length, ...) come from the jackknife.  Tasks with
-    replica exchange also show their acceptance rates.  RUN_DIR may also be a single task file.
+    the integrated autocorrelation time of the bins in units of bins (1/2: uncorrelated) and in Monte
+    Carlo steps (bins times steps per bin; "<" marks an upper bound, when the bins are nearly
+    uncorrelated).  Derived quantities (binder_stag, specific_heat, corr_length, ...) come from the
+    jackknife.  Tasks with replica exchange also show their acceptance rates; tasks with a precision target
+    whether it was met and at how many bins; a ground-state search its beta ladder and outcome.  RUN_DIR
+    may also be a single task file.
     """
     from qmc.analysis import group_copies, summarize_task
     from qmc.analysis.summary import few_bins_warning
@@ -45,8 +48,7 @@ def summary_cmd(run_dir: Path, as_json: bool, merge_copies: bool) -> None:
         for s in summaries:
             d = {"task": s["task"], "params": s["params"], "observables": s["observables"],
                  "info": s.get("info", {}), "warnings": s.get("warnings", [])}
-            if "exchange" in s:
-                d["exchange"] = s["exchange"]
+            d.update({k: s[k] for k in ("exchange", "target", "ground_state") if k in s})
             out.append(to_jsonable(d))
         click.echo(json.dumps(out, indent=1))
         return

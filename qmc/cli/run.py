@@ -2,7 +2,9 @@
 
 Exit status: 0 every selected task is done; :data:`EXIT_UNFINISHED` (75) the run was stopped before the
 end (SIGTERM, Ctrl-C or ``--max-time``: every running task wrote a checkpoint; rerun to continue); 1 a task
-failed; 2 bad input.  A second Ctrl-C interrupts at once (130).  The log goes to ``RUN_DIR/run.log``.
+failed; 2 bad input; 74 (:data:`qmc.storage.faults.WRITE_FAULT_EXIT`) the machine refused a write (full
+disk, quota, read-only or vanished directory, I/O error).  A second Ctrl-C interrupts at once (130).  The
+log goes to ``RUN_DIR/run.log``.
 """
 
 from __future__ import annotations
@@ -110,6 +112,13 @@ def run_cmd(config: Path, out: Path | None, only: tuple[str, ...], force: bool, 
           uninterrupted run).  So `qmc run X && qmc analyze X` analyses only finished runs.
       1   a task failed (message in index.json and run.log; the other tasks went on)
       2   bad input (configuration, run directory, options)
+      74  the machine refused a write (full disk, quota, read-only or vanished directory,
+          I/O error): one message names the file and the cause; every task keeps its last
+          complete checkpoint, so the same command continues once there is room
+
+    Several runs of the same configuration may share one run directory (a job array, MPI jobs,
+    or both): each task is claimed before it runs, a task whose process died is taken over, and
+    a job that has done its share exits 0 naming the tasks that other jobs still run.
 
     Started by an MPI launcher (`mpiexec -n K qmc run CONFIG`), the tasks are spread over the K ranks:
     rank 0 hands out tasks (largest first) and computes too, and a replica-exchange ladder runs its

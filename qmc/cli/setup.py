@@ -20,7 +20,7 @@ __all__ = ["new_cmd", "validate_cmd"]
 @click.option("--force", is_flag=True, help="Overwrite an existing file.")
 def new_cmd(kind: str, out: Path | None, force: bool) -> None:
     """Write the commented example configuration KIND: heisenberg, bilayer, columnar-dimer, jq2, jq3 or
-    su3-jq2.
+    su3-jq2 or bilayer-field.
 
     Each file is a complete run: its comments explain the model, every key and the choice of sizes,
     temperatures and couplings.

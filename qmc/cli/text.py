@@ -1,8 +1,10 @@
 """Plain-text renderings for the terminal: a task summary table and a task file's contents.
 
-Summary columns: ``mean``, ``error`` (one standard error of the mean, from the binning analysis) and
+Summary columns: ``mean``, ``error`` (one standard error of the mean, from the binning analysis),
 ``tau_int[bins]`` (integrated autocorrelation time of the bin series in units of bins; 1/2 means
-uncorrelated bins, larger values mean the bins are too short).
+uncorrelated bins, larger values mean the bins are too short) and ``tau_int[steps]`` (the same in Monte
+Carlo steps, tau_int[bins] times the steps per bin; written "<x" when the bins are nearly uncorrelated,
+tau_int[bins] < 1, and it is only an upper bound).
 """
 
 from __future__ import annotations
@@ -10,9 +12,11 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from qmc.chain.target import goal_text
 from qmc.exchange.records import exchange_summary
 
-__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "inspect_text"]
+__all__ = ["fmt", "params_text", "summary_table", "exchange_text", "target_text", "ground_state_text",
+           "inspect_text"]
 
 
 def fmt(x: Any, spec: str) -> str:
@@ -30,17 +34,26 @@ def summary_table(s: dict[str, Any]) -> str:
     head = f"task {s['task']}"
     if info:
         head += (f"  ({info.get('status', '?')}, {info.get('n_bins', 0)} bins of "
-                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites)")
+                 f"{info.get('steps_per_bin', 0)} Monte Carlo steps, {info.get('n_sites', '?')} sites"
+                 + (f", beta {fmt(info.get('beta'), 'g')}" if "beta" not in s["params"] else "") + ")")
     lines = [head, "  " + params_text(s["params"])]
     obs = s["observables"]
     if obs:
         width = max(10, *(len(n) for n in obs))
-        lines.append(f"  {'observable':<{width}}  {'mean':>16}  {'error':>10}  {'tau_int[bins]':>13}")
+        lines.append(f"  {'observable':<{width}}  {'mean':>16}  {'error':>10}  {'tau_int[bins]':>13}  "
+                     f"{'tau_int[steps]':>14}")
         for name, d in obs.items():
+            steps = fmt(d.get("tau_int_steps"), ".4g")
+            if d.get("tau_int_steps_bound") and steps != "nan":
+                steps = "<" + steps
             lines.append(f"  {name:<{width}}  {fmt(d.get('mean'), '16.9g')}  "
-                         f"{fmt(d.get('error'), '10.3g')}  {fmt(d.get('tau_int'), '13.2f')}")
+                         f"{fmt(d.get('error'), '10.3g')}  {fmt(d.get('tau_int'), '13.2f')}  {steps:>14}")
     if s.get("exchange"):
         lines.append("  " + exchange_text(s["exchange"]))
+    if s.get("target"):
+        lines.append("  " + target_text(s["target"], info.get("status", "")))
+    if s.get("ground_state"):
+        lines += ["  " + line for line in ground_state_text(s["ground_state"], info.get("beta"))]
     lines += [f"  warning: {w}" for w in s.get("warnings", [])]
     return "\n".join(lines)
 
@@ -54,6 +67,52 @@ def exchange_text(x: dict[str, Any]) -> str:
             parts.append(f"with {name} = {values[other]:g}: {fmt(rate, '.3f')} ({tried[j]} attempts)")
     return (f"exchange along {name}: position {pos + 1} of {len(values)}, acceptance "
             + ", ".join(parts) + f"; round trips of the ladder: {x['round_trips']}")
+
+
+def target_text(t: dict[str, Any], status: str) -> str:
+    """One line on a task's precision target: met (at how many bins) or not, and every goal's error."""
+    parts = []
+    for c in t["checks"]:
+        err = c.get("error")
+        if err is None:
+            parts.append(f"{c['observable']} <= {c['goal']}")
+            continue
+        shown = fmt(err, ".3g")
+        if str(c["goal"]).endswith("%") and c.get("mean"):
+            shown = fmt(100.0 * err / abs(c["mean"]), ".3g") + "%"
+        mark = "" if c.get("plateau", True) else " (no plateau)"
+        parts.append(f"{c['observable']} {shown}{mark} {'<=' if c['met'] else '>'} {c['goal']}")
+    if t["met"]:
+        head = f"precision target met at {t['bins']} bins"
+    elif status == "done":
+        head = f"precision target NOT met: measure_steps used up at {t['bins']} bins"
+    else:
+        head = f"precision target not met yet ({t['bins']} bins)"
+    return head + ": " + ", ".join(parts)
+
+
+def ground_state_text(g: dict[str, Any], beta: Any) -> list[str]:
+    """Lines on a task's ground-state search: outcome, then one line per finished stage of the beta ladder
+    (bins, the watched observables with their errors, the separation from the stage before)."""
+    ladder = " -> ".join(f"{b:g}" for b in g["betas"]) or "none finished yet"
+    if g["outcome"] == "converged":
+        head = (f"ground state by beta doubling: converged at beta = {g['betas'][-1]:g} ("
+                f"{', '.join(g['observables'])} agree within {g['n_sigma']:g} error bars for the last two "
+                "doublings); the table above is that stage")
+    elif g["outcome"] == "not reached":
+        head = (f"ground state by beta doubling: NOT reached up to max_beta = {g['max_beta']:g}; the table "
+                f"above is the last stage, beta = {g['betas'][-1]:g}")
+    else:
+        head = f"ground state by beta doubling: running, now at beta = {fmt(beta, 'g')}"
+    lines = [head, f"beta ladder: {ladder}"]
+    for st in g["stages"]:
+        parts = [f"{k} = {fmt(v['mean'], '.8g')} +- {fmt(v['error'], '.2g')}"
+                 for k, v in st["estimates"].items()]
+        if st["agree"] is not None:
+            sig = ", ".join(f"{fmt(v, '.2f')}" for v in st["sigmas"].values())
+            parts.append(f"{'agrees' if st['agree'] else 'differs'} ({sig} sigma)")
+        lines.append(f"  beta {st['beta']:<8g} {st['bins']:>6} bins  " + "; ".join(parts))
+    return lines
 
 
 def inspect_text(d: Any) -> str:
@@ -72,6 +131,15 @@ def inspect_text(d: Any) -> str:
     rows.append(("beta", f"{d.beta:g}"))
     rows.append(("bins", f"{d.bins_done} of {d.bins_total} done, {d.steps_per_bin} steps per bin"))
     rows.append(("steps", f"{d.steps_done} of {d.steps_total} done"))
+    if d.target:
+        goals = ", ".join(goal_text((str(n), float(v), bool(r))) for n, v, r in d.target)
+        rows.append(("target", f"{goals} ({'met' if d.target_met else 'not met'})"))
+    if d.ground_state:
+        g = d.ground_state
+        betas = [g["stages"][k]["beta"] for k in sorted(g.get("stages", {}), key=int)]
+        ladder = ", ".join(f"{b:g}" for b in betas) or "none"
+        rows.append(("ground_state", f"{g.get('outcome', '?')}; finished stages at beta {ladder}; /bins at "
+                                     f"beta {d.beta:g}"))
     rows.append(("checkpoint", f"{d.checkpoint_time or 'none'} (at step {d.steps_done})"))
     rows.append(("observables", ", ".join(d.bin_names)))
     if d.vbs_histogram is not None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import re
+from collections.abc import Iterator
 from typing import Any
 
 import qmc.models as models
@@ -12,7 +13,7 @@ from qmc.config.tasks import Task
 from qmc.errors import UserError
 from qmc.models import CompiledModel, ModelError
 
-__all__ = ["build_model", "validate"]
+__all__ = ["build_model", "distinct_models", "validate"]
 
 
 def build_model(task: Task) -> CompiledModel:
@@ -30,7 +31,8 @@ def build_model(task: Task) -> CompiledModel:
         raise _located(exc.within("lattice"), task) from None
     terms = []
     classes = {"heisenberg": models.HeisenbergTerm, "projector": models.ProjectorTerm,
-               "projector-product": models.ProjectorProductTerm}
+               "projector-product": models.ProjectorProductTerm, "xxz": models.XXZTerm,
+               "field": models.FieldTerm}
     for i, d in enumerate(task.terms):
         kwargs = {k: v for k, v in d.items() if k != "type"}
         cls = classes[d["type"]]
@@ -62,16 +64,20 @@ def _located(exc: ModelError, task: Task) -> UserError:
     return UserError(f"{exc.message} (task {task.task_id})", where)
 
 
-def validate(config: RunConfig) -> int:
-    """Build every distinct model of the run once, so that model errors surface before any run starts.
-
-    Returns the number of distinct models built.
-    """
+def distinct_models(config: RunConfig) -> Iterator[tuple[Task, CompiledModel]]:
+    """Every distinct model of the run, built once (one after the other), with the first task that has it."""
     seen: set[str] = set()
     for task in config.tasks():
         key = json.dumps([task.lattice_kind, task.size, task.boundary, task.explicit, task.terms,
                           task.colors], sort_keys=True, default=list)
         if key not in seen:
             seen.add(key)
-            build_model(task)
-    return len(seen)
+            yield task, build_model(task)
+
+
+def validate(config: RunConfig) -> int:
+    """Build every distinct model of the run once, so that model errors surface before any run starts.
+
+    Returns the number of distinct models built.
+    """
+    return sum(1 for _ in distinct_models(config))

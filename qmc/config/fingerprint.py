@@ -11,7 +11,15 @@ from __future__ import annotations
 import hashlib
 import json
 
-from qmc.config.schema import LatticeSpec, ModelSection, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import (
+    GroundState,
+    LatticeSpec,
+    ModelSection,
+    RunSection,
+    Sampling,
+    ScanEntry,
+    TermSpec,
+)
 from qmc.config.tasks import canonical_number
 
 __all__ = ["fingerprint", "physics_fingerprint"]
@@ -25,7 +33,9 @@ def _physics(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
                     "boundary": lattice.boundary, "sites": lattice.sites, "bonds": lattice.bonds,
                     "classes": lattice.classes},
         "terms": [{"type": t.type, "coupling": t.coupling.canonical, "bonds": t.bonds, "shape": t.shape,
-                   "symmetrize": bool(t.symmetrize), "name": t.name} for t in terms],
+                   "symmetrize": bool(t.symmetrize), "name": t.name,
+                   **({"delta": t.delta.canonical} if t.delta is not None else {}),
+                   **({"staggered": t.staggered} if t.staggered is not None else {})} for t in terms],
     }
     if model is not None and model.colors is not None and model.colors.canonical != "2":
         content["model"] = {"colors": model.colors.canonical}
@@ -54,13 +64,15 @@ def physics_fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[Term
 
 
 def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None) -> str:
+                scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None,
+                ground_state: GroundState | None = None) -> str:
     """SHA-256 (hex) of the semantic content of a configuration.
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output``,
     ``sampling.checkpoint_seconds`` and ``exchange.max_ranks`` do not enter; numbers enter by value (1 and
     1.0 are the same).  ``exchange.every`` enters only with replica exchange; ``model.colors`` only when it
-    is not the default 2 (so configurations written before [model] existed keep their fingerprint).
+    is not the default 2; ``sampling.target`` and ``[ground_state]`` only when given (so that the
+    fingerprints of configurations without them stay what they were).
     """
     s = sampling
     content = {
@@ -71,4 +83,9 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
     }
     if s.exchange is not None:
         content["sampling"]["exchange_every"] = s.exchange_every
+    if s.target:
+        content["sampling"]["target"] = [[name, repr(float(v)), rel] for name, v, rel in s.target]
+    if ground_state is not None:
+        content["ground_state"] = [canonical_number(ground_state.start_beta),
+                                   canonical_number(ground_state.max_beta), list(ground_state.observables)]
     return _hash(content)

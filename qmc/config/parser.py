@@ -15,16 +15,24 @@ import re
 import tomllib
 from pathlib import Path
 
-from qmc.config.build import build_model, validate
+from qmc.config.build import build_model, distinct_models, validate
 from qmc.config.reader import TableReader
 from qmc.config.run_config import RunConfig, config_fingerprint
 from qmc.config.scan import check_names, parse_scan
 from qmc.config.schema import HOME, SECTIONS
-from qmc.config.sections import parse_lattice, parse_model, parse_run, parse_sampling, parse_terms
+from qmc.config.sections import (
+    parse_ground_state,
+    parse_lattice,
+    parse_model,
+    parse_run,
+    parse_sampling,
+    parse_terms,
+)
 from qmc.config.tasks import Task
 from qmc.errors import UserError, did_you_mean
 
-__all__ = ["RunConfig", "Task", "load_config", "build_model", "validate", "config_fingerprint"]
+__all__ = ["RunConfig", "Task", "load_config", "build_model", "distinct_models", "validate",
+           "config_fingerprint"]
 
 
 def load_config(path: str | os.PathLike) -> RunConfig:
@@ -56,19 +64,24 @@ def _parse(r: TableReader) -> RunConfig:
             if not hint and k in HOME:
                 hint = f" ('{k}' belongs in {HOME[k]})"
             raise r.fail(k, f"unknown section or top-level key '{k}'{hint}; the sections are "
-                            "[run], [model], [lattice], [[terms]], [scan], [sampling] and [exchange]")
+                            "[run], [model], [lattice], [[terms]], [scan], [sampling], [exchange] and "
+                            "[ground_state]")
     run = parse_run(r)
     model = parse_model(r)
     lattice = parse_lattice(r)
     terms = parse_terms(r)
-    scan = parse_scan(r)
+    ground_state = parse_ground_state(r)
+    scan = parse_scan(r, ground_state is not None)
     sampling = parse_sampling(r)
+    if ground_state is not None and sampling.exchange is not None:
+        raise r.fail("ground_state", "[ground_state] and [exchange] cannot be combined: replica exchange "
+                                     "runs its ladder at one fixed beta; remove one of the two sections")
     check_names(r, lattice, terms, scan, sampling, model)
     output_dir = Path(os.path.abspath(r.path.parent / Path(run.output).expanduser()))
     if output_dir.exists() and not output_dir.is_dir():
         raise r.fail("run.output", f"{output_dir} exists and is not a directory; choose another output")
     return RunConfig(path=r.path, text=r.text, data=r.data, run=run, lattice=lattice, terms=terms, scan=scan,
-                     sampling=sampling, output_dir=output_dir, model=model)
+                     sampling=sampling, output_dir=output_dir, model=model, ground_state=ground_state)
 
 
 def _syntax_error(path: Path, text: str, exc: tomllib.TOMLDecodeError) -> UserError:

@@ -7,7 +7,15 @@ from pathlib import Path
 from typing import Any
 
 from qmc.config.fingerprint import fingerprint, physics_fingerprint
-from qmc.config.schema import LatticeSpec, ModelSection, RunSection, Sampling, ScanEntry, TermSpec
+from qmc.config.schema import (
+    GroundState,
+    LatticeSpec,
+    ModelSection,
+    RunSection,
+    Sampling,
+    ScanEntry,
+    TermSpec,
+)
 from qmc.config.tasks import Task, expand_tasks
 
 __all__ = ["RunConfig", "config_fingerprint"]
@@ -16,7 +24,7 @@ __all__ = ["RunConfig", "config_fingerprint"]
 @dataclass(eq=False)
 class RunConfig:
     """A loaded configuration: parsed sections (``model`` is [model]), the raw ``text`` and ``data``, the file
-    ``path`` and the resolved absolute ``output_dir``."""
+    ``path``, the resolved absolute ``output_dir`` and ``[ground_state]`` (None without it)."""
 
     path: Path
     text: str
@@ -28,6 +36,7 @@ class RunConfig:
     sampling: Sampling
     output_dir: Path
     model: ModelSection = field(default_factory=ModelSection)
+    ground_state: GroundState | None = None
     _tasks: tuple[Task, ...] | None = field(default=None, repr=False)
 
     @property
@@ -46,12 +55,13 @@ class RunConfig:
         """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner."""
         if self._tasks is None:
             self._tasks = tuple(expand_tasks(str(self.path), self.run, self.lattice, self.terms, self.scan,
-                                             self.sampling, self.model))
+                                             self.sampling, self.model, self.ground_state))
         return list(self._tasks)
 
     def fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.fingerprint`."""
-        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.model)
+        return fingerprint(self.run, self.lattice, self.terms, self.scan, self.sampling, self.model,
+                           self.ground_state)
 
     def physics_fingerprint(self) -> str:
         """See :func:`qmc.config.fingerprint.physics_fingerprint`."""

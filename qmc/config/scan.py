@@ -34,10 +34,15 @@ def round_value(v: Number) -> Number:
     return 0.0 if v == 0 else v
 
 
-def parse_scan(r: TableReader) -> tuple[ScanEntry, ...]:
-    """The ``[scan]`` entries in file order; checks names, values and references between entries."""
+def parse_scan(r: TableReader, ground_state: bool = False) -> tuple[ScanEntry, ...]:
+    """The ``[scan]`` entries in file order; checks names, values and references between entries.  With a
+    ``[ground_state]`` section (``ground_state``) beta is set by beta doubling and must not be scanned."""
     t = r.table("scan", required=False)
-    if "beta" not in t:
+    if ground_state and "beta" in t:
+        raise r.fail("scan.beta", "with [ground_state] every task finds its own beta by doubling it from "
+                                  "start_beta up to max_beta: remove beta from [scan], or remove "
+                                  "[ground_state] to run at the scanned temperatures")
+    if "beta" not in t and not ground_state:
         raise r.fail("scan.beta", "missing required key 'beta' in [scan]: the inverse temperature "
                                   '(a number, a list, a range table, or an expression such as "2*L")')
     entries = []
@@ -127,6 +132,7 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     uses = [("model.colors", model.colors)] if model.colors is not None else []
     uses += [(lattice.size_key(i), e) for i, e in enumerate(lattice.size)]
     uses += [(f"terms[{i}].coupling", t.coupling) for i, t in enumerate(terms)]
+    uses += [(f"terms[{i}].delta", t.delta) for i, t in enumerate(terms) if t.delta is not None]
     for key, expr in uses:
         for ref in expr.names:
             if ref not in entries:
@@ -141,8 +147,8 @@ def check_names(r: TableReader, lattice: LatticeSpec, terms: tuple[TermSpec, ...
     for e in scan:
         if e.name not in used:
             raise r.fail(f"scan.{e.name}", f"scan.{e.name} is never used: refer to it in "
-                                           "model.colors, lattice.size, a [[terms]] coupling or beta, or "
-                                           "remove it")
+                                           "model.colors, lattice.size, a [[terms]] coupling or delta, "
+                                           "or beta, or remove it")
     check_exchange(r, sampling.exchange, lattice, terms, entries, model)
 
 
@@ -154,6 +160,11 @@ def check_exchange(r: TableReader, name: str | None, lattice: LatticeSpec, terms
     if name is None:
         return
     key = "exchange.along"
+    directed = [i for i, t in enumerate(terms) if t.type in ("xxz", "field")]
+    if directed:
+        raise r.fail(key, f"replica exchange is not available with {terms[directed[0]].type} terms "
+                          f"(terms[{directed[0]}]): their directed-loop weights are not powers of one "
+                          "coupling, which the swap rule assumes; remove [exchange]")
     if name not in entries:
         raise r.fail(key, f"'{name}' is not a scan name{did_you_mean(name, entries)}")
     entry = entries[name]

@@ -16,15 +16,23 @@ Sections and keys (``*`` marks required ones)::
                 type* = "projector": bonds* = bond class, coupling* = J   (adds -J P_ij per bond)
                 type* = "projector-product": shape* = "plaquette-pair" | "column-of-three" |
                 [[[dx, dy], [dx, dy]], ...] (one offset entry per lattice direction), coupling* = Q,
-                symmetrize = bool (adds -Q prod P_ij over the bonds of the shape); all take name = "text".
+                symmetrize = bool (adds -Q prod P_ij over the bonds of the shape)
+                type* = "xxz": bonds* = bond class, coupling* = J, delta* = anisotropy
+                (adds J (S^x S^x + S^y S^y + delta S^z S^z) per bond; J < 0 allowed where sign-free;
+                colors = 2 only)
+                type* = "field": coupling* = h, staggered = bool (adds -h sum_i S^z_i, or with staggered
+                -h sum_i phi_i S^z_i; colors = 2 only); every type takes name = "text".
                 P_ij is the singlet projector (1/4 - S_i.S_j for two colours).
     [scan]      NAME = number | [numbers] | {start, stop, num} (num values, both ends included) |
                 "expression of other scan names" (e.g. beta = "2*L");  beta* is required
-    [sampling]  warmup_steps*, measure_steps*, bins* (>= 2, divides measure_steps), copies = 1,
-                checkpoint_seconds = 300
+    [sampling]  warmup_steps*, measure_steps* (the upper limit when a target is set), bins* (>= 2, divides
+                measure_steps), copies = 1, checkpoint_seconds = 300,
+                target = {observable = absolute error | "x%" (relative error), ...} (needs bins >= 64)
     [exchange]  along* = scan name of a coupling (replica exchange between its values), every = 10
                 (Monte Carlo steps between swap attempts), max_ranks = at most this many MPI ranks per
                 ladder (default: as many as shorten its step)
+    [ground_state]  start_beta*, max_beta* (>= 4 start_beta), observables = ["energy"] (bin observables
+                compared between beta and 2 beta); with it, [scan] has no beta and there is no [exchange]
 
 Keys of earlier releases (:data:`RENAMED_KEYS`) are refused with a message naming their replacement.
 """
@@ -41,18 +49,24 @@ from qmc.models import BOUNDARIES, LATTICE_KINDS
 
 __all__ = [
     "LATTICE_KINDS", "BOUNDARIES", "TERM_TYPES", "SHAPES", "EXPLICIT", "SECTIONS", "MAX_TASKS",
+    "MIN_TARGET_BINS",
     "COPY_PARAM", "RESERVED_NAMES", "RENAMED_KEYS", "NAME_RE", "TERM_NAME_RE",
-    "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "TERM_KEYS", "HOME",
-    "MODEL_KEYS", "ModelSection", "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling",
-    "check_coupling",
+    "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "GROUND_STATE_KEYS",
+    "TERM_KEYS", "HOME", "MODEL_KEYS", "SIGNED_TERMS", "ModelSection", "RunSection", "LatticeSpec",
+    "TermSpec", "ScanEntry", "Sampling", "GroundState", "check_coupling",
 ]
 
 # LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
-TERM_TYPES = ("heisenberg", "projector", "projector-product")
+TERM_TYPES = ("heisenberg", "projector", "projector-product", "xxz", "field")
+SIGNED_TERMS = ("xxz", "field")
+"""Term types whose coupling may be negative (the model compiler checks the sign structure)."""
 SHAPES = tuple(models.SHAPES)  # named shapes of projector-product terms
 EXPLICIT = "explicit"
-SECTIONS = ("run", "model", "lattice", "terms", "scan", "sampling", "exchange")
+SECTIONS = ("run", "model", "lattice", "terms", "scan", "sampling", "exchange", "ground_state")
 MAX_TASKS = 100_000
+MIN_TARGET_BINS = 64
+"""A precision target is judged from this many bins on (:mod:`qmc.chain.target`): with 64 bins the plateau
+rule of the binning analysis has two levels of at least 32 blocks, the fewest on which it can find one."""
 COPY_PARAM = "copy"
 """Parameter name of the copy index (0 .. copies-1) in a task's ``params``."""
 RESERVED_NAMES = {
@@ -79,13 +93,19 @@ LATTICE_KEYS = {"kind": "one of " + ", ".join([*LATTICE_KINDS, EXPLICIT]),
 EXPLICIT_KEYS = {"kind": "explicit", "sites": "the number of sites N", "bonds": "[[i, j], ...] site pairs",
                  "classes": "{name = [[i, j], ...], ...} named bond classes"}
 SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring, an integer >= 0",
-                 "measure_steps": "Monte Carlo steps measured, an integer >= 1",
+                 "measure_steps": "Monte Carlo steps measured (at most, with a target), an integer >= 1",
                  "bins": "number of bins the measurement is split into, >= 2, dividing measure_steps",
                  "copies": "independent copies of every parameter point (own streams), an integer >= 1",
-                 "checkpoint_seconds": "seconds between checkpoints, > 0"}
+                 "checkpoint_seconds": "seconds between checkpoints, > 0",
+                 "target": 'error bars to reach, e.g. {energy = 1e-4, m_stag2 = "0.5%"} (absolute, or '
+                           'relative with %)'}
 EXCHANGE_KEYS = {"along": "scan name of the coupling whose values exchange configurations",
                  "every": "Monte Carlo steps between swap attempts, an integer >= 1",
                  "max_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
+GROUND_STATE_KEYS = {"start_beta": "the first inverse temperature, > 0",
+                     "max_beta": "the largest inverse temperature, >= 4 start_beta",
+                     "observables": 'bin observables that must agree between beta and 2 beta, e.g. '
+                                    '["energy", "m_stag2"]'}
 TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the lattice, e.g. \"nn\"",
                             "coupling": "J >= 0, a number or scan name", "name": "label of the term"},
              "projector": {"type": "projector", "bonds": "a bond class of the lattice, e.g. \"nn\"",
@@ -95,12 +115,20 @@ TERM_KEYS = {"heisenberg": {"type": "heisenberg", "bonds": "a bond class of the 
                                             '[[[dx, dy], [dx, dy]], ...] (one entry per direction)',
                                    "coupling": "Q >= 0, a number or scan name",
                                    "symmetrize": "true (default) to add the shape rotated by 90 degrees",
-                                   "name": "label of the term"}}
+                                   "name": "label of the term"},
+             "xxz": {"type": "xxz", "bonds": "a bond class of the lattice, e.g. \"nn\"",
+                     "coupling": "J, a number or scan name (J > 0 antiferromagnetic, J < 0 ferromagnetic xy)",
+                     "delta": "anisotropy delta of the S^z S^z part, a number or scan name",
+                     "name": "label of the term"},
+             "field": {"type": "field", "coupling": "h, a number or scan name (-h sum_i S^z_i)",
+                       "staggered": "true for the staggered field -h sum_i phi_i S^z_i (default false)",
+                       "name": "label of the term"}}
 HOME = {**{k: "[run]" for k in RUN_KEYS}, **{k: "[model]" for k in MODEL_KEYS},
         **{k: "[lattice]" for k in (*LATTICE_KEYS, *EXPLICIT_KEYS)},
         **{k: "[sampling]" for k in SAMPLING_KEYS}, **{k: "[exchange]" for k in EXCHANGE_KEYS},
+        **{k: "[ground_state]" for k in GROUND_STATE_KEYS},
         "beta": "[scan]", "L": "[scan]",
-        **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize")}}
+        **{k: "a [[terms]] block" for k in ("type", "coupling", "shape", "symmetrize", "delta", "staggered")}}
 """Key -> the section it belongs in, for messages about a key in the wrong place."""
 
 NAME_RE = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")  # scan names
@@ -155,6 +183,8 @@ class TermSpec:
     shape: str | tuple | None = None
     symmetrize: bool | None = None
     name: str | None = None
+    delta: Expression | None = None
+    staggered: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -189,7 +219,10 @@ class Sampling:
     """``[sampling]`` and ``[exchange]``: how every chain is run.
 
     ``copies`` independent copies of every parameter point, Monte Carlo steps and binning, checkpoint
-    interval in seconds.  From ``[exchange]``: ``exchange`` = the scan name exchanged along (``along``;
+    interval in seconds.  ``target``: the precision target, goals ``(observable, value, relative)`` (see
+    :mod:`qmc.chain.target`; a relative value is a fraction of |mean|), empty without one; it decides when
+    a chain stops, never what its bins are, so it enters no task fingerprint.  From ``[exchange]``:
+    ``exchange`` = the scan name exchanged along (``along``;
     None without replica exchange), ``exchange_every`` = Monte Carlo steps between swap attempts
     (``every``), ``exchange_ranks`` = the largest number of MPI ranks one ladder may use (``max_ranks``;
     None: as many as shorten its step; it changes where chains run, never the results, so it is not part
@@ -204,10 +237,21 @@ class Sampling:
     exchange: str | None = None
     exchange_every: int = 10
     exchange_ranks: int | None = None
+    target: tuple[tuple[str, float, bool], ...] = ()
 
     @property
     def steps_per_bin(self) -> int:
         return self.measure_steps // self.bins
+
+
+@dataclass(frozen=True)
+class GroundState:
+    """``[ground_state]``: beta doubling from ``start_beta`` up to at most ``max_beta``, until the bin
+    ``observables`` at beta and 2 beta agree (:mod:`qmc.chain.doubling`, :mod:`qmc.chain.convergence`)."""
+
+    start_beta: float
+    max_beta: float
+    observables: tuple[str, ...] = ("energy",)
 
 
 def check_coupling(value: Number, where: str, context: str) -> None:

@@ -7,6 +7,7 @@ section's dataclass, having checked everything that does not need the scan value
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import qmc.models as models
@@ -16,15 +17,19 @@ from qmc.config.schema import (
     EXCHANGE_KEYS,
     EXPLICIT,
     EXPLICIT_KEYS,
+    GROUND_STATE_KEYS,
     LATTICE_KEYS,
     LATTICE_KINDS,
+    MIN_TARGET_BINS,
     MODEL_KEYS,
     RUN_KEYS,
     SAMPLING_KEYS,
     SHAPES,
+    SIGNED_TERMS,
     TERM_KEYS,
     TERM_NAME_RE,
     TERM_TYPES,
+    GroundState,
     LatticeSpec,
     ModelSection,
     RunSection,
@@ -34,7 +39,8 @@ from qmc.config.schema import (
 )
 from qmc.errors import describe_value
 
-__all__ = ["parse_run", "parse_model", "parse_lattice", "parse_terms", "parse_sampling"]
+__all__ = ["parse_run", "parse_model", "parse_lattice", "parse_terms", "parse_sampling", "parse_target",
+           "parse_ground_state"]
 
 
 def parse_run(r: TableReader) -> RunSection:
@@ -171,10 +177,12 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
         for k in t:
             if k not in allowed and any(k in other for other in TERM_KEYS.values()):
                 raise r.fail(f"{key}.{k}", f"key '{k}' does not apply to a {ttype} term")
-        required = ("shape", "coupling") if ttype == "projector-product" else ("bonds", "coupling")
+        required = {"heisenberg": ("bonds", "coupling"), "projector": ("bonds", "coupling"),
+                    "projector-product": ("shape", "coupling"), "xxz": ("bonds", "coupling", "delta"),
+                    "field": ("coupling",)}[ttype]
         r.check_keys(key, t, allowed, required, key)
         coupling = r.expression(f"{key}.coupling", t["coupling"])
-        if coupling.is_constant:
+        if coupling.is_constant and ttype not in SIGNED_TERMS:
             check_coupling(coupling.evaluate({}), r.where(f"{key}.coupling"), "")
         name = None
         if "name" in t:
@@ -185,9 +193,15 @@ def parse_terms(r: TableReader) -> tuple[TermSpec, ...]:
             if name in names:
                 raise r.fail(f"{key}.name", f"{name!r} is already the name of terms[{names[name]}]")
             names[name] = i
-        if ttype != "projector-product":
+        if ttype in ("heisenberg", "projector", "xxz"):
             bonds = r.string(f"{key}.bonds", t["bonds"])
-            terms.append(TermSpec(type=ttype, coupling=coupling, bonds=bonds, name=name))
+            delta = r.expression(f"{key}.delta", t["delta"]) if ttype == "xxz" else None
+            terms.append(TermSpec(type=ttype, coupling=coupling, bonds=bonds, name=name, delta=delta))
+        elif ttype == "field":
+            stag = t.get("staggered", False)
+            if not isinstance(stag, bool):
+                raise r.fail(f"{key}.staggered", f"must be true or false, got {describe_value(stag)}")
+            terms.append(TermSpec(type=ttype, coupling=coupling, name=name, staggered=stag))
         else:
             shape = _shape(r, f"{key}.shape", t["shape"])
             sym = None
@@ -243,6 +257,7 @@ def parse_sampling(r: TableReader) -> Sampling:
     checkpoint = r.number("sampling.checkpoint_seconds", t.get("checkpoint_seconds", 300.0))
     if checkpoint <= 0:
         raise r.fail("sampling.checkpoint_seconds", f"must be positive, got {checkpoint}")
+    target = parse_target(r, t["target"], bins) if "target" in t else ()
     x = r.table("exchange", required=False)
     along, every, ranks = None, 10, None
     if "exchange" in r.data:
@@ -253,4 +268,63 @@ def parse_sampling(r: TableReader) -> Sampling:
             ranks = r.integer("exchange.max_ranks", x["max_ranks"], minimum=1)
     return Sampling(warmup_steps=warmup, measure_steps=measure, bins=bins, copies=copies,
                     checkpoint_seconds=float(checkpoint), exchange=along, exchange_every=every,
-                    exchange_ranks=ranks)
+                    exchange_ranks=ranks, target=target)
+
+
+def parse_target(r: TableReader, value: Any, bins: int) -> tuple[tuple[str, float, bool], ...]:
+    """``[sampling] target = {observable = error, ...}``: an absolute error (a number > 0) or a relative one
+    (a text such as "0.5%") per observable; the names are checked against the model when the run starts."""
+    key = "sampling.target"
+    example = '{energy = 1e-4, m_stag2 = "0.5%"}'
+    if not isinstance(value, dict) or not value:
+        raise r.fail(key, f"must be a table of error bars per observable, e.g. target = {example}, got "
+                          f"{describe_value(value)}")
+    if bins < MIN_TARGET_BINS:
+        raise r.fail(key, f"a precision target is judged from {MIN_TARGET_BINS} bins on, but bins = {bins}: "
+                          f"raise bins to at least {MIN_TARGET_BINS} (measure_steps is then the upper limit)")
+    goals = []
+    for name, v in value.items():
+        where = f"{key}.{name}"
+        relative = isinstance(v, str)
+        if relative:
+            text = v.strip()
+            try:
+                number = float(text[:-1]) if text.endswith("%") else math.nan
+            except ValueError:
+                number = math.nan
+            if not math.isfinite(number) or number <= 0:
+                raise r.fail(where, f"{v!r} is not a relative error: write a positive percentage such as "
+                                    '"0.5%", or a number for an absolute error')
+            goals.append((name, number / 100.0, True))
+            continue
+        number = r.number(where, v)
+        if number <= 0:
+            raise r.fail(where, f"must be a positive error bar (absolute, or relative as \"0.5%\"), got {v}")
+        goals.append((name, float(number), False))
+    return tuple(goals)
+
+
+def parse_ground_state(r: TableReader) -> GroundState | None:
+    """``[ground_state]`` (None without the section); the observables are checked against the model when
+    the run starts."""
+    if "ground_state" not in r.data:
+        return None
+    t = r.table("ground_state")
+    r.check_keys("ground_state", t, GROUND_STATE_KEYS, ("start_beta", "max_beta"), "[ground_state]")
+    start = r.number("ground_state.start_beta", t["start_beta"])
+    if start <= 0:
+        raise r.fail("ground_state.start_beta", f"must be positive, got {start}")
+    top = r.number("ground_state.max_beta", t["max_beta"])
+    if top < 4 * start:
+        raise r.fail("ground_state.max_beta", f"max_beta = {top} leaves fewer than two doublings of "
+                                              f"start_beta = {start}; convergence needs beta, 2 beta and 4 "
+                                              f"beta to agree, so max_beta must be at least {4 * start:g}")
+    names: tuple[str, ...] = ("energy",)
+    if "observables" in t:
+        raw = t["observables"]
+        if (not isinstance(raw, list) or not raw or not all(isinstance(x, str) for x in raw)
+                or len(set(raw)) != len(raw)):
+            raise r.fail("ground_state.observables", 'must be a list of different observable names, e.g. '
+                                                     f'["energy", "m_stag2"], got {describe_value(raw)}')
+        names = tuple(raw)
+    return GroundState(start_beta=float(start), max_beta=float(top), observables=names)

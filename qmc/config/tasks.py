@@ -2,7 +2,7 @@
 
 Task ids join the scanned (not derived) values in file order with the copy number, e.g. ``L8_g2.5_c0``; an
 entry that lists expressions enters with its value at the point (``beta = ["L", "2*L"]`` gives
-``L8_beta8_c0`` and ``L8_beta16_c0``).
+``L8_beta8_c0`` and ``L8_beta16_c0``; ``c0`` alone for a ground-state search without scanned values).
 The random stream of a task is ``stream_seed(seed, seed_key)`` with ``seed_key`` built from the sorted
 parameter values and the copy index only, so it depends neither on the order of the scan, nor on the
 task id's text, nor on where the task runs.
@@ -19,6 +19,8 @@ from qmc.config.expressions import Number, format_number
 from qmc.config.schema import (
     COPY_PARAM,
     EXPLICIT,
+    SIGNED_TERMS,
+    GroundState,
     LatticeSpec,
     ModelSection,
     RunSection,
@@ -45,7 +47,8 @@ class Task:
     task is ``stream_seed(seed, seed_key)``.  ``exchange_group``
     names the replica-exchange ladder the task belongs to (tasks that differ only in the exchanged
     parameter ``exchange`` share it), or is None without exchange; the ladder's swap decisions draw from
-    ``stream_seed(seed, exchange_seed_key)``.
+    ``stream_seed(seed, exchange_seed_key)``.  With ``ground_state`` (``[ground_state]``) ``beta`` is the
+    first stage's, ``start_beta``, and the task doubles it (:mod:`qmc.chain.doubling`).
     """
 
     task_id: str
@@ -65,6 +68,7 @@ class Task:
     explicit: dict[str, Any] | None = None
     source: str = ""
     colors: int = 2
+    ground_state: GroundState | None = None
 
 
 def canonical_number(v: Number) -> str:
@@ -73,8 +77,8 @@ def canonical_number(v: Number) -> str:
 
 
 def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ...],
-                 scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None
-                 ) -> list[Task]:
+                 scan: tuple[ScanEntry, ...], sampling: Sampling, model: ModelSection | None = None,
+                 ground_state: GroundState | None = None) -> list[Task]:
     """All tasks: cartesian product of the scan entries in file order (first slowest), copies inner.
 
     Derived entries are evaluated per point; beta, sizes and couplings are checked per task, with the
@@ -98,7 +102,7 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
         for e in derived:
             values[e.name] = e.expression.evaluate(values, f"{source}: scan.{e.name}")
         params = {e.name: values[e.name] for e in scan}
-        beta = values["beta"]
+        beta = values["beta"] if ground_state is None else ground_state.start_beta
         if not beta > 0:
             others = ", ".join(f"{k}={format_number(v)}" for k, v in values.items() if k != "beta")
             raise UserError(f"beta = {format_number(beta)}" + (f" (for {others})" if others else "")
@@ -115,11 +119,12 @@ def expand_tasks(source: str, run: RunSection, lattice: LatticeSpec, terms: tupl
             # word "replica" (the copy index's name in earlier releases) and the old group label.
             ladder_key = "exchange:" + "_".join([*rest, f"r{c}"]) if exchange is not None else None
             tasks.append(Task(
-                task_id=f"{label}_c{c}", params={**params, COPY_PARAM: c}, lattice_kind=lattice.kind,
+                task_id="_".join([*([label] if label else []), f"c{c}"]), params={**params, COPY_PARAM: c},
+                lattice_kind=lattice.kind,
                 size=size, boundary=lattice.boundary, terms=[dict(d) for d in resolved], beta=float(beta),
                 copy=c, sampling=sampling, seed_key=f"{key};replica={c}", exchange=exchange, seed=run.seed,
                 exchange_group=group, exchange_seed_key=ladder_key, explicit=explicit, source=source,
-                colors=colors))
+                colors=colors, ground_state=ground_state))
     return tasks
 
 
@@ -137,8 +142,8 @@ def _choice(source: str, e: ScanEntry, expr: Any, values: dict[str, Number], con
 
 def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...], values: dict[str, Number],
                     context: str) -> int:
-    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg
-    term (it is defined through S = 1/2 spin operators)."""
+    """The task's number of colours: a whole number from 2 to MAX_COLOURS; with more than 2 no heisenberg,
+    xxz or field term (they are defined through S = 1/2 spin operators)."""
     if model.colors is None:
         return 2
     where = f"{source}: model.colors"
@@ -153,6 +158,10 @@ def _resolve_colors(source: str, model: ModelSection, terms: tuple[TermSpec, ...
                             f"{context if model.colors.names else ''}; for SU({v}) use type = \"projector\" "
                             "(-J sum P_ij, which for two colours is J S_i.S_j - J/4)",
                             f"{source}: terms[{i}].type")
+        if v > 2 and t.type in ("xxz", "field"):
+            article = "an" if t.type == "xxz" else "a"
+            raise UserError(f"{article} {t.type} term (S = 1/2 spin operators) needs colors = 2, not {v}"
+                            f"{context if model.colors.names else ''}", f"{source}: terms[{i}].type")
     return v
 
 
@@ -160,13 +169,18 @@ def _resolve_term(source: str, i: int, t: TermSpec, values: dict[str, Number],
                   context: str) -> dict[str, Any]:
     where = f"{source}: terms[{i}].coupling"
     coupling = t.coupling.evaluate(values, where)
-    check_coupling(coupling, where, context)
+    if t.type not in SIGNED_TERMS:
+        check_coupling(coupling, where, context)
     d: dict[str, Any] = {"type": t.type}
-    if t.type != "projector-product":
+    if t.type in ("heisenberg", "projector", "xxz"):
         d["bonds"] = t.bonds
-    else:
+    elif t.type == "projector-product":
         d["shape"] = t.shape
     d["coupling"] = float(coupling)
+    if t.delta is not None:
+        d["delta"] = float(t.delta.evaluate(values, f"{source}: terms[{i}].delta"))
+    if t.staggered is not None:
+        d["staggered"] = t.staggered
     if t.symmetrize is not None:
         d["symmetrize"] = t.symmetrize
     if t.name is not None:

@@ -67,7 +67,22 @@ bins = {bins}
 copies = 1
 # checkpoint_seconds: how often a running task saves its full state, so an interrupted run resumes.
 checkpoint_seconds = 300
-{ex}'''
+# target (optional): stop measuring a task as soon as these error bars are reached, absolute or relative
+# to the mean with %.  The check starts at 64 bins (the binning analysis needs them to judge its own
+# error) and looks at every bin after that; measure_steps is then only the upper limit.  A task that
+# stops this way holds exactly the first bins of the same run without a target.
+# target = {{ energy = 1e-4, m_stag2 = "0.5%" }}
+{ex}
+# Ground state instead of fixed temperatures (optional): remove beta from [scan] and uncomment the
+# section below.  Each task starts at start_beta; when its bins are done it doubles beta (its operator
+# string joined with its mirror image is a configuration at 2 beta), warms up and measures again, until
+# the observables at beta and 2 beta agree within two error bars for two doublings in a row.  At
+# max_beta it stops and `qmc summary` says that the ground state was not reached.
+# [ground_state]
+# start_beta = 2.0
+# max_beta = 512.0
+# observables = ["energy", "m_stag2"]
+'''
 
 
 _SCAN_HELP = '''\
@@ -76,7 +91,8 @@ _SCAN_HELP = '''\
 # list of such expressions: beta = ["L", "2*L"] runs every point at beta = L and at beta = 2L (the
 # ground-state check of `qmc analyze` compares such pairs).
 # Every combination of the listed values is one task (times sampling.copies).  beta (the inverse
-# temperature, in inverse units of the couplings) is required.  Every entry must be used somewhere.
+# temperature, in inverse units of the couplings) is required, unless a [ground_state] section finds each
+# task's ground state by doubling beta (see the end of this file).  Every entry must be used somewhere.
 '''
 
 _TERMS_HELP = '''\
@@ -88,9 +104,14 @@ _TERMS_HELP = '''\
 #                               coupling = Q >= 0.  symmetrize = true (default) also places the shape
 #                               rotated by 90 degrees.  A shape is a name or a list of bonds, each two
 #                               unit-cell offsets with one number per lattice direction.
-# A coupling is a number or a scan name (or an expression such as "2*g").  Negative couplings have a
-# sign problem and are refused.  Each block's energy per site is measured as term_energy/<name>;
-# name = "..." sets that name.
+#   type = "xxz":               J (S^x S^x + S^y S^y + delta S^z S^z) on every bond of `bonds`;
+#                               coupling = J, delta = the anisotropy (both numbers or scan names).
+#   type = "field":             -h sum_i S^z_i (staggered = true: -h sum_i phi_i S^z_i, phi = +-1 on
+#                               the two sublattices); coupling = h.  xxz and field terms need 2 colours.
+# A coupling is a number or a scan name (or an expression such as "2*g").  Negative heisenberg and
+# projector couplings have a sign problem and are refused; a negative xxz J (ferromagnetic in the xy
+# plane) and a field of either sign are allowed where the model stays free of the sign problem.
+# Each block's energy per site is measured as term_energy/<name>; name = "..." sets that name.
 '''
 
 _LATTICE_HELP = '''\
@@ -215,6 +236,28 @@ TEMPLATES: dict[str, str] = {
               "# integer or a scan name.  A heisenberg term needs colors = 2: for N > 2 write\n"
               "# type = \"projector\".\n"
               "colors = 3\n",
+    ),
+    "bilayer-field": _compose(
+        "# Square-lattice bilayer in a magnetic field: H = sum_intra S_i.S_j + g sum_rungs S_i.S_j\n"
+        "# - h sum_i S^z_i, at g = 4, deep in the rung-singlet (dimer) phase (the layers order only below\n"
+        "# g = 2.522).  The field lowers the S^z = +1 rung triplet: while its gap stays open the\n"
+        "# magnetization stays zero; once it closes the triplets condense, the magnetization rises and the\n"
+        "# spins order antiferromagnetically in the xy plane (the triplet condensate, whose superfluid\n"
+        "# density is the stiffness); above the saturation field h = g + 4 = 8 every spin points up.\n"
+        "# Terms with a field are simulated with directed loops; `qmc analyze --coupling h --plot` draws\n"
+        "# magnetization(h) and stiffness(h).\n",
+        _run("bilayer-field", 2718, "magnetization curve of the dimerized bilayer"),
+        'kind = "bilayer"\nsize = ["L", "L"]\nboundary = "periodic"\n',
+        '[[terms]]\ntype = "heisenberg"\n# bonds: "intra" = in-plane bonds of both layers.\n'
+        'bonds = "intra"\ncoupling = 1.0\n\n'
+        '[[terms]]\ntype = "xxz"\n# bonds: "inter" = the rungs; delta = 1 is the isotropic rung coupling.\n'
+        'bonds = "inter"\ncoupling = 4.0\ndelta = 1.0\n\n'
+        '[[terms]]\ntype = "field"\n# coupling: the field h, in units of the in-plane coupling.\n'
+        'coupling = "h"\n',
+        "L = [8]\n# h: 19 fields from 0 to 9, across both critical fields.\n"
+        "h = { start = 0.0, stop = 9.0, num = 19 }\n"
+        "# beta: a temperature low enough for flat magnetization plateaus.\nbeta = 16\n",
+        _sampling(2000, 20000, 100),
     ),
 }
 

@@ -6,6 +6,8 @@
 - :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
 - :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
 - :mod:`qmc.engine.colour`      the SU(N) colour kind (the same loops, each given one of N colours)
+- :mod:`qmc.engine.directed`    the directed-loop kind (xxz bonds with folded fields, and projectors);
+  its exit probabilities in :mod:`qmc.engine.directed_tables`
 - :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.equal_time`  estimators of a single propagated state
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
@@ -31,7 +33,8 @@ A new kind adds, next to the existing one:
    ``record(model)`` building it, and the hooks with the stubs' arguments: ``insertion_allowed``
    (``@njit(inline="always")``; may draw random numbers; a kind covering several codes reads the term's
    with ``meta_kind(table[t, TT_META])``), ``loop_update`` and the other hooks of ``kinds.HOOKS``
-   (``@njit(inline="always")``), plus ``initial_spins`` and ``SLOT_COLOURS`` (Python level).
+   (``@njit(inline="always")``), plus ``initial_spins``, ``SLOT_COLOURS``, ``VERTEX_STATE`` and ``acc_slots``
+   (Python level); a hook or attribute the module does not define is the projector's.
 3. ``qmc/engine/kinds.py``: one ``register_kind(Record, module, covers)`` line, ``covers`` being the codes its
    update handles.  The first registered kind covering all of a model's codes runs it, so a kind that also
    handles projector vertices is registered after the projector and pure projector models keep the fast path.
@@ -40,7 +43,7 @@ A new kind adds, next to the existing one:
    bit-identical: tests/chain/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's
    version.
 
-The second kind, and the one planned next, in these terms:
+The two kinds added after the projector, in these terms:
 
 - SU(N) colours (:mod:`qmc.engine.colour`, code ``"colour"``, every group of a model with N > 2 colours;
   N = 2 stays ``projector``): the site state is a colour 0..N-1 in ``Chain.spins`` (A / conjugate-B basis);
@@ -52,11 +55,12 @@ The second kind, and the one planned next, in these terms:
   the order parameters and the equal-time estimators are built from), and at Python level
   ``initial_spins`` and ``slot_colours``.  :func:`qmc.engine.diagonal.fold_pending` applies pending changes
   for any kind (checkpoints, configuration swaps).
-- Directed loops: codes for XXZ bonds and fields; the record holds per-term diagonal weights and the
-  exit-leg probability tables (fewest bounces); insertion accepts with probability W_t(s_i, s_j) / w_t; the
-  kind covers the projector code too (projector vertices inside directed loops always leave at ``l ^ 1``).
-  New hook: where the sweep appends a bond vertex (projector: nothing), recording its leg states in a
-  per-vertex array (cutoff-sized, so allocated with the vertex list in ``Simulation._allocate_work``).
+- Directed loops (done, :mod:`qmc.engine.directed`): one code for xxz bonds and field groups; the record
+  holds per-type diagonal weights and the exit-leg probability tables (fewest bounces); insertion accepts
+  with probability W_t(s_i, s_j) / w_t; the kind covers the projector code too (projector vertices inside
+  directed loops always leave at ``l ^ 1``).  New hooks: ``vertex_added`` (leg states in
+  ``Vertices.state``, allocated with the vertex list when the kind module sets ``VERTEX_STATE``) and
+  ``measure`` (the kind's own accumulator slots after the groups, ``acc_slots(G)`` of them).
 """
 
 __all__: list[str] = []

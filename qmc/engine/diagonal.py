@@ -36,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.engine.kinds import apply_changes, hop, insertion_allowed, site_value
+from qmc.engine.kinds import apply_changes, hop, insertion_allowed, site_value, vertex_added
 from qmc.engine.rng import next_double
 from qmc.engine.slots import (
     SW_MS_END,
@@ -173,6 +173,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             else:
                 first[U(j)] = leg + 1
             last[U(j)] = leg + 3
+            vertex_added(kind, vertices, v, t, a, ops[p], spins[U(i)], spins[U(j)])
             v += 1
 
     for i in range(n_sites):

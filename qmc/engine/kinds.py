@@ -32,6 +32,18 @@ Hooks (a kind module defines a numba function of the same name and arguments for
 Python-level parts of a kind module: ``record(model)``, ``initial_spins(kind, u)`` (the first state from
 uniform random numbers u, one per site) and ``SLOT_COLOURS`` (True if the kind keeps per-slot colours in
 ``Chain.above``); :func:`initial_spins` and :func:`slot_colours` ask them for a record.
+``vertex_added(kind, vertices, v, t, a, op, si, sj)``
+    inlined where the sweep appends bond vertex v (bond a of term t, operator ``op``, spins si, sj above it);
+    projector: nothing, directed loops: the leg states into ``vertices.state``.
+``measure(kind, chain, tallies)``
+    inlined into measuring steps: the kind's own estimators, in the accumulator slots after the groups
+    (``acc_slots(n_groups)`` of them).
+
+A kind module that lacks one of these hooks gets the projector's (the directed kind keeps ±1 spins and the
+``vflip`` changes, so it uses the projector's ``apply_changes``, ``hop``, ``site_value``, ``bond_value``; the
+colour kind records nothing per vertex and has no estimators of its own).  Module attributes read in Python
+(the projector's where a module has none): ``VERTEX_STATE`` (the kind needs ``vertices.state``;
+:func:`vertex_state_length`), ``acc_slots`` (:func:`kind_acc_slots`), ``initial_spins`` and ``SLOT_COLOURS``.
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
 (:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
@@ -48,14 +60,16 @@ import numpy as np
 from numba.core import types
 from numba.extending import overload
 
-from qmc.engine import colour, projector
-from qmc.models.compiled import KIND_COLOUR, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
+from qmc.engine import colour, directed, projector
+from qmc.models.compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
 __all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-           "kind_record", "register_kind", "initial_spins", "slot_colours"]
+           "vertex_added", "measure", "kind_record", "register_kind", "initial_spins", "slot_colours",
+           "vertex_state_length", "kind_acc_slots"]
 
-HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value")
-"""The numba-level hooks every kind module defines."""
+HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
+         "vertex_added", "measure")
+"""The numba-level hooks of a kind (a kind module that lacks one gets the projector's)."""
 
 _SELECTION: list[tuple[frozenset[int], ModuleType]] = []
 """(kind codes a module's record handles, the module), in order of preference."""
@@ -81,22 +95,38 @@ def kind_record(model: CompiledModel) -> Any:
     raise ValueError(f"no update in this engine handles a model with vertex kinds {names}")
 
 
+def _module_attribute(kind: Any, name: str) -> Any:
+    """Attribute ``name`` of the kind record's module, the projector's where the module has none."""
+    return getattr(_MODULE_OF_RECORD[type(kind)], name, getattr(projector, name))
+
+
 def initial_spins(kind: Any, u: np.ndarray) -> np.ndarray:
     """The kind's first state (int8 per site) from uniform random numbers ``u`` in [0, 1), one per site."""
-    return _MODULE_OF_RECORD[type(kind)].initial_spins(kind, u)
+    return _module_attribute(kind, "initial_spins")(kind, u)
 
 
 def slot_colours(kind: Any) -> bool:
     """Whether the kind keeps per-slot colours (``Chain.above`` as long as the operator string)."""
-    return bool(_MODULE_OF_RECORD[type(kind)].SLOT_COLOURS)
+    return bool(_module_attribute(kind, "SLOT_COLOURS"))
+
+
+def vertex_state_length(kind: Any, n_slots: int) -> int:
+    """Length of ``vertices.state`` for a list of ``n_slots`` bond vertices (0 if the kind needs none)."""
+    return n_slots if _module_attribute(kind, "VERTEX_STATE") else 0
+
+
+def kind_acc_slots(kind: Any, n_groups: int) -> int:
+    """Accumulator slots the kind adds after the ``n_groups`` group slots."""
+    return int(_module_attribute(kind, "acc_slots")(n_groups))
 
 
 def _implementation(kind: Any, hook: str) -> Any:
-    """The Python function of ``hook`` in the module of the kind record's numba type (typing time)."""
+    """The Python function of ``hook`` in the module of the kind record's numba type (typing time); the
+    projector's where the module has none."""
     if isinstance(kind, types.BaseNamedTuple):
         module = _MODULE_OF_RECORD.get(kind.instance_class)
         if module is not None:
-            return getattr(module, hook).py_func
+            return getattr(module, hook, getattr(projector, hook)).py_func
     return None
 
 
@@ -106,6 +136,16 @@ def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
 
 
 def loop_update(kind, chain, vertices, n_vertices):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def vertex_added(kind, vertices, v, t, a, op, si, sj):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def measure(kind, chain, tallies):
     """Hook (see module docstring); only callable inside numba kernels."""
     raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
 
@@ -160,5 +200,16 @@ def _bond_value(kind, spins, i, j):
     return _implementation(kind, "bond_value")
 
 
+@overload(vertex_added, inline="always")
+def _vertex_added(kind, vertices, v, t, a, op, si, sj):
+    return _implementation(kind, "vertex_added")
+
+
+@overload(measure, inline="always")
+def _measure(kind, chain, tallies):
+    return _implementation(kind, "measure")
+
+
 register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))
 register_kind(colour.ColourKind, colour, frozenset({KIND_COLOUR}))
+register_kind(directed.DirectedKind, directed, frozenset({KIND_PROJECTOR, KIND_DIRECTED}))

@@ -32,12 +32,20 @@ from numba import njit
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
-__all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
-           "apply_changes", "hop", "site_value", "bond_value", "bonds_blocked", "mark_loop"]
+__all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
+           "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
+           "vertex_added", "measure", "bonds_blocked", "mark_loop"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
 """The projector kind keeps no per-slot colours (``Chain.above`` is empty)."""
+VERTEX_STATE = False
+"""Projector loops need no per-vertex state (``vertices.state`` is empty)."""
+
+
+def acc_slots(n_groups: int) -> int:
+    """Accumulator slots the kind adds after the group slots: none."""
+    return 0
 
 
 class ProjectorKind(NamedTuple):
@@ -85,6 +93,16 @@ def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:
 def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
     """(allowed, rng words): may an operator of term t (k bonds, row ``table[t]``) be inserted now?"""
     return not bonds_blocked(table, t, k, spins, True), s0, s1, s2, s3
+
+
+@njit(inline="always")
+def vertex_added(kind, vertices, v, t, a, op, si, sj):
+    """Nothing to record where the sweep appends a bond vertex (the loops need only the links)."""
+
+
+@njit(inline="always")
+def measure(kind, chain, tallies):
+    """No estimators of the kind's own."""
 
 
 @njit(cache=True, boundscheck=False)

@@ -13,7 +13,8 @@ wrong array is refused where the record is made, not silently used.
                 bond; int32[0] for kinds without per-slot colours)
 ``Vertices``    the linked vertex list rebuilt by every sweep: ``links`` int32[4 M k_max], ``vflip``
                 uint8[M k_max] (loop flips not yet applied to ``ops``), ``first``/``last`` int32[N]
-                (first and last leg of each site's world line)
+                (first and last leg of each site's world line), ``state`` int32[M k_max or 0] (what the
+                vertex kind records per vertex; empty for kinds that record nothing)
 ``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
                 ``alias_prob`` float64[T], ``alias_idx`` int32[T] (:mod:`qmc.chain.alias`), ``beta``,
                 ``beta_wtot`` = beta sum_t w_t
@@ -52,6 +53,7 @@ class Vertices(NamedTuple):
     vflip: np.ndarray
     first: np.ndarray
     last: np.ndarray
+    state: np.ndarray
 
 
 class Terms(NamedTuple):
@@ -85,7 +87,8 @@ _I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uin
 _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndim 0 is a Python float
     Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1),
             "above": (_I32, 1)},
-    Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1)},
+    Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1),
+               "state": (_I32, 1)},
     Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "beta": (float, 0),
             "beta_wtot": (float, 0)},
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),

@@ -27,6 +27,7 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
 - A_DX2, A_DY2, A_D4, A_COS4   D_x^2, D_y^2, (D_x^2 + D_y^2)^2, cos 4 theta
 - A_W2 + a                 w_a^2 (a < MAX_DIRS)
 - A_GROUP + g              n_g, operators of term group g (g < G)
+- A_GROUP + G + x          the vertex kind's own slots (``acc_slots(G)`` of its module; none for projectors)
 
 The accumulator is part of the checkpoint (:meth:`qmc.chain.simulation.Simulation.state`): changing
 ``ACC_LAYOUT`` means raising the checkpoint layout version there.
@@ -63,6 +64,7 @@ A_W2 = ACC_LAYOUT.index("w2_0")
 A_GROUP = len(ACC_LAYOUT)
 
 
-def acc_size(n_groups: int) -> int:
-    """Length of the accumulator for a model with ``n_groups`` term groups."""
-    return A_GROUP + n_groups
+def acc_size(n_groups: int, kind_slots: int = 0) -> int:
+    """Length of the accumulator for a model with ``n_groups`` term groups and a vertex kind that adds
+    ``kind_slots`` slots of its own."""
+    return A_GROUP + n_groups + kind_slots

@@ -26,6 +26,7 @@ from numba import njit, typeof
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.equal_time import equal_time
 from qmc.engine.kinds import loop_update
+from qmc.engine.kinds import measure as kind_measure
 from qmc.engine.slots import (
     A_CHIS,
     A_COS4,
@@ -69,7 +70,7 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
     sweep_out, et_out = tallies.sweep_out, tallies.et_out
     spins, counters = chain.spins, chain.counters
     beta = terms.beta
-    n_groups = acc.shape[0] - A_GROUP
+    n_groups = group_counts.shape[0]  # the kind may add slots after the groups (qmc.engine.slots)
     n_dirs = probes.bond_disp.shape[1]
     M = chain.ops.shape[0]
     for step in range(n_steps):
@@ -96,6 +97,7 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
             for d in range(n_dirs):
                 w = sweep_out[SW_WINDING + d]
                 acc[A_W2 + d] += w * w
+            kind_measure(kind, chain, tallies)
             equal_time(kind, spins, probes, tallies)
             acc[A_MZ2] += et_out[ET_MZ2]
             acc[A_SQN] += et_out[ET_SQN]

@@ -21,16 +21,23 @@ position i.  A round trip is counted when a configuration that went from the low
 coupling comes back to the lowest.  Acceptance counts, round trips and the up/down occupation (``n_up``,
 ``n_down``: exchange points at which the configuration at position i last visited the lowest / highest
 coupling) cover the measurement phase; the warm-up attempts are counted separately.
+
+Precision target: each local chain's :class:`~qmc.chain.target.TargetWatch` is fed with its bins as they
+complete; at every meeting each member says whether the target of all its chains is met by their bins at
+that step, and the ladder is finished (:attr:`Ladder.finished`) at the first meeting at which every chain
+meets it.  The decision depends only on the bins at the meeting's step, never on timing or on the team.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 
 import numpy as np
 
 from qmc.chain.simulation import Simulation
+from qmc.chain.target import TargetWatch
 from qmc.config.parser import Task, build_model
 from qmc.engine.rng import draw_doubles, stream_seed
 from qmc.errors import UserError
@@ -139,12 +146,14 @@ class Ladder:
     (:func:`qmc.exchange.meeting.meet`) and share their :attr:`vote` (a :class:`~qmc.exchange.meeting.Vote`
     set by the caller before :meth:`advance`); afterwards :attr:`votes` holds every member's vote and
     :attr:`voted_at` the step.  A chain that raises makes every member raise :class:`LadderError` at the
-    next synchronisation point.
+    next synchronisation point.  ``watches`` are the precision-target watches of the local chains (ladder
+    order; by default new ones from the tasks' targets, fed with nothing); the ladder feeds them.
     """
 
     def __init__(self, tasks: Sequence[Task], models: Sequence[CompiledModel] | None = None, *,
                  chain_states: Sequence[dict[str, np.ndarray]] | None = None,
-                 group_state: dict[str, np.ndarray] | None = None, team: LadderTeam | None = None) -> None:
+                 group_state: dict[str, np.ndarray] | None = None, team: LadderTeam | None = None,
+                 watches: Sequence[TargetWatch] | None = None) -> None:
         self.tasks = list(tasks)
         if ladder_tasks(self.tasks) != self.tasks:
             raise ValueError("tasks must be in ladder order (sorted by the exchanged parameter)")
@@ -190,6 +199,12 @@ class Ladder:
                 raise ValueError("the chains of a ladder checkpoint are at different steps")
             self.state = self._check_state(group_state)
         self.walker_rows: list[list[int]] = [[] for _ in self.local]
+        if watches is None:
+            watches = [TargetWatch(self.tasks[i].sampling.target, self.sims[i].bin_names) for i in self.local]
+        if len(watches) != len(self.local):
+            raise ValueError("a ladder needs one target watch per local chain")
+        self.watches = list(watches)
+        self.finished = False
         self._n_groups = len(self.sims[self.local.start].group_op_counts())
         self.vote: Vote | None = None
         self.votes: list[Vote] = []
@@ -226,7 +241,8 @@ class Ladder:
 
     @property
     def done(self) -> bool:
-        return self.steps_done >= self.total_steps
+        """At the last step, or finished by the precision target."""
+        return self.steps_done >= self.total_steps or self.finished
 
     def next_stop(self) -> int:
         """The next step at which the ladder is at an exchange point (or the warm-up end, or the end)."""
@@ -275,6 +291,8 @@ class Ladder:
                     error = f"chain at {self.tasks[i].task_id}: {type(exc).__name__}: {exc}"
                     break
                 rows[j].extend(new)
+                for row in new:
+                    self.watches[j].add(row)
                 self.walker_rows[j].extend([int(labels[i])] * len(new))
             left -= k
             if error is not None:  # meet the others where they will wait for this member, then stop
@@ -287,15 +305,19 @@ class Ladder:
                 for i, r in zip(self.local, rows, strict=True)]
 
     def _sync(self, s: int, error: str | None) -> None:
-        """Meet the other members at step ``s`` (:func:`qmc.exchange.meeting.meet`); pad the cutoffs at the
-        end of the warm-up; run the swap round of an exchange point."""
+        """Meet the other members at step ``s`` (:func:`qmc.exchange.meeting.meet`), with this member's vote
+        on the precision target; pad the cutoffs at the end of the warm-up; run the swap round of an
+        exchange point; finish when every chain meets the target."""
         counts = np.zeros((self.m, self._n_groups), dtype=np.int64)
         if error is None:
             for i in self.local:
                 counts[i] = self.sims[i].group_op_counts()
         cutoff = max(sim.cutoff for sim in self.local_sims)
-        got = meet(self.team, error, self.vote, cutoff, counts)
+        met = all(w.met for w in self.watches)  # False without a target, or before its first 64 bins
+        vote = dataclasses.replace(self.vote if self.vote is not None else Vote(), target=met)
+        got = meet(self.team, error, vote, cutoff, counts)
         self.votes, self.voted_at = got.votes, s
+        self.finished = all(v.target for v in got.votes)
         if s == self.warmup_steps:
             self._pad_cutoffs(got.top_cutoff)
         if s % self.every == 0 and 0 < s < self.total_steps:

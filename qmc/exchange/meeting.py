@@ -10,7 +10,8 @@ only here:
 
       [0] a chain of this member failed   [1] its vote asks to stop   [2] its vote carries an error
       [3] its vote asks for a checkpoint  [4] the largest cutoff among its chains
-      [5 + i * G + g] operator count of term group g in the chain at position i (0 where not local)
+      [5] the precision target of all its chains is met (by their bins at this step)
+      [6 + i * G + g] operator count of term group g in the chain at position i (0 where not local)
 
   Texts (the failure message, the stop reason, the vote's error) follow in a second, pickled
   ``allgather`` only when some member raised flag 0, 1 or 2, which is rare.  A failure on any member
@@ -36,8 +37,9 @@ from qmc.exchange.team import LadderTeam
 
 __all__ = ["LadderError", "Vote", "Meeting", "ROW_HEAD", "agree", "meet", "trade_configuration"]
 
-ROW_HEAD = 5
-"""Entries of a meeting row before the operator counts: four flags and the largest local cutoff."""
+ROW_HEAD = 6
+"""Entries of a meeting row before the operator counts: four flags, the largest local cutoff, the target
+flag."""
 
 
 class LadderError(RuntimeError):
@@ -47,11 +49,14 @@ class LadderError(RuntimeError):
 @dataclass(frozen=True)
 class Vote:
     """What a member asks for at the next meeting: ``stop`` (a reason, "" for none), ``error`` (a message
-    the member could not keep to itself, e.g. a failed checkpoint write) and ``write`` (a checkpoint)."""
+    the member could not keep to itself, e.g. a failed checkpoint write), ``write`` (a checkpoint) and
+    ``target`` (the precision target of all its chains is met: filled in by the ladder at the meeting itself,
+    from the bins at that step, so that the decision never depends on when the vote was cast)."""
 
     stop: str = ""
     error: str | None = None
     write: bool = False
+    target: bool = False
 
 
 @dataclass
@@ -98,6 +103,7 @@ def meet(team: LadderTeam, error: str | None, vote: Vote | None, cutoff: int, co
     row[2] = bool(vote.error)
     row[3] = bool(vote.write)
     row[4] = cutoff
+    row[5] = bool(vote.target)
     if error is None:
         row[ROW_HEAD:] = counts.reshape(-1)
     got = team.allgather_array(row)
@@ -108,7 +114,7 @@ def meet(team: LadderTeam, error: str | None, vote: Vote | None, cutoff: int, co
             raise LadderError(errors[0])
         votes = [v if v is not None else Vote() for _, v in texts]
     else:
-        votes = [Vote(write=bool(r[3])) for r in got]
+        votes = [Vote(write=bool(r[3]), target=bool(r[5])) for r in got]
     return Meeting(votes, int(got[:, 4].max()), got[:, ROW_HEAD:].sum(axis=0).reshape(m, n_groups))
 
 

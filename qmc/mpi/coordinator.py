@@ -125,6 +125,7 @@ class Coordinator:
         self.last_retry = time.monotonic()
         self.index_interval = INDEX_INTERVAL
         self.finished_units: list[int] = []  # outcomes recorded, claims to release after the next write
+        self.reporting: dict[int, int] = {}  # unit -> ranks whose outcomes are still to come
         self.own_unit: int | None = None
         n_tasks = sum(len(u) for u in self.schedule.units)
         self.stats = FarmStats(ranks=world.size, units=len(self.schedule.units), tasks=n_tasks)
@@ -162,6 +163,7 @@ class Coordinator:
         """Bookkeeping of a placement: the index says queued (on a busy worker) or running, and where; the
         statistics count it."""
         tasks = self.schedule.units[p.unit]
+        self.reporting[p.unit] = len(p.ranks)
         self.previous.update(mark_running(self.plan.index, tasks, status, rank=min(p.ranks),
                                           process=self.shared.process))
         self.dirty = True
@@ -198,6 +200,14 @@ class Coordinator:
             elif o.status == "stopped":
                 self._stop(o.message or "stopped")
         self.dirty = True
+
+    def _reported(self, unit: int) -> None:
+        """One rank of ``unit`` has reported its outcomes; once all have, the unit's claims go with the next
+        index write (which holds the outcomes)."""
+        self.reporting[unit] = self.reporting.get(unit, 1) - 1
+        if self.reporting[unit] <= 0:
+            del self.reporting[unit]
+            self.finished_units.append(unit)
 
     def progressed(self, unit: int, steps_done: int, bins_done: int) -> None:
         """A running unit's tasks are at ``steps_done`` steps (each) and ``bins_done`` bins (-1: unknown)."""
@@ -240,7 +250,7 @@ class Coordinator:
             for level, text in msg.log_lines:
                 self.log.log(level, "rank %d: %s", rank, text)
             self._record(msg.outcomes, rank)
-            self.finished_units.append(msg.unit)
+            self._reported(msg.unit)
         elif isinstance(msg, Unstarted):
             self.schedule.handed_back(rank, msg.unit)
             tasks = self.schedule.units[msg.unit]
@@ -305,7 +315,7 @@ class Coordinator:
             self.own_unit = None
         self.schedule.returned(0, p.unit)
         self._record(outcomes, 0)
-        self.finished_units.append(p.unit)
+        self._reported(p.unit)
 
     def run(self) -> RunReport:
         t_start = time.perf_counter()

@@ -82,7 +82,8 @@ class _WorkerSink:
         self.per_task = max(1, steps_total_ // max(steps_total(self.first), 1))  # chains run here
         if self.report:
             self._send(steps_done, -1)
-        if self.prefetch:  # the answer waits in the queue while this unit runs
+        if self.prefetch:  # the answer waits in the queue while this unit runs; asked once per unit (a
+            self.prefetch = False  # ground-state search starts each stage of beta doubling anew)
             self.worker.channel.send(Request(prefetch=True), 0)
             self.worker.asked = True
 
@@ -168,9 +169,12 @@ class Worker:
                 continue
             if not isinstance(msg, Assign):
                 raise RuntimeError(f"rank 0 answered a request with {msg!r}")
-            if self._stopped() or msg.unit in self.dropped:  # (a unit taken back is not handed back twice)
-                if msg.unit not in self.dropped:
-                    self.channel.send(Unstarted(msg.unit), 0)
+            stopped = self._stopped()  # (reads a take-back of this very unit, too)
+            if msg.unit in self.dropped:  # the answer to a prefetch already handed back: skip it once (rank 0
+                self.dropped.discard(msg.unit)  # may give the same unit again later, and then it runs)
+                continue
+            if stopped:
+                self.channel.send(Unstarted(msg.unit), 0)
                 continue
             self.asked = False
             self._run(msg, setup)

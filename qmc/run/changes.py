@@ -2,7 +2,11 @@
 
 A run grows: a configuration with more scan points, or more bins of the same length, keeps every task file
 of the directory (finished tasks continue from their checkpoints, :mod:`qmc.run.task_identity`) and only
-adds work.  What cannot grow the run, and is refused unless forced:
+adds work.  A precision target (``[sampling] target``) decides only how many bins of a chain are made: a
+task that stopped at its target continues when the target changes or is removed, and one that has all its
+steps stays finished when a target is added.  ``[ground_state]`` is part of a task's chain
+(:func:`~qmc.run.task_identity.task_fingerprint`): a file of the same name made without it (or with
+another beta ladder) is another chain.  What cannot grow the run, and is refused unless forced:
 
 * other physics (master seed, lattice or terms, :func:`qmc.config.fingerprint.physics_fingerprint`): the
   old index and every task file whose chain is not exactly one of the new tasks' would mix with the new
@@ -16,6 +20,7 @@ file is kept.  :class:`Survey` says which is which and why, for the messages of 
 
 from __future__ import annotations
 
+import json
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -23,7 +28,7 @@ from typing import Any
 
 from qmc.config.parser import RunConfig, Task, load_config
 from qmc.errors import UserError
-from qmc.run.task_identity import BIN_LENGTH, CHAIN, LENGTH, WARMUP, finished, mismatch_text, stored_relation
+from qmc.run.task_identity import BIN_LENGTH, CHAIN, WARMUP, finished, mismatch_text, stored_relation
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import task_header, task_path
 
@@ -94,7 +99,9 @@ def _status(head: dict[str, Any], task: Task) -> tuple[str, str]:
     status = head.get("status", "")
     if status == "failed":
         return status, head.get("message", "")
-    if finished(task, status, int(head.get("checkpoint_steps_done", 0))):
+    target = json.loads(head["bins_target"]) if isinstance(head.get("bins_target"), str) else None
+    if finished(task, status, int(head.get("checkpoint_steps_done", 0)), target,
+                bool(head.get("bins_target_met", 0))):
         return "done", ""
     return "stopped", ""
 
@@ -162,7 +169,7 @@ def survey(config: RunConfig, run_dir: Path, force: bool) -> Survey:
         status, message = _status(head, task)
         out.status[tid] = (status, message, head)
         out.kept.append(tid)
-        if relation == LENGTH and head.get("status") == "done" and status != "done":
+        if head.get("status") == "done" and status != "done":  # more bins, or another target
             out.grown.append(tid)
     old_ids = [tid for tid in (index or {}).get("tasks", {}) if tid not in tasks]
     if physics:

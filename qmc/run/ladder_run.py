@@ -12,8 +12,10 @@ contiguous block of the chains and writing their task files through the shared p
 * decision points are the meetings: before each chunk a member casts its vote (stop if its stop flag is
   set or its time budget would not cover the rest of the interval and the next one; a failed write;
   a checkpoint due by its clock), and at the meeting all members act on all votes: stop if any member
-  asks, write when member 0's clock says so.  All files of a ladder thus always hold the same step, and
-  any error on one member is raised on all of them;
+  asks, write when member 0's clock says so.  The vote on the precision target is added by the ladder at
+  the meeting itself, from the bins at that step: the ladder is done when every chain meets its target.
+  All files of a ladder thus always hold the same step, and any error on one member is raised on all
+  of them;
 * each record carries the ladder state, the previous checkpoint and the ``/exchange`` group.
 
 Bins are bit-identical for every team size (tests/exchange/test_ladder_team.py, tests/mpi/test_mpi.py).
@@ -108,7 +110,8 @@ class LadderRun(TaskRun):
                 group[step] = cands[0][step][1]
                 if not all(_same_state(c[step][1], group[step]) for c in cands[1:]):
                     group[step] = None
-            done = all(f is not None and finished(book.task, f[0].status, f[0].steps_done)
+            done = all(f is not None and finished(book.task, f[0].status, f[0].steps_done,
+                                                    f[0].target, f[0].target_met)
                        for f, book in zip(found, self.books, strict=True))
             ended = {f[0].steps_done for f in found if f is not None and f[0].steps_done == f[0].steps_total}
             return {"done": done, "steps": local, "group": group, "ended": ended}
@@ -138,7 +141,7 @@ class LadderRun(TaskRun):
         """Build the ladder: from the start (``step`` None) or from every file's checkpoint at ``step``."""
         tasks, log = self.tasks, self.ctx.log
         if step is None:  # start over: some file never got past its first write (or none exists)
-            self.ladder = Ladder(tasks, self.all_models, team=self.team)
+            self.ladder = Ladder(tasks, self.all_models, team=self.team, watches=self.watches)
             for book, f in zip(self.books, found, strict=True):
                 book.keep_sessions(f[0] if f is not None else None)
             spread = self._spread()
@@ -148,7 +151,7 @@ class LadderRun(TaskRun):
                          self.ladder.total_steps, spread)
             return
         self.ladder = lad = Ladder(tasks, self.all_models, chain_states=[c[step][0] for c in cands],
-                                   group_state=cands[0][step][1], team=self.team)
+                                   group_state=cands[0][step][1], team=self.team, watches=self.watches)
         self.fresh = False
         for j, (book, f) in enumerate(zip(self.books, found, strict=True)):
             data, info = f
@@ -185,6 +188,12 @@ class LadderRun(TaskRun):
     def total_steps(self) -> int:
         assert self.ladder is not None
         return self.ladder.total_steps
+
+    @property
+    def target_reached(self) -> bool:
+        """Every chain of the ladder met its target at the last meeting (:attr:`Ladder.finished`)."""
+        assert self.ladder is not None
+        return self.ladder.finished
 
     def done_text(self) -> str:
         return f"{len(self.tasks)} chains, {self._chains()[0].bins_done} bins each"

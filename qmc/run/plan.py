@@ -21,6 +21,7 @@ from qmc.errors import UserError, did_you_mean
 from qmc.exchange.ladder import check_ladders
 from qmc.run.changes import survey
 from qmc.run.outcome import WHERE_KEYS
+from qmc.run.stopping import check_run_observables
 from qmc.run.task_identity import steps_total
 from qmc.storage.atomic import atomic_write_text, remove_leftovers
 from qmc.storage.claims import ClaimBook
@@ -111,6 +112,7 @@ def prepare_run(config: RunConfig, out: str | os.PathLike | None = None, *, only
         raise UserError(f"{run_dir / 'tasks'} exists and is not a directory", where)
     selected = _select(config, only)
     validate(config)
+    check_run_observables(config)
     check_ladders(config.tasks())
     fp = config_fingerprint(config)
 

@@ -50,6 +50,11 @@ class _UnitSink:
     def task_finished(self, status: str) -> None:
         self.progress.task_finished(status)
 
+    def message(self, text: str) -> None:
+        say = getattr(self.progress, "message", None)  # displays that show text lines
+        if say is not None:
+            say(text)
+
 
 def _stop_reason(stop_flag: StopSignal | None, deadline: float | None) -> str:
     if stop_flag is not None and stop_flag.is_set():

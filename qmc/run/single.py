@@ -3,7 +3,11 @@
 It builds the task's model, resumes from the task file's checkpoint if there is one (keeping its first
 ``bins_done`` bins; a finished file continues when the configuration now asks for more bins of the same
 length), and advances the chain along the shared path of :mod:`qmc.run.task_run`: every chunk
-boundary is a decision point, and chunks are shortened near a deadline.  It never touches the run index,
+boundary is a decision point, and chunks are shortened near a deadline.  A precision target is judged by
+the chain itself after every bin it completes (:meth:`Simulation.advance` with ``until``), so that it stops
+exactly at the first bin that meets it, whatever the chunks.  A task with ``[ground_state]`` runs in stages
+of doubling beta (:class:`~qmc.run.ground_state.GroundStateSearch`): when a stage is done the search decides
+whether another one follows.  It never touches the run index,
 so an MPI task farm may call it for different tasks on different ranks and let one rank update the index
 from the returned :class:`~qmc.run.outcome.TaskOutcome`.
 """
@@ -13,11 +17,14 @@ from __future__ import annotations
 import logging
 import os
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
 from qmc.chain.simulation import Simulation
 from qmc.config.parser import Task, build_model
+from qmc.errors import UserError
+from qmc.run.ground_state import GroundStateSearch
 from qmc.run.outcome import StopSignal, TaskOutcome
 from qmc.run.pacing import Pacer
 from qmc.run.progress import ProgressSink
@@ -35,25 +42,35 @@ class SingleRun(TaskRun):
         self.task = task
         self.label = f"task {task.task_id}"
         self.sim: Simulation | None = None
+        self.search: GroundStateSearch | None = None
 
     def _load(self) -> bool:
         task, s, book, model = self.task, self.task.sampling, self.books[0], self.models[0]
         kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
         data = book.read()
         log = self.ctx.log
+        beta = task.beta
+        if task.ground_state is not None:
+            self.search = GroundStateSearch(task, data.ground_state if data is not None else None,
+                                            str(book.path))
+            beta = self.search.beta
+        stage = f", stage {self.search.stage} of the beta doubling" if self.search is not None else ""
         if data is not None:
-            if finished(task, data.status, data.steps_done):
+            if finished(task, data.status, data.steps_done, data.target, data.target_met):
                 return False
-            sim = Simulation.restore(model, task.beta, state=data.checkpoint, **kw)
+            if self.search is not None and data.beta != beta:
+                raise UserError(f"damaged task file: its checkpoint is at beta {data.beta:g}, but its "
+                                f"finished stages of the beta doubling lead to beta {beta:g}", str(book.path))
+            sim = Simulation.restore(model, beta, state=data.checkpoint, **kw)
             book.resume(data, sim)
             self.fresh = False
             grown = " (more steps asked for than before)" if data.status == "done" else ""
-            log.info("task %s: resuming at step %d of %d (%d of %d bins)%s", task.task_id, sim.steps_done,
-                     sim.total_steps, sim.bins_done, s.bins, grown)
+            log.info("task %s: resuming at step %d of %d (%d of %d bins%s)%s", task.task_id, sim.steps_done,
+                     sim.total_steps, sim.bins_done, s.bins, stage, grown)
         else:
-            sim = Simulation(model, task.beta, seed_words=book.seed_words, **kw)
-            log.info("task %s: starting (%d sites, beta %g, %d steps)", task.task_id, model.n_sites,
-                     task.beta, sim.total_steps)
+            sim = Simulation(model, beta, seed_words=book.seed_words, **kw)
+            log.info("task %s: starting (%d sites, beta %g, %d steps%s)", task.task_id, model.n_sites,
+                     beta, sim.total_steps, stage)
         self.sim = sim
         book.begin_session(sim.steps_done)
         return True
@@ -70,6 +87,10 @@ class SingleRun(TaskRun):
     def total_steps(self) -> int:
         return self._chains()[0].total_steps
 
+    @property
+    def target_reached(self) -> bool:
+        return self.watches[0].met
+
     def done_text(self) -> str:
         return f"{self._chains()[0].bins_done} bins"
 
@@ -85,7 +106,33 @@ class SingleRun(TaskRun):
         return max(1, min(pacer.chunk, int(left / pacer.step_seconds)))
 
     def _advance(self, n: int) -> list[Sequence[np.ndarray]]:
-        return [self._chains()[0].advance(n)]
+        watch = self.watches[0]
+        return [self._chains()[0].advance(n, until=watch.take if watch.active else None)]
+
+    def _next_stage(self) -> bool:
+        """The stage is done: let the ground-state search decide; on to the next stage (True) or not."""
+        if self.search is None:
+            return False
+        book, sim = self.books[0], self._chains()[0]
+        nxt = self.search.finish_stage(sim, book.rows, self.target_reached)
+        if nxt is None:
+            betas = ", ".join(f"{st.beta:g}" for st in self.search.stages)
+            self.ctx.log.info("%s: ground-state search %s at beta %g (betas %s)", self.label,
+                              self.search.outcome, sim.beta, betas)
+            return False
+        self.ctx.log.info("%s: beta %g done (%d bins), doubling to beta %g", self.label, sim.beta,
+                          sim.bins_done, nxt.beta)
+        self.sim = nxt
+        book.rows = []
+        self.watches[0].reset([])
+        self.pending = True
+        self.ctx.sink.task_started(self.task.task_id, 0, nxt.total_steps, self.task.sampling.bins)
+        return True
+
+    def _extras(self, j: int, sim: Simulation) -> dict[str, Any]:
+        if self.search is None:
+            return {}
+        return {"ground_state": self.search.record()}
 
 
 def run_task(

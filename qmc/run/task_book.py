@@ -114,9 +114,11 @@ class TaskBook:
     def record(self, sim: Simulation, model: CompiledModel, status: str, source: ConfigSource, t: float, *,
                checkpoint: dict[str, np.ndarray] | None = None,
                checkpoint_attrs: dict[str, Any] | None = None,
-               exchange: dict[str, Any] | None = None) -> TaskRecord:
+               exchange: dict[str, Any] | None = None, bins_attrs: dict[str, Any] | None = None,
+               ground_state: dict[str, Any] | None = None) -> TaskRecord:
         """The file content now (time ``t``): the chain's bins and state, ``checkpoint`` arrays instead of
-        ``sim.state()`` and extra ``checkpoint_attrs`` if given, an ``/exchange`` group if given."""
+        ``sim.state()`` and extra ``checkpoint_attrs`` if given, an ``/exchange`` group if given, extra
+        attributes of ``/bins`` (the precision target) and a ``/ground_state`` group if given."""
         task = self.task
         self.session.update(stop=now_iso(t), steps_stop=sim.steps_done, ended=status,
                             seconds=round(t - self.session_start, 3))
@@ -132,15 +134,15 @@ class TaskBook:
             sessions=[dict(x) for x in self.sessions], bin_names=sim.bin_names,
             bins=np.array(self.rows, dtype=np.float64).reshape(len(self.rows), ncol),
             bins_attrs={"steps_per_bin": sim.steps_per_bin, "n_sites": model.n_sites,
-                        "linear_size": model.linear_size, "beta": float(task.beta),
+                        "linear_size": model.linear_size, "beta": float(sim.beta),
                         "bins_total": task.sampling.bins, "warmup_steps": sim.warmup_steps,
-                        "measure_steps": sim.measure_steps},
+                        "measure_steps": sim.measure_steps, **(bins_attrs or {})},
             vbs_histogram=np.array(sim.vbs_histogram), vbs_hist_range=sim.vbs_hist_range,
             checkpoint=checkpoint if checkpoint is not None else sim.state(),
             checkpoint_attrs={"steps_done": sim.steps_done, "bins_done": sim.bins_done,
                               "steps_total": sim.total_steps, "time": t, "time_iso": now_iso(t),
                               **(checkpoint_attrs or {})},
-            exchange=exchange,
+            exchange=exchange, ground_state=ground_state,
         )
 
     def write(self, record: TaskRecord) -> None:

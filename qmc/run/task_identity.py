@@ -37,7 +37,9 @@ CHAIN = "chain"
 
 def task_fingerprint(task: Task) -> str:
     """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream;
-    with replica exchange also the exchanged parameter, the ladder and the exchange interval)."""
+    with replica exchange also the exchanged parameter, the ladder and the exchange interval; with beta
+    doubling its beta ladder and the observables that decide when it ends).  A precision target does not
+    enter: it decides only how many of the chain's bins are made, never what they are."""
     s = task.sampling
     content = {"seed": task.seed, "seed_key": task.seed_key, "lattice": task.lattice_kind,
                "size": list(task.size), "boundary": task.boundary, "explicit": task.explicit,
@@ -47,13 +49,19 @@ def task_fingerprint(task: Task) -> str:
         content["exchange"] = [task.exchange, task.exchange_group, s.exchange_every]
     if task.colors != 2:  # likewise: S = 1/2 tasks keep their fingerprints
         content["colors"] = task.colors
+    if task.ground_state is not None:  # likewise
+        g = task.ground_state
+        content["ground_state"] = [repr(float(g.start_beta)), repr(float(g.max_beta)), list(g.observables)]
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
 
 
 def task_weight(task: Task) -> float:
-    """Relative cost of one Monte Carlo step of ``task``: (cells) * beta, as a step costs ~ N beta."""
-    return float(math.prod(task.size)) * float(task.beta)
+    """Relative cost of one Monte Carlo step of ``task``: (cells) * beta, as a step costs ~ N beta (for a
+    ground-state search, max_beta: its stages cost most at the largest beta they may reach)."""
+    gs = getattr(task, "ground_state", None)  # scheduling tests pass plain stand-ins without it
+    beta = gs.max_beta if gs is not None else task.beta
+    return float(math.prod(task.size)) * float(beta)
 
 
 def steps_total(task: Task) -> int:
@@ -66,10 +74,19 @@ def steps_per_bin(task: Task) -> int:
     return task.sampling.measure_steps // max(task.sampling.bins, 1)
 
 
-def finished(task: Task, status: str, steps_done: int) -> bool:
-    """Whether a file of ``task`` (status and checkpoint step as stored) has all the steps the task asks
-    for: a file finished for fewer steps continues."""
-    return status == "done" and steps_done >= steps_total(task)
+def finished(task: Task, status: str, steps_done: int, target: list | None = None,
+             target_met: bool = False) -> bool:
+    """Whether a file of ``task`` (status, checkpoint step, precision target and whether the run ended
+    with it met, as stored) is finished for the task: it has all the steps the task asks for, or it ended
+    because it met exactly the target the task still sets.  A file finished for fewer steps, or stopped by
+    another target (or by a target the task no longer has), continues: the same chain, judged by the
+    task's target from its stored bins on."""
+    if status != "done":
+        return False
+    if steps_done >= steps_total(task):
+        return True
+    return bool(target_met) and target is not None and [list(g) for g in target] == [
+        list(g) for g in task.sampling.target]
 
 
 def with_length(task: Task, *, bins: int, measure_steps: int, warmup_steps: int | None = None) -> Task:

@@ -5,6 +5,9 @@ Shared by both:
 
 * the set-up: one :class:`~qmc.run.task_book.TaskBook` per task run here (its file, bins, sessions), the
   configuration text the files record, the checkpoint interval;
+* the precision target of every chain (:attr:`TaskRun.watches`, :mod:`qmc.run.stopping`): fed with the
+  bins of a resumed file here, with new bins by the chains as they complete them; a run whose target is
+  reached (:attr:`TaskRun.target_reached`) is done;
 * the loop (:meth:`TaskRun.execute`): advance in chunks of about ``CHUNK_SECONDS`` (:class:`Pacer`;
   chunking never changes results), add completed bins to the books, report progress, and at every
   *decision point* stop (stop flag, or the ``deadline`` would be passed) or rewrite the files
@@ -40,6 +43,7 @@ from qmc.models.compiled import CompiledModel
 from qmc.run.outcome import StopSignal, TaskOutcome, failure_message
 from qmc.run.pacing import Pacer, write_due
 from qmc.run.progress import NullProgress, ProgressSink
+from qmc.run.stopping import target_attrs, target_watch
 from qmc.run.task_book import ConfigSource, TaskBook, config_source
 from qmc.run.task_identity import steps_total
 from qmc.storage.faults import WriteFault
@@ -85,7 +89,8 @@ class TaskRun:
 
     Subclasses set :attr:`label` and implement :meth:`done_text`, :meth:`_load`, :meth:`_chains`,
     :attr:`steps_done`, :attr:`total_steps`, :meth:`_chunk`, :meth:`_advance` and :meth:`_decision`;
-    :meth:`_extras` and :meth:`_written` add to the records.  ``speaks`` is False on the members of a
+    :meth:`_extras` and :meth:`_written` add to the records, :attr:`target_reached` and :meth:`_next_stage`
+    say when a run is done.  ``speaks`` is False on the members of a
     team that leave the log lines about the whole unit to member 0.
     """
 
@@ -96,6 +101,7 @@ class TaskRun:
         self.ctx = ctx
         self.books = [TaskBook(t, ctx.run_dir) for t in tasks]
         self.models = list(models)
+        self.watches = [target_watch(t, m) for t, m in zip(tasks, models, strict=True)]
         self.interval = float(ctx.checkpoint_seconds or tasks[0].sampling.checkpoint_seconds)
         self.stop_reason = ""
         self.fresh = True  # set by _load: no checkpoint was restored
@@ -123,8 +129,13 @@ class TaskRun:
         raise NotImplementedError
 
     @property
+    def target_reached(self) -> bool:
+        """Whether the run ended because its precision target was met (the chains' say, see subclasses)."""
+        return False
+
+    @property
     def done(self) -> bool:
-        return self.steps_done >= self.total_steps
+        return self.steps_done >= self.total_steps or self.target_reached
 
     def done_text(self) -> str:
         """What the log says about a finished run, e.g. ``"20 bins"``."""
@@ -145,6 +156,11 @@ class TaskRun:
     def _extras(self, j: int, sim: Simulation) -> dict[str, Any]:
         """Keyword arguments for :meth:`TaskBook.record` of book ``j`` besides the chain (none here)."""
         return {}
+
+    def _next_stage(self) -> bool:
+        """Called when the run is done: True when it went on to a new stage instead (a ground-state
+        search), so that the loop goes on; False (here) to finish."""
+        return False
 
     def _written(self, j: int) -> None:
         """Book ``j`` has just been written."""
@@ -176,8 +192,11 @@ class TaskRun:
         if self._source is None:
             self._source = config_source(self.ctx.run_dir, self.books[0].task, self.ctx.config_text,
                                          self.ctx.config_fingerprint)
+        met = self.target_reached
         for j, (book, sim, model) in enumerate(zip(self.books, self._chains(), self.models, strict=True)):
-            book.write(book.record(sim, model, status, self._source, t, **self._extras(j, sim)))
+            extras = self._extras(j, sim)
+            extras["bins_attrs"] = {**target_attrs(self.watches[j], met), **extras.get("bins_attrs", {})}
+            book.write(book.record(sim, model, status, self._source, t, **extras))
             self._written(j)
         self.write_seconds = time.perf_counter() - t0
         self.last_write = time.monotonic()
@@ -207,13 +226,15 @@ class TaskRun:
         if not self.fresh and self.steps_done > 0 and self.speaks and say is not None:
             say(f"resuming {self.label} at step {self.steps_done} of {self.total_steps} "
                 f"({self._chains()[0].bins_done} of {bins_total} bins)")
+        for watch, book in zip(self.watches, self.books, strict=True):
+            watch.reset(book.rows)
         ctx.sink.task_started(first.task.task_id, m * self.steps_done, m * self.total_steps, bins_total)
         if self.fresh:  # the files exist from the first step on
             self._write_running()
         self.last_write = time.monotonic()
         self.pending = False
         pacer = Pacer()
-        while not self.done:
+        while not self.done or self._next_stage():
             decision = self._decision()
             if decision is not None and decision.stop:
                 self.stop_reason = decision.stop
@@ -232,7 +253,8 @@ class TaskRun:
         status = "done" if self.done else "stopped"
         self._write(status)
         if self.speaks and status == "done":
-            ctx.log.info("%s: done (%s)", self.label, self.done_text())
+            met = ", precision target met" if self.target_reached else ""
+            ctx.log.info("%s: done (%s%s)", self.label, self.done_text(), met)
         elif self.speaks:
             ctx.log.info("%s: stopped at step %d of %d (%s); checkpoint written", self.label, self.steps_done,
                          self.total_steps, self.stop_reason)

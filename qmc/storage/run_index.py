@@ -3,9 +3,10 @@
 Written by the process running the tasks (the serial runner, or rank 0 of an MPI farm), always atomically
 (:mod:`qmc.storage.atomic`).  When several processes share the run directory (a job array, or MPI jobs
 and serial jobs together, :mod:`qmc.storage.claims`), each keeps only the entries of the tasks it holds
-claims on: :func:`write_index` with ``mine`` reads the file first, under a lock on ``RUN_DIR/index.lock``
-(``fcntl.lockf``), and takes every other entry from it.  An index of the earlier format name is read as
-it is (:mod:`qmc.storage.formats`) and rewritten under the current name.
+claims on: :func:`write_index` with ``mine`` reads the file first, under a lock on
+``RUN_DIR/claims/index.lock`` (``fcntl.lockf``, beside the claims), and takes every other entry from it.
+An index of the earlier format name is read as it is (:mod:`qmc.storage.formats`) and rewritten under the
+current name.
 """
 
 from __future__ import annotations
@@ -27,7 +28,7 @@ from qmc.storage.provenance import now_iso
 __all__ = ["INDEX_NAME", "LOCK_NAME", "index_path", "new_index", "load_index", "write_index"]
 
 INDEX_NAME = "index.json"
-LOCK_NAME = "index.lock"
+LOCK_NAME = "claims/index.lock"
 
 
 def index_path(run_dir: str | os.PathLike) -> Path:
@@ -92,7 +93,7 @@ def load_index(run_dir: str | os.PathLike) -> dict[str, Any] | None:
 
 @contextmanager
 def _locked(run_dir: str | os.PathLike) -> Iterator[None]:
-    """Hold the lock of the run index (``RUN_DIR/index.lock``, ``fcntl.lockf``; none where there is no
+    """Hold the lock of the run index (``RUN_DIR/claims/index.lock``, ``fcntl.lockf``; none where there is no
     ``fcntl``).  Taken for the moment of a read-and-write, by the processes sharing a run directory."""
     try:
         import fcntl
@@ -101,6 +102,7 @@ def _locked(run_dir: str | os.PathLike) -> Iterator[None]:
         return
     path = Path(run_dir) / LOCK_NAME
     try:
+        path.parent.mkdir(exist_ok=True)
         fh = open(path, "a+b")
     except OSError as exc:
         raise write_fault(path, exc) from None

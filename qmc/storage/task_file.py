@@ -13,11 +13,16 @@ have the same layout and are read too, see :mod:`qmc.storage.formats`)::
                       observable name.  Names containing "/" ("stiffness/x") are stored as "stiffness:x",
                       because "stiffness" itself is a dataset and cannot also be a group.
     /bins             attrs names (column order), steps_per_bin, n_sites, linear_size, beta, bins_total,
-                      warmup_steps, measure_steps
+                      warmup_steps, measure_steps; with a precision target also target (JSON list of
+                      [observable, error, relative]) and target_met (1: the run ended with it met)
     /vbs_histogram    int64[nh, nh] counts of (D_x, D_y), attr range r (edges linspace(-r, r, nh+1))
     /checkpoint/<key> Simulation.state() arrays; attrs steps_done, bins_done, steps_total, time, time_iso
     /exchange         optional, written by replica exchange (:mod:`qmc.exchange.records`): attrs for scalars
                       and short lists, datasets for numpy arrays, subgroups for nested mappings
+    /ground_state     optional, written by a ground-state search by beta doubling
+                      (:mod:`qmc.run.ground_state`): its settings and outcome, and the bins of every
+                      finished stage (same storage rules);
+                      /bins then holds the current (last) stage and its beta
 
 Crash safety: :func:`write_task` builds the new file in memory and replaces the whole file atomically
 (:mod:`qmc.storage.atomic`), so a kill at any moment leaves the previous complete file, and a full disk or
@@ -59,7 +64,9 @@ class TaskData:
 
     ``bins[name]`` is float64[bins_done] (bin averages); ``vbs_histogram`` is None when the lattice has no
     two-direction valence-bond order parameter.  ``checkpoint`` holds the Simulation state arrays only when
-    requested (``read_task(path, with_checkpoint=True)``).
+    requested (``read_task(path, with_checkpoint=True)``).  ``target`` lists the goals of a precision
+    target (``[observable, error, relative]``, None without one) and ``target_met`` whether the run ended
+    with it met; ``ground_state`` is the ``/ground_state`` group of a search by beta doubling (else None).
     """
 
     task_id: str
@@ -89,6 +96,9 @@ class TaskData:
     provenance: dict[str, Any] = field(default_factory=dict)
     model_info: dict[str, Any] = field(default_factory=dict)
     checkpoint: dict[str, np.ndarray] | None = None
+    target: list | None = None
+    target_met: bool = False
+    ground_state: dict[str, Any] | None = None
 
 
 @dataclass
@@ -114,6 +124,7 @@ class TaskRecord:
     checkpoint_attrs: Mapping[str, Any]
     message: str = ""
     exchange: Mapping[str, Any] | None = None
+    ground_state: Mapping[str, Any] | None = None
 
 
 def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
@@ -127,9 +138,11 @@ def task_path(run_dir: str | os.PathLike, task_id: str) -> Path:
 def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
     """Write the whole task file atomically; refuses to replace a file that is not this task's file.
 
-    The file is built in memory (HDF5 core driver without backing store) and its bytes are written with
-    plain system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
+    The file is built in memory (an ``io.BytesIO`` opened by h5py) and its bytes are written with plain
+    system calls (:func:`~qmc.storage.atomic.atomic_write_bytes`): a refused write raises
     :class:`~qmc.storage.faults.WriteFault`, the previous file stays, no temporary file is left."""
+    import io
+
     import h5py
 
     path = Path(path)
@@ -138,11 +151,10 @@ def write_task(path: str | os.PathLike, record: TaskRecord) -> None:
         if head["task_id"] != record.task_id:
             raise UserError(f"holds task {head['task_id']!r}, not {record.task_id!r}; not overwriting it",
                             str(path))
-    with h5py.File(f"{record.task_id}.h5", "w", driver="core", backing_store=False) as f:
+    image = io.BytesIO()
+    with h5py.File(image, "w") as f:
         _fill(f, record)
-        f.flush()
-        image = f.id.get_file_image()
-    atomic_write_bytes(path, image)
+    atomic_write_bytes(path, image.getbuffer())
 
 
 def _fill(f: Any, rec: TaskRecord) -> None:
@@ -185,6 +197,8 @@ def _fill(f: Any, rec: TaskRecord) -> None:
         g.attrs[k] = v
     if rec.exchange is not None:
         fill_mapping(f.create_group("exchange"), rec.exchange)
+    if rec.ground_state is not None:
+        fill_mapping(f.create_group("ground_state"), rec.ground_state)
 
 
 # ----------------------------------------------------------------------------------------------------------
@@ -298,6 +312,7 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
     if isinstance(prov.get("sessions"), str):
         prov["sessions"] = json.loads(prov["sessions"])
     exchange = read_mapping(f["exchange"]) if "exchange" in f else None
+    ground_state = read_mapping(f["ground_state"]) if "ground_state" in f else None
     model_info = {}
     if "model" in f:
         for key in ("n_sites", "linear_size", "lattice_kind", "group_names", "dir_names"):
@@ -337,6 +352,9 @@ def _read(f: Any, path: Path, with_checkpoint: bool) -> TaskData:
         provenance=prov,
         model_info=model_info,
         checkpoint={k: np.asarray(v[()]) for k, v in cp.items()} if with_checkpoint else None,
+        target=json.loads(plain(ba["target"])) if "target" in ba else None,
+        target_met=bool(plain(ba.get("target_met", 0))),
+        ground_state=ground_state,
     )
 
 

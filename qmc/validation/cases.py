@@ -13,6 +13,8 @@ results into :class:`~qmc.validation.checks.Check` rows.  Case families (builder
   Binder ratio and of rho_s L, against Wang, Beach and Sandvik (2006).
 * :func:`qmc.validation.colour_cases.sun_order_case` -- the SU(N) Heisenberg model: Neel order for N = 4,
   valence-bond order for N = 5 (Harada, Kawashima and Troyer 2003; Beach, Alet, Mambrini and Capponi 2009).
+* :mod:`qmc.validation.directed_cases` -- XXZ clusters in a field against exact diagonalization, the
+  saturation field of the square lattice, the XY model's Kosterlitz-Thouless temperature.
 
 :func:`build_cases` assembles the ``quick`` and ``thorough`` suites.  Statistical errors: binning analysis
 of the bins (:func:`qmc.analysis.error_estimate`), jackknife with binning for ratios
@@ -34,12 +36,10 @@ from qmc.analysis.size_extrapolation import default_powers, full_vector_magnetis
 from qmc.errors import UserError
 from qmc.models import HeisenbergTerm, ProjectorProductTerm
 
-from .case_base import Case
-from .case_base import mean_error as _mean_error
-from .case_base import merged as _merged
-from .case_base import simulations as _sims
+from .case import Case, mean_error, merged, sim_jobs
 from .checks import Check
 from .colour_cases import sun_order_case
+from .directed_cases import kt_case, saturation_case, xxz_cluster_case
 from .exact.bethe import chain_ground_state_energy
 from .exact.clusters import cluster_observables
 from .jobs import ExactJob, ModelSpec, SimJob
@@ -89,7 +89,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
     n_sites = int(np.prod(size)) * (2 if kind == "bilayer" else 1)
     spec = _cluster_model(kind, size, J, Q, J_inter)
     density = 0.3 * (abs(J) * (1 if kind == "chain" else 2) + abs(J_inter) + 2 * abs(Q)) + 0.3
-    sims = _sims(f"cluster/{label}/beta={beta:g}", spec, beta, warmup, measure, bins, n_sites, density,
+    sims = sim_jobs(f"cluster/{label}/beta={beta:g}", spec, beta, warmup, measure, bins, n_sites, density,
                  max_seconds)
     exact = ExactJob(f"exact/{label}/beta={beta:g}", cluster_observables,
                      dict(kind=kind, size=size, beta=float(beta), J=J, Q=Q, J_inter=J_inter),
@@ -100,7 +100,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
             f"specific heat by jackknife")
 
     def evaluate(results: Mapping[str, Any]) -> list[Check]:
-        res = _merged(results, sims)
+        res = merged(results, sims)
         ref = results[exact.key]
         derived = derived_estimates(res.bins, res.n_sites, res.linear_size, names=("specific_heat",))
         out = []
@@ -108,7 +108,7 @@ def cluster_case(label: str, kind: str, size: Sequence[int], beta: float, *, J: 
             if obs == "specific_heat":
                 value, err = derived[obs].value, derived[obs].error
             else:
-                value, err = _mean_error(res.bins[obs])
+                value, err = mean_error(res.bins[obs])
             out.append(Check(f"{name}: {obs}", value, err, computed(ref[obs]), 0.0, note))
         return out
 
@@ -139,8 +139,8 @@ def chain_energy_case(sizes: Sequence[int], *, beta_per_L: float = 4.0, warmup: 
     for L in sizes:
         spec = ModelSpec("chain", (L,), (HeisenbergTerm("nn", 1.0),))
         beta = beta_per_L * L
-        jobs[L] = _sims(f"chain/L={L}/beta={beta:g}", spec, beta, warmup, (measure_for or {}).get(L, measure),
-                        bins, L, 0.7, max_seconds)
+        jobs[L] = sim_jobs(f"chain/L={L}/beta={beta:g}", spec, beta, warmup,
+                           (measure_for or {}).get(L, measure), bins, L, 0.7, max_seconds)
     name = "chain e0"
     listed = ", ".join(map(str, sizes))
     fit_note = (f"chain e_inf: weighted fit e(L) = e_inf - a/L^2 (leading CFT correction, "
@@ -153,7 +153,7 @@ def chain_energy_case(sizes: Sequence[int], *, beta_per_L: float = 4.0, warmup: 
         out = []
         e, de, exact = [], [], []
         for L in sizes:
-            value, err = _mean_error(_merged(results, jobs[L]).bins["energy"])
+            value, err = mean_error(merged(results, jobs[L]).bins["energy"])
             gap, beta = _chain_gap_floor(L), beta_per_L * L
             thermal = 3.0 * gap * math.exp(-beta * gap) / L
             ref = chain_ground_state_energy(L)
@@ -208,8 +208,8 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
     jobs = {}
     for L in sizes:
         spec = ModelSpec("square", (L, L), (HeisenbergTerm("nn", 1.0),))
-        jobs[L] = _sims(f"square/L={L}/beta={square_beta(L):g}", spec, square_beta(L), warmup,
-                        (measure_for or {}).get(L, measure), bins, L * L, 1.2, max_seconds)
+        jobs[L] = sim_jobs(f"square/L={L}/beta={square_beta(L):g}", spec, square_beta(L), warmup,
+                           (measure_for or {}).get(L, measure), bins, L * L, 1.2, max_seconds)
     span = f"L={sizes[0]}..{sizes[-1]}"
     e_note = (f"square e0: fit e(L) = e_inf + a/L^3 + b/L^4 to {span} at beta = max(64, L^2/2); sys = "
               f"change of e_inf when the smallest L is left out")
@@ -217,7 +217,7 @@ def square_ground_state_cases(sizes: Sequence[int], *, warmup: int = 5000, measu
               f"when the smallest L is left out")
 
     def series(results: Mapping[str, Any], obs: str) -> tuple[list[float], list[float]]:
-        pairs = [_mean_error(_merged(results, jobs[L]).bins[obs]) for L in sizes]
+        pairs = [mean_error(merged(results, jobs[L]).bins[obs]) for L in sizes]
         return [p[0] for p in pairs], [p[1] for p in pairs]
 
     def evaluate_energy(results: Mapping[str, Any]) -> list[Check]:
@@ -256,9 +256,9 @@ def bilayer_critical_case(sizes: Sequence[int], couplings: Sequence[float], *, b
     for L in sizes:
         for g in couplings:
             spec = ModelSpec("bilayer", (L, L), (HeisenbergTerm("intra", 1.0), HeisenbergTerm("inter", g)))
-            jobs[L, g] = _sims(f"bilayer/L={L}/g={g:.4f}/beta={beta_per_L * L:g}", spec, beta_per_L * L,
-                               warmup, (measure_for or {}).get(L, measure), bins, 2 * L * L,
-                               0.3 * (4 + g) + 0.3, max_seconds)
+            jobs[L, g] = sim_jobs(f"bilayer/L={L}/g={g:.4f}/beta={beta_per_L * L:g}", spec, beta_per_L * L,
+                                  warmup, (measure_for or {}).get(L, measure), bins, 2 * L * L,
+                                  0.3 * (4 + g) + 0.3, max_seconds)
     L1, L2 = (sizes[-2], sizes[-1]) if len(sizes) >= 2 else (sizes[0], sizes[0])
     name = f"bilayer g_c (L={L1},{L2})"
 
@@ -267,7 +267,7 @@ def bilayer_critical_case(sizes: Sequence[int], couplings: Sequence[float], *, b
         for L in (L1, L2):
             rows = {q: ([], [], []) for q in curves}
             for g in couplings:
-                res = _merged(results, jobs[L, g])
+                res = merged(results, jobs[L, g])
                 est = derived_estimates(res.bins, res.n_sites, res.linear_size, names=tuple(curves))
                 for q in curves:
                     rows[q][0].append(g)
@@ -303,6 +303,8 @@ def build_cases(mode: str) -> list[Case]:
                               max_seconds=40.0),
             cluster_case("4x4 Heisenberg", "square", (4, 4), 4.0, measure=400_000),
             cluster_case("4x4 J-Q2 (Q/J=1)", "square", (4, 4), 2.0, Q=1.0, measure=400_000),
+            xxz_cluster_case("chain L=12 xxz (delta=0.5, h=0.6)", "chain", (12,), 2.0, 1.0, 0.5, 0.6,
+                             measure=400_000),
         ]
     if mode == "thorough":
         long = 1200.0  # split longer simulations into replicas (seconds, estimated)
@@ -321,5 +323,13 @@ def build_cases(mode: str) -> list[Case]:
             bilayer_critical_case((8, 16, 32), [2.44 + 0.02 * k for k in range(8)], measure=40_000,
                                   max_seconds=long),
             *(sun_order_case(N, (8, 12, 16, 24, 32), measure=100_000, max_seconds=long) for N in (4, 5)),
+            xxz_cluster_case("4x4 easy-plane (delta=0.5, h=0.8)", "square", (4, 4), 2.0, 1.0, 0.5, 0.8,
+                             measure=2_000_000, max_seconds=long),
+            xxz_cluster_case("4x4 easy-axis (delta=2, h=1.5)", "square", (4, 4), 2.0, 1.0, 2.0, 1.5,
+                             measure=2_000_000, max_seconds=long),
+            xxz_cluster_case("4x4 XY ferromagnet (h=0.3)", "square", (4, 4), 2.0, -1.0, 0.0, 0.3,
+                             measure=2_000_000, max_seconds=long),
+            saturation_case(16, (4.5, 5.0), 16.0, max_seconds=long),
+            kt_case((8, 16, 32, 64), [0.32 + 0.01 * k for k in range(12)], max_seconds=long),
         ]
     raise UserError(f"unknown mode {mode!r}; choose one of {', '.join(MODES)}", "qmc validate")

@@ -26,7 +26,7 @@ from typing import Any
 from qmc.analysis import error_estimate
 from qmc.models import ProjectorTerm
 
-from .case_base import Case, merged, simulations
+from .case import Case, merged, sim_jobs
 from .checks import Check
 from .jobs import ModelSpec
 from .references import SUN_NEEL_VBS_SOURCE, short_ranged
@@ -46,8 +46,8 @@ def sun_order_case(N: int, sizes: Sequence[int], *, warmup: int = 5000, measure:
     jobs = {}
     for L in sizes:
         spec = ModelSpec("square", (L, L), (ProjectorTerm("nn", 1.0),), colours=N)
-        jobs[L] = simulations(f"su{N}/L={L}/beta={L}", spec, float(L), warmup,
-                              (measure_for or {}).get(L, measure), bins, L * L, 1.6, max_seconds)
+        jobs[L] = sim_jobs(f"su{N}/L={L}/beta={L}", spec, float(L), warmup,
+                           (measure_for or {}).get(L, measure), bins, L * L, 1.6, max_seconds)
     neel = N <= 4
     ref = short_ranged(SUN_NEEL_VBS_SOURCE)
     name = f"SU({N}) {'Neel' if neel else 'VBS'} order"

@@ -374,6 +374,7 @@ def test_run_help_documents_the_exit_status():
     text = invoke("run", "--help").stdout
     assert f"{EXIT_UNFINISHED}  stopped before the end (SIGTERM, Ctrl-C, --max-time)" in text
     assert "run the same command again to continue" in text and "2   bad input" in text
+    assert "74  the machine refused a write" in text
     assert f"exit status {EXIT_UNFINISHED}" in " ".join(text.split())  # --max-time
     readme = (REPO / "README.md").read_text()
     assert f"**{EXIT_UNFINISHED} when it stopped before the end**" in readme

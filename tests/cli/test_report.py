@@ -122,7 +122,8 @@ def test_the_page_holds_everything_and_needs_nothing_else(report):
     csv = next(h for h in page.links if h.startswith("data:text/csv;base64,"))
     assert base64.b64decode(csv.split(",", 1)[1]).decode().startswith("L,beta,g,task,")
     added = sorted(p.name for p in run_dir.iterdir())
-    assert added == ["config.toml", "index.json", "report.html", "run.log", "tasks"]  # the page alone added
+    # the page alone added (claims/ holds the index lock and, while tasks run, their claims)
+    assert added == ["claims", "config.toml", "index.json", "report.html", "run.log", "tasks"]
 
 
 CHECK = """<script>

@@ -521,7 +521,8 @@ def test_templates_load_and_validate(tmp_path, kind):
 
 
 def test_template_kinds():
-    assert set(TEMPLATES) == {"heisenberg", "bilayer", "columnar-dimer", "jq2", "jq3", "su3-jq2"}
+    assert set(TEMPLATES) == {"heisenberg", "bilayer", "columnar-dimer", "jq2", "jq3", "su3-jq2",
+                              "bilayer-field"}
     with pytest.raises(UserError, match="did you mean 'bilayer'"):
         template("bilayr")
 

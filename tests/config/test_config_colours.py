@@ -51,6 +51,11 @@ BAD = [
                                        terms='[[terms]]\ntype = "heisenberg"\nbonds = "nn"\ncoupling = 1.0\n'
                                              + QCHAIN),
      "terms[0].type", ["not 4", "N=4", "projector"]),
+    ("xxz-su3", text(terms=QCHAIN + '[[terms]]\ntype = "xxz"\nbonds = "nn"\ncoupling = 1.0\ndelta = 0.5\n'),
+     "terms[1].type", ["an xxz term", "colors = 2, not 3"]),
+    ("field-scanned-colors", text(model='[model]\ncolors = "N"\n', scan=SCAN + "N = [2, 3]\n",
+                                  terms=QCHAIN + '[[terms]]\ntype = "field"\ncoupling = 0.5\n'),
+     "terms[1].type", ["a field term", "not 3", "N=3"]),
     ("projector-needs-bonds", text(terms='[[terms]]\ntype = "projector"\ncoupling = 1.0\n'), "terms[0].bonds",
      ["missing required key 'bonds'"]),
     ("projector-negative", text(terms=PROJ.replace("1.0", "-1.0")), "terms[0].coupling", ["negative"]),

@@ -10,17 +10,24 @@ mostly its start-up.
 from __future__ import annotations
 
 import os
-import shutil
 import signal
-import subprocess
-import sys
 import time
 from pathlib import Path
 
 import h5py
 import numpy as np
 import pytest
-from helpers.configs import JQ2_TERMS, heisenberg_nn, write_config
+from helpers.mpi_runs import (
+    EXCHANGE,
+    EXCHANGE_ONE_RANK,
+    MPIEXEC,
+    PLAIN,
+    all_bins,
+    assert_same_bins,
+    qmc_run,
+    start,
+    write,
+)
 
 from qmc.cli.run import EXIT_UNFINISHED
 from qmc.config.parser import load_config
@@ -35,55 +42,7 @@ from qmc.storage.task_file import read_task, task_path
 pytest.importorskip("mpi4py")
 
 
-def _mpiexec() -> str | None:
-    here = Path(sys.executable).parent / "mpiexec"
-    return str(here) if here.exists() else shutil.which("mpiexec")
-
-
-MPIEXEC = _mpiexec()
 pytestmark = pytest.mark.skipif(MPIEXEC is None, reason="no mpiexec beside the Python interpreter or on PATH")
-
-
-
-
-# keywords of helpers.configs.write_config, without measure_steps and bins (see write below)
-PLAIN = dict(seed=31, terms=[heisenberg_nn("J")], scan={"L": [4, 6], "J": [1.0, 1.5, 2.0], "beta": 1.5},
-             warmup_steps=100, checkpoint_seconds=0.3)
-EXCHANGE = dict(seed=32, terms=JQ2_TERMS, scan={"L": [4], "Q": [0.5, 0.75, 1.0], "beta": 2.0},
-                warmup_steps=200, copies=2, checkpoint_seconds=0.3, exchange={"along": "Q", "every": 4})
-EXCHANGE_ONE_RANK = dict(EXCHANGE, exchange={"along": "Q", "every": 4, "max_ranks": 1})
-
-
-def write(tmp: Path, template: dict, name: str, measure: int = 2000, bins: int = 10) -> Path:
-    return write_config(tmp, name, **template, measure_steps=measure, bins=bins)
-
-
-def qmc_run(config: Path, out: Path, ranks: int | None = None, *extra: str, env: dict | None = None,
-            timeout: float = 180) -> subprocess.CompletedProcess:
-    cmd = [sys.executable, "-m", "qmc", "run", str(config), "--quiet", "--out", str(out), *extra]
-    if ranks is not None:
-        cmd = [MPIEXEC, "-n", str(ranks), *cmd]
-    full_env = dict(os.environ, PYTHONUNBUFFERED="1", **(env or {}))
-    return subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, env=full_env)
-
-
-def start(config: Path, out: Path, ranks: int, *extra: str) -> subprocess.Popen:
-    cmd = [MPIEXEC, "-n", str(ranks), sys.executable, "-m", "qmc", "run", str(config), "--quiet", "--out",
-           str(out), *extra]
-    return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            env=dict(os.environ, PYTHONUNBUFFERED="1"))
-
-
-def all_bins(run_dir: Path, config: Path) -> dict[str, dict[str, np.ndarray]]:
-    return {t.task_id: read_task(task_path(run_dir, t.task_id)).bins for t in load_config(config).tasks()}
-
-
-def assert_same_bins(a: dict, b: dict) -> None:
-    assert set(a) == set(b)
-    for tid in a:
-        assert set(a[tid]) == set(b[tid])
-        for name in a[tid]:
-            assert np.array_equal(a[tid][name], b[tid][name]), f"{tid} {name}"
 
 
 # ------------------------------------------------------------------------------------------- detection
@@ -246,7 +205,7 @@ EQUAL = dict(seed=33, size=[6, 6], scan={"beta": 3.0}, warmup_steps=200, copies=
 def test_index_shows_queued_units_and_live_counters(tmp_path):
     """Six equal tasks on two ranks: a prefetched task reads "queued" with its rank until the rank starts it,
     and the steps of running tasks move while they run (not only at checkpoints: 60 s here)."""
-    config = write(tmp_path, EQUAL, "c.toml", measure=150000, bins=20)
+    config = write(tmp_path, EQUAL, "c.toml", measure=650000, bins=20)  # ~4 s a task on an idle machine
     run_dir = tmp_path / "run"
     proc = start(config, run_dir, 2)
     seen: dict[str, list[tuple[str, int | None, int]]] = {}
@@ -273,7 +232,7 @@ def test_index_shows_queued_units_and_live_counters(tmp_path):
     # counters between start and end while running: they come from progress reports (the checkpoint
     # interval is 60 s, and the outcome arrives only at the end)
     moving = [tid for tid, states in seen.items()
-              if any(s[0] == "running" and 0 < s[2] < 150200 for s in states)]
+              if any(s[0] == "running" and 0 < s[2] < 650200 for s in states)]
     assert moving, seen
     log = (run_dir / "run.log").read_text()
     assert '"progress_reports": ' in log and '"prefetch_granted": 0' not in log

@@ -252,3 +252,78 @@ def test_simulated_large_farm_of_a_finite_size_scan():
     farm = simulate(costs, 64)
     assert farm.ratio < 1.03, farm.as_dict()
     assert simulate(costs, 64, prefetch_rule="queue-length", take_back=False).ratio > 1.3
+
+
+# ------------------------------------------------------------------------------------------- worker side
+
+
+class _ScriptedChannel:
+    """A worker's channel to rank 0 without MPI: rank 0's answers (tag WORK) and control messages (tag
+    CONTROL) are queued in advance or pushed by the test while a unit runs; what the worker sends is kept."""
+
+    def __init__(self) -> None:
+        self.queues = {Tag.WORK: [], Tag.CONTROL: []}
+        self.sent: list = []
+
+    def send(self, msg, dest: int) -> None:
+        self.sent.append(msg)
+
+    def waiting(self, source: int, tag) -> bool:
+        return bool(self.queues[tag])
+
+    def receive(self, source: int, tag):
+        return self.queues[tag].pop(0)
+
+    def flush(self) -> None:
+        pass
+
+
+def test_a_unit_handed_back_then_given_again_runs():
+    """The race that lost a task under mpiexec -n 2: the worker prefetches unit 5, rank 0 takes it back
+    while unit 4 runs, the worker hands it back, and rank 0 then gives unit 5 to this same worker in answer
+    to its next request.  The stale prefetch answer is skipped once; the second Assign runs."""
+    from qmc.mpi.worker import Worker
+
+    worker = Worker(SimpleNamespace(comm=None, rank=1), stop_flag=None)
+    channel = worker.channel = _ScriptedChannel()
+    ran: list[int] = []
+
+    def fake_run(msg, setup):
+        ran.append(msg.unit)
+        if msg.unit == 4:  # while unit 4 runs: its prefetch was granted (unit 5), then taken back
+            worker.asked = True
+            channel.queues[Tag.CONTROL].append(TakeBack(5))
+            worker.check_control()
+            channel.queues[Tag.WORK].append(Assign(5, []))  # the prefetch answer, read after unit 4
+            channel.queues[Tag.WORK].append(Assign(5, []))  # the answer to the next plain request
+            channel.queues[Tag.WORK].append(Finish())
+
+    worker._run = fake_run
+    channel.queues[Tag.WORK].append(Assign(4, []))
+    worker.run(SimpleNamespace())
+    assert ran == [4, 5]
+    assert [m for m in channel.sent if isinstance(m, Unstarted)] == [Unstarted(5)]
+
+
+def test_a_take_back_read_with_the_prefetched_unit_in_hand_hands_it_back_once():
+    """The take-back may be read only when the worker is about to start the prefetched unit: it is handed
+    back (once) and not run."""
+    from qmc.mpi.worker import Worker
+
+    worker = Worker(SimpleNamespace(comm=None, rank=1), stop_flag=None)
+    channel = worker.channel = _ScriptedChannel()
+    ran: list[int] = []
+
+    def fake_run(msg, setup):
+        ran.append(msg.unit)
+        if msg.unit == 4:
+            worker.asked = True
+            channel.queues[Tag.WORK].append(Assign(5, []))  # prefetch answer
+            channel.queues[Tag.CONTROL].append(TakeBack(5))  # not read before unit 4 ends
+            channel.queues[Tag.WORK].append(Finish())
+
+    worker._run = fake_run
+    channel.queues[Tag.WORK].append(Assign(4, []))
+    worker.run(SimpleNamespace())
+    assert ran == [4]
+    assert [m for m in channel.sent if isinstance(m, Unstarted)] == [Unstarted(5)]

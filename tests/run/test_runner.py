@@ -150,11 +150,11 @@ def test_failure_after_a_checkpoint_marks_the_file(tmp_path, monkeypatch):
     real = Simulation.advance
     n = {"calls": 0}
 
-    def advance(self, k):
+    def advance(self, k, **kw):
         n["calls"] += 1
         if n["calls"] == 6:
             raise FloatingPointError("bad step")
-        return real(self, k)
+        return real(self, k, **kw)
 
     monkeypatch.setattr(Simulation, "advance", advance)
     out = run_task(task, tmp_path / "run")

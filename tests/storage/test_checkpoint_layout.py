@@ -38,7 +38,8 @@ def _sim():
 def test_the_layout_is_pinned_to_what_the_checkpoint_holds():
     """Changing the accumulator slots or the state arrays without raising CHECKPOINT_LAYOUT (and adding a
     migration or a refusal for the old layout) fails here."""
-    assert CHECKPOINT_LAYOUT == 3
+    assert CHECKPOINT_LAYOUT == 4
+    assert _sim().state()["counters"].shape == (4,)
     assert STATE_KEYS == ("spins", "ops", "counters", "rng", "acc", "hist", "steps", "above")
     assert ACC_LAYOUT == ("n_ops", "n_ops_sq", "mz2", "ms2", "ms4", "chi_stag", "sq_shifted", "dx2", "dy2",
                           "d4", "cos4", "w2_0", "w2_1", "w2_2")
@@ -59,6 +60,7 @@ def test_an_unnumbered_layout_1_state_is_migrated():
     sim = _sim()
     first = sim.advance(450)
     old = {k: v for k, v in sim.state().items() if k != LAYOUT_KEY}  # what files written before hold
+    old["counters"] = old["counters"][:1]
     resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
     assert int(resumed.state()[LAYOUT_KEY]) == CHECKPOINT_LAYOUT
     assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
@@ -70,14 +72,29 @@ def test_a_layout_2_state_without_per_slot_colours_is_migrated():
     first = sim.advance(450)
     old = {k: v for k, v in sim.state().items() if k != "above"}
     old[LAYOUT_KEY] = np.asarray(2)  # what task files written before SU(N) models hold
+    old["counters"] = old["counters"][:1]
     resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
     assert resumed.state()["above"].shape == (0,)
+    assert resumed.state()["counters"].shape == (4,)
+    assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
+
+
+def test_a_layout_3_state_gets_the_directed_loop_counters():
+    """Layout 3 (one counter) continues bit-identically as layout 4 (four counters, zeros added)."""
+    whole = _sim().advance(800)
+    sim = _sim()
+    first = sim.advance(450)
+    old = {**sim.state(), LAYOUT_KEY: np.asarray(3)}
+    old["counters"] = old["counters"][:1]
+    resumed = Simulation.restore(_model(), 2.0, state=old, **KW)
+    assert resumed.state()["counters"].shape == (4,)
     assert np.array_equal(np.vstack([first, resumed.advance(800)]), whole)
 
 
 @pytest.mark.parametrize("layout, words", [
-    (CHECKPOINT_LAYOUT + 1, ["newer layout 4", "reads layout 3", "rerun the task", "newer release"]),
-    (0, ["old layout 0", "reads layout 3", "rerun the task", "older release"]),
+    (CHECKPOINT_LAYOUT + 1, [f"newer layout {CHECKPOINT_LAYOUT + 1}", f"reads layout {CHECKPOINT_LAYOUT}",
+                             "rerun the task", "newer release"]),
+    (0, ["old layout 0", f"reads layout {CHECKPOINT_LAYOUT}", "rerun the task", "older release"]),
 ])
 def test_a_layout_without_migration_is_refused_with_both_numbers(layout, words):
     state = {**_sim().state(), LAYOUT_KEY: np.asarray(layout)}
@@ -131,7 +148,8 @@ def test_task_files_of_layout_1_resume_and_unknown_layouts_fail_the_task(tmp_pat
     assert out.status == "stopped"
     _set_layout(out.path, CHECKPOINT_LAYOUT + 7)
     failed = run_task(task, tmp_path / "run")
-    assert failed.status == "failed" and "newer layout 10, this program reads layout 3" in failed.message
+    assert failed.status == "failed" and (f"newer layout {CHECKPOINT_LAYOUT + 7}, this program reads "
+                                          f"layout {CHECKPOINT_LAYOUT}") in failed.message
     assert read_task(out.path).steps_done == out.steps_done  # the file is kept as it was
     _set_layout(out.path, None)  # as written before layouts were numbered
     assert run_task(task, tmp_path / "run").status == "done"

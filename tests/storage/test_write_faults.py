@@ -47,14 +47,15 @@ L = [16]
 beta = 8
 [sampling]
 warmup_steps = 100
-measure_steps = 20000
+measure_steps = 60000
 bins = 400
 copies = {copies}
 checkpoint_seconds = 0.05
 """
-# a task file of this configuration holds ~210 KB after 255 bins and ~250 KB from bin 256 on (the bins
-# datasets grow by chunks of 256 rows): a 400 KB disk cannot hold the old and the new file side by side,
-# and a 230 KB file-size limit refuses the write of bin 256
+# a task file of this configuration holds ~240 KB after 255 bins and ~280 KB from bin 256 on (the bins
+# datasets grow by chunks of 256 rows): a 520 KB disk cannot hold the old and the new file side by side,
+# and a 260 KB file-size limit refuses the write of bin 256.  A task runs for several seconds (5 s on an
+# idle 2026 machine), so that checkpoints with bins are written before (at most one write a second).
 
 
 # ------------------------------------------------------------------------------------------- the writer
@@ -167,9 +168,9 @@ def test_a_full_disk_stops_the_run_cleanly_and_it_resumes(tmp_path):
     config.write_text(CONFIG.format(copies=1))
     disk = tmp_path / "disk"
     disk.mkdir()
-    mounted = _can_mount() and subprocess.run(["mount", "-t", "tmpfs", "-o", "size=400k", "tmpfs", str(disk)],
+    mounted = _can_mount() and subprocess.run(["mount", "-t", "tmpfs", "-o", "size=520k", "tmpfs", str(disk)],
                                               capture_output=True).returncode == 0
-    limit = None if mounted else (lambda: resource.setrlimit(resource.RLIMIT_FSIZE, (230_000, 230_000)))
+    limit = None if mounted else (lambda: resource.setrlimit(resource.RLIMIT_FSIZE, (260_000, 260_000)))
     cause = "no space left on the device" if mounted else "file too large"
     try:
         run_dir = disk / "run"
@@ -192,7 +193,7 @@ def test_a_full_disk_stops_the_run_cleanly_and_it_resumes(tmp_path):
 _LIMITED_RANK = """
 import resource, sys
 from mpi4py import MPI  # noqa: F401
-resource.setrlimit(resource.RLIMIT_FSIZE, (230_000, 230_000))
+resource.setrlimit(resource.RLIMIT_FSIZE, (260_000, 260_000))
 from qmc.cli.main import cli
 cli(sys.argv[1:], prog_name="qmc")
 """
@@ -205,7 +206,9 @@ def test_under_mpi_a_fault_on_one_rank_stops_every_rank_with_a_checkpoint(tmp_pa
     if mpiexec is None:
         pytest.skip("no mpiexec")
     config = tmp_path / "c.toml"
-    config.write_text(CONFIG.format(copies=2))  # two equal tasks, one per rank
+    # two equal tasks, one per rank; longer bins than CONFIG so that rank 0 is still well inside its task
+    # when rank 1 hits its limit (at bin 256) and the stop reaches it
+    config.write_text(CONFIG.format(copies=2).replace("measure_steps = 60000", "measure_steps = 180000"))
     run_dir = tmp_path / "run"
     args = ["run", str(config), "--quiet", "--out", str(run_dir)]
     # rank 1 limits its file size once MPI has started (the MPI library's shared memory is a file too)

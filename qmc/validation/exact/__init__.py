@@ -9,8 +9,9 @@ its reference.
 Layout: ``hamiltonian`` (sparse full-space H), ``lattices`` (cluster geometry and translation groups),
 ``symmetry`` (group validation, state-level symmetry tables), ``blocks`` (block data types, Kubo kernel),
 ``response`` (Kubo integrals, operator averages, exact twist stiffness), ``spectrum`` (ExactSpectrum:
-block construction and thermodynamics; finite-difference stiffness), ``clusters`` (thermal observables
-of the chain, square J-Q2 and bilayer clusters used by ``qmc validate``), ``bethe`` (Bethe ansatz).
+block construction and thermodynamics; finite-difference stiffness), ``xxz`` (XXZ bonds in fields),
+``clusters`` (thermal observables of the chain, square J-Q2 and bilayer clusters used by ``qmc validate``),
+``bethe`` (Bethe ansatz).
 """
 
 from .bethe import chain_ground_state_energy
@@ -41,6 +42,7 @@ from .symmetry import (
     symmetry_table,
     validate_group,
 )
+from .xxz import xxz_hamiltonian, xxz_observables
 
 __all__ = [
     "Block",
@@ -58,6 +60,8 @@ __all__ = [
     "build_hamiltonian",
     "chain_bonds",
     "chain_ground_state_energy",
+    "xxz_hamiltonian",
+    "xxz_observables",
     "chain_translations",
     "clean_operator",
     "cluster_observables",

@@ -1,6 +1,5 @@
-"""What every validation case is made of: :class:`Case`, and the helpers that split a long simulation into
-independent replicas and merge their bins again (used by :mod:`qmc.validation.cases` and
-:mod:`qmc.validation.colour_cases`)."""
+"""What every check of ``qmc validate`` is made of: :class:`Case`, and the helpers that split a long
+simulation into replicas and merge their bins again (:func:`sim_jobs`, :func:`merged`, :func:`mean_error`)."""
 
 from __future__ import annotations
 
@@ -17,7 +16,7 @@ from .checks import Check
 from .jobs import Job, ModelSpec, SimJob, SimResult
 from .references import Reference
 
-__all__ = ["Case", "simulations", "merged", "mean_error"]
+__all__ = ["Case", "sim_jobs", "merged", "mean_error"]
 
 
 @dataclass(frozen=True)
@@ -37,7 +36,7 @@ def _steps(measure: int, bins: int) -> int:
     return bins * max(1, math.ceil(measure / bins))
 
 
-def simulations(key: str, spec: ModelSpec, beta: float, warmup: int, measure: int, bins: int, n_sites: int,
+def sim_jobs(key: str, spec: ModelSpec, beta: float, warmup: int, measure: int, bins: int, n_sites: int,
           density: float, max_seconds: float | None) -> tuple[SimJob, ...]:
     """One simulation, or independent replicas (keys ``key/r=i``) of it when its estimated cost exceeds
     ``max_seconds``: each replica runs its own warm-up and ~1/k of the measurement with the same steps
