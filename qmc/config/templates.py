@@ -5,7 +5,7 @@ model, each key and the choice of parameters; all of them load and validate as t
 
 Sources of the transition points named in the comments (they only set the scan windows):
 bilayer g_c = 2.5220(1), Wang, Beach and Sandvik, Phys. Rev. B 73, 014431 (2006) (also the reference of
-tests/test_end_to_end.py); columnar dimer g_c ~ 1.91, J-Q2 (J/Q)_c ~ 0.045 and J-Q3 (J/Q)_c ~ 0.67 are
+tests/cli/test_end_to_end.py); columnar dimer g_c ~ 1.91, J-Q2 (J/Q)_c ~ 0.045 and J-Q3 (J/Q)_c ~ 0.67 are
 from memory (a scan window that misses a transition shows up as crossings at its edge in ``qmc analyze``).
 The SU(3) J-Q2 window (Q/J = 0.3 ... 0.8 around 0.5) comes from short runs of this program at L = 8, 16
 (crossing of stiffness * L).

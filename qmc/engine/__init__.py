@@ -21,7 +21,8 @@ updated.  The sweep and the step driver are written once and ask the kind throug
 weight W_t(state) / w_t) and ``loop_update`` (the off-diagonal update).  numba picks a hook's code from the
 class of the kind's *record*, the kernels' ``kind`` argument, when it compiles them: no run-time branch, the
 projector path compiles to the same code as before, and each kind has its own cached specialisation.
-tests/test_engine_kinds.py runs a second, test-only kind through the unchanged kernels as a worked example.
+tests/engine/test_engine_kinds.py runs a second, test-only kind through the unchanged kernels as a worked
+example.
 
 A new kind adds, next to the existing one:
 
@@ -39,7 +40,8 @@ A new kind adds, next to the existing one:
    handles projector vertices is registered after the projector and pure projector models keep the fast path.
 4. Where the kind differs in a part of the sweep that is not a hook yet, a new hook: a stub and overload in
    ``kinds.py`` whose projector implementation is today's code moved unchanged into ``projector.py`` (bins
-   bit-identical: tests/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's version.
+   bit-identical: tests/chain/test_stored_bins.py; speed: benchmarks/c_compare.py), then the new kind's
+   version.
 
 The two kinds added after the projector, in these terms:
 

@@ -19,7 +19,7 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
   (:func:`site_value`, :func:`bond_value`) are 2 S^z_i and 4 S^z_i S^z_j.
 
 The kind needs no tables of its own: its record :class:`ProjectorKind` is empty.  It is the fast path
-(benchmarks/c_compare.py) and must stay bit-identical (tests/test_stored_bins.py).
+(benchmarks/c_compare.py) and must stay bit-identical (tests/chain/test_stored_bins.py).
 """
 
 from __future__ import annotations

@@ -18,7 +18,7 @@ contiguous block of the chains and writing their task files through the shared p
   of them;
 * each record carries the ladder state, the previous checkpoint and the ``/exchange`` group.
 
-Bins are bit-identical for every team size (tests/test_ladder_team.py, tests/test_mpi.py).
+Bins are bit-identical for every team size (tests/exchange/test_ladder_team.py, tests/mpi/test_mpi.py).
 """
 
 from __future__ import annotations

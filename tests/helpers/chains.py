@@ -1,0 +1,26 @@
+"""One Markov chain run in this process for comparisons with exact diagonalization, and the comparison's
+mean and error bar."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from qmc.chain.simulation import Simulation
+from qmc.engine.rng import stream_seed
+
+__all__ = ["SIGMAS", "mean_err", "run_qmc"]
+
+SIGMAS = 4.0  # allowed distance from the exact value, in error bars
+
+
+def run_qmc(model, beta, steps, seed_key, bins=100):
+    """Bins of one chain (5000 warm-up steps, master seed 20261202, stream from ``seed_key``) by name."""
+    sim = Simulation(model, beta, warmup_steps=5000, measure_steps=steps, bins=bins,
+                     seed_words=stream_seed(20261202, seed_key))
+    rows = sim.advance(10**12)
+    return {name: rows[:, k] for k, name in enumerate(sim.bin_names)}
+
+
+def mean_err(x):
+    """Mean of the bins and its standard error (bins taken as independent)."""
+    return float(np.mean(x)), float(np.std(x, ddof=1) / np.sqrt(len(x)))
