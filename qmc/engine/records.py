@@ -23,7 +23,10 @@ wrong array is refused where the record is made, not silently used.
                 int8[nv], ``hist_range``
 ``Tallies``     where results go: ``acc`` float64[acc_size(G)], ``hist`` int64[h, h], and the per-step
                 scratch ``group_counts`` int64[max(G, 1)], ``sweep_out`` float64[SW_SIZE], ``et_out``
-                float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
+                float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`); for the loop estimators
+                (:mod:`qmc.engine.loop_estimators`) ``loop_count``/``loop_length`` int64[2 M k_max] (one
+                per loop label), ``loop_site`` int64[N], ``loop_sums`` float64[3, N] (all of length 0
+                when the chain uses the plain estimators)
 ==============  =============================================================================================
 
 The vertex kind's own record (e.g. :class:`qmc.engine.projector.ProjectorKind`) is a further argument; see
@@ -81,6 +84,10 @@ class Tallies(NamedTuple):
     group_counts: np.ndarray
     sweep_out: np.ndarray
     et_out: np.ndarray
+    loop_count: np.ndarray
+    loop_length: np.ndarray
+    loop_site: np.ndarray
+    loop_sums: np.ndarray
 
 
 _I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uint64, np.float64
@@ -94,7 +101,8 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0)},
     Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),
-              "et_out": (_F64, 1)},
+              "et_out": (_F64, 1), "loop_count": (_I64, 1), "loop_length": (_I64, 1), "loop_site": (_I64, 1),
+              "loop_sums": (_F64, 2)},
 }
 
 
