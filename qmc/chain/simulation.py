@@ -196,7 +196,8 @@ class Simulation:
                              loop_count=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
                              loop_length=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
                              loop_site=np.zeros(n_sites if self.improved else 0, dtype=np.int64),
-                             loop_sums=np.zeros((3, n_sites if self.improved else 0), dtype=np.float64))
+                             loop_sums=np.zeros((n_sites if self.improved else 0, 1 + 2 * self.model.n_dirs),
+                                                dtype=np.float64))
 
     def _grow_cutoff(self) -> None:
         """Append empty slots so that the string is at least 1.5 n + 16 long (warm-up only)."""

@@ -58,19 +58,37 @@ U = np.uint32
 
 
 @njit(inline="always")
-def _fourth_change(c, d):
-    """(c + d)^4 - c^4 as a float (exact for the integers involved)."""
-    a = np.float64(c + d)
-    b = np.float64(c)
-    return a * a * a * a - b * b * b * b
+def _pass_vertex(kind, links, count, length, v, p, q2, q4):
+    """Bond vertex v of the p-th operator: its loop below loses two sites, its loop above gains them; returns
+    the new (Q2, Q4).  Branch-free: when the same loop is below and above, the changes cancel exactly."""
+    below = loop_label(kind, links[U(4 * v)])
+    above = loop_label(kind, links[U(4 * v + 2)])
+    cb = count[U(below)]
+    count[U(below)] = cb - 2
+    length[U(below)] += 2 * p
+    ca = count[U(above)]
+    count[U(above)] = ca + 2
+    length[U(above)] -= 2 * p
+    q2 += 4 * (ca - cb + 2)
+    # (ca + 2)^4 - ca^4 + (cb - 2)^4 - cb^4, exact in int64 (Q4 itself in float64: it may pass 2^63)
+    q4 += np.float64(8 * (ca * ca * ca - cb * cb * cb) + 24 * (ca * ca + cb * cb) + 32 * (ca - cb) + 32)
+    return q2, q4
+
+
+@njit(inline="always")
+def _add_state(q2, q4, sum_q2, sum_q2sq, sum_q4):
+    """The sums over the propagated states with one more state (Q2, Q4)."""
+    fq2 = np.float64(q2)
+    return sum_q2 + fq2, sum_q2sq + fq2 * fq2, sum_q4 + q4
 
 
 @njit(cache=True, boundscheck=False)
-def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_loops):
+def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vertices, n_loops):
     """Add the loop estimators (module docstring) of the configuration the loop update just produced to
-    ``tallies.acc`` (slots A_MZ2, A_MS2, A_MS4, A_CHIS, A_SQN).  ``n_loops``: the loops the update built
-    (labels 0 .. n_loops - 1).  Scratch: ``tallies.loop_count``, ``loop_length`` (int64, one per label),
-    ``loop_site`` (int64, one per site), ``loop_sums`` (float64[3, sites])."""
+    ``tallies.acc`` (slots A_MZ2, A_MS2, A_MS4, A_CHIS, A_SQN).  ``n_vertices``: bond vertices in the list,
+    ``n_loops``: the loops the update built (labels 0 .. n_loops - 1).  Scratch: ``tallies.loop_count``,
+    ``loop_length`` (int64, one per label), ``loop_site`` (int64, one per site), ``loop_sums``
+    (float64[sites, 1 + 2 D])."""
     ops, links, first, table = chain.ops, vertices.links, vertices.first, terms.table
     phase, cos_tab, sin_tab = probes.phase, probes.cos_tab, probes.sin_tab
     count, length = tallies.loop_count, tallies.loop_length
@@ -105,29 +123,28 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_loops):
             c = length[b]
             count[b] = cb + 1
             q2 += 2 * cb + 1
-            q4 += _fourth_change(cb, 1)
+            q4 += np.float64(4 * cb * cb * cb + 6 * cb * cb + 4 * cb + 1)  # (cb + 1)^4 - cb^4
         site_loop[i] = c
-    for c in range(n_c):
-        sums[0, c] = 0.0
-    for i in range(n_sites):
-        sums[0, site_loop[i]] += phase[i]
-    w2 = 0.0
-    for c in range(n_c):
-        w2 += sums[0, c] * sums[0, c]
-    acc[A_MZ2] += mu2 * w2
     n_dirs = cos_tab.shape[0]
-    if n_dirs > 0:
-        f2 = 0.0
+    width = 1 + 2 * n_dirs
+    for c in range(n_c):
+        for x in range(width):
+            sums[c, x] = 0.0
+    for i in range(n_sites):  # cos_tab, sin_tab carry phi_i: phi_i^2 = 1 takes it out
+        c = site_loop[i]
+        ph = np.float64(phase[i])
+        sums[c, 0] += ph
         for d in range(n_dirs):
-            for c in range(n_c):
-                sums[1, c] = 0.0
-                sums[2, c] = 0.0
-            for i in range(n_sites):  # cos_tab, sin_tab carry phi_i: phi_i^2 = 1 takes it out
-                c = site_loop[i]
-                sums[1, c] += phase[i] * cos_tab[d, i]
-                sums[2, c] += phase[i] * sin_tab[d, i]
-            for c in range(n_c):
-                f2 += sums[1, c] * sums[1, c] + sums[2, c] * sums[2, c]
+            sums[c, 1 + 2 * d] += ph * cos_tab[d, i]
+            sums[c, 2 + 2 * d] += ph * sin_tab[d, i]
+    w2 = 0.0
+    f2 = 0.0
+    for c in range(n_c):
+        w2 += sums[c, 0] * sums[c, 0]
+        for x in range(1, width):
+            f2 += sums[c, x] * sums[c, x]
+    acc[A_MZ2] += mu2 * w2
+    if n_dirs > 0:
         acc[A_SQN] += mu2 * f2 / (n_dirs * n_sites)
     cross = 3.0 * mu2 * mu2
     if n == 0:
@@ -144,31 +161,22 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_loops):
     sum_q2 = 0.0
     sum_q2sq = 0.0
     sum_q4 = 0.0
-    p = 0
-    v = 0
-    for slot in range(ops.shape[0]):
-        op = ops[slot]
-        if op < 0:
-            continue
-        p += 1
-        k = meta_bonds(table[U(op >> OP_TERM_SHIFT), TT_META])
-        for _a in range(k):
-            below = loop_label(kind, links[U(4 * v)])
-            above = loop_label(kind, links[U(4 * v + 2)])
-            v += 1
-            if below != above:
-                cb = count[below]
-                ca = count[above]
-                q2 += 4 * (ca - cb + 2)
-                q4 += _fourth_change(cb, -2) + _fourth_change(ca, 2)
-                count[below] = cb - 2
-                count[above] = ca + 2
-                length[below] += 2 * p
-                length[above] -= 2 * p
-        fq2 = np.float64(q2)
-        sum_q2 += fq2
-        sum_q2sq += fq2 * fq2
-        sum_q4 += q4
+    if n_vertices == n:  # every operator one bond vertex (k = 1): no walk over the string needed
+        for v in range(n_vertices):
+            q2, q4 = _pass_vertex(kind, links, count, length, v, v + 1, q2, q4)
+            sum_q2, sum_q2sq, sum_q4 = _add_state(q2, q4, sum_q2, sum_q2sq, sum_q4)
+    else:
+        p = 0
+        v = 0
+        for slot in range(ops.shape[0]):
+            op = ops[slot]
+            if op < 0:
+                continue
+            p += 1
+            for _a in range(meta_bonds(table[U(op >> OP_TERM_SHIFT), TT_META]) & 3):
+                q2, q4 = _pass_vertex(kind, links, count, length, v, p, q2, q4)
+                v += 1
+            sum_q2, sum_q2sq, sum_q4 = _add_state(q2, q4, sum_q2, sum_q2sq, sum_q4)
     sum_l2 = np.float64(n_free) * np.float64(n) * np.float64(n)
     for b in range(n_loops):
         ell = np.float64(length[b])

@@ -25,7 +25,7 @@ wrong array is refused where the record is made, not silently used.
                 scratch ``group_counts`` int64[max(G, 1)], ``sweep_out`` float64[SW_SIZE], ``et_out``
                 float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`); for the loop estimators
                 (:mod:`qmc.engine.loop_estimators`) ``loop_count``/``loop_length`` int64[2 M k_max] (one
-                per loop label), ``loop_site`` int64[N], ``loop_sums`` float64[3, N] (all of length 0
+                per loop label), ``loop_site`` int64[N], ``loop_sums`` float64[N, 1 + 2 D] (all of length 0
                 when the chain uses the plain estimators)
 ==============  =============================================================================================
 

@@ -107,7 +107,7 @@ def run_steps(n_steps, measure, stop_when_full, improved, chain, terms, kind, ve
             kind_measure(kind, chain, tallies)
             equal_time(kind, spins, probes, tallies)
             if improved:
-                loop_estimators(kind, chain, terms, vertices, probes, tallies, n_loops)
+                loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vert, n_loops)
             else:
                 acc[A_MZ2] += et_out[ET_MZ2]
                 acc[A_SQN] += et_out[ET_SQN]
