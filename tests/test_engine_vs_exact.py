@@ -206,9 +206,11 @@ def _exact(name):
     return _exact_cache[name]
 
 
-def run_qmc(model, beta, steps, seed_key, bins=100):
+def run_qmc(model, beta, steps, seed_key, bins=100, estimators="plain"):
+    """Bins of one chain; the plain estimators unless asked otherwise (the loop estimators are checked in
+    tests/test_loop_estimators.py)."""
     sim = Simulation(model, beta, warmup_steps=5000, measure_steps=steps, bins=bins,
-                     seed_words=stream_seed(20261202, seed_key))
+                     seed_words=stream_seed(20261202, seed_key), estimators=estimators)
     rows = sim.advance(10**12)
     return {name: rows[:, k] for k, name in enumerate(sim.bin_names)}
 
