@@ -9,6 +9,7 @@ seeds), with a relative error bar on m_stag2 small enough (< 1%) for the compari
 
 from __future__ import annotations
 
+import importlib.util
 import itertools
 from pathlib import Path
 
@@ -182,3 +183,27 @@ def test_switching_estimators_on_a_run_is_refused(tmp_path: Path) -> None:
     path.write_text(more)  # back to plain: the same run grows
     result = CliRunner().invoke(cli, ["run", str(path), "--quiet"])
     assert result.exit_code == 0, result.output
+
+
+def _chain_benchmark():
+    """benchmarks/chain_susceptibility.py (the bar's run and its two reference values)."""
+    path = Path(__file__).resolve().parents[1] / "benchmarks" / "chain_susceptibility.py"
+    spec = importlib.util.spec_from_file_location("chain_susceptibility", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.mark.slow
+def test_chain_susceptibility_bar() -> None:
+    """The bar of the loop estimators: chi_uniform of the 128-site Heisenberg chain at T = 0.6408 after 1e5
+    steps with a relative error below 0.25%, within 4 error bars of the infinite chain's Bethe-ansatz value
+    (Johnston et al., PRB 61, 9558 (2000), from memory) and of a plain-estimator run of 1e8 steps."""
+    bench = _chain_benchmark()
+    out = bench.run("improved", 100_000)
+    assert out["plateau"]
+    assert out["relative_error"] < 2.5e-3, out
+    assert abs(out["sigmas_from_literature"]) < SIGMAS, out
+    ref, ref_err = bench.CHI_LONG_PLAIN
+    assert np.isfinite(ref) and ref_err < 0.5 * out["error"], "the long plain run is no sharper reference"
+    assert abs(out["sigmas_from_long_plain"]) < SIGMAS, out

@@ -29,6 +29,9 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
 - A_GROUP + g              n_g, operators of term group g (g < G)
 - A_GROUP + G + x          the vertex kind's own slots (``acc_slots(G)`` of its module; none for projectors)
 
+With the loop estimators (:mod:`qmc.engine.loop_estimators`) A_MZ2, A_MS2, A_MS4, A_CHIS and A_SQN hold
+their loop forms: the same quantities in the same units, so the layout does not change.
+
 The accumulator is part of the checkpoint (:meth:`qmc.chain.simulation.Simulation.state`): changing
 ``ACC_LAYOUT`` means raising the checkpoint layout version there.
 """
