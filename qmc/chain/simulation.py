@@ -35,6 +35,7 @@ from qmc.engine.kinds import (
     kind_acc_slots,
     kind_record,
     loop_estimators_apply,
+    max_loop_labels,
     slot_colours,
     vertex_state_length,
 )
@@ -185,6 +186,9 @@ class Simulation:
         """Scratch records sized by the cutoff (vertex list) and the model (per-step outputs)."""
         n_slots = self.ops.shape[0] * self.kmax
         n_sites = self.model.n_sites
+        if 2 * n_slots > max_loop_labels(self.kind):  # at most one loop per vertex side
+            raise ValueError(f"an operator string of {n_slots} bond vertices has more loops than the loop "
+                             f"update can label ({max_loop_labels(self.kind)})")
         self.vertices = build(Vertices, links=np.zeros(4 * n_slots, dtype=np.int32),
                               vflip=np.zeros(n_slots, dtype=np.uint8),
                               first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32),

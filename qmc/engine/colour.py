@@ -75,7 +75,7 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ColourKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
            "apply_changes", "hop", "site_value", "bond_value", "loop_label", "loop_moments", "colour_moments",
-           "LOOP_ESTIMATORS"]
+           "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = True
@@ -98,6 +98,11 @@ def record(model: object) -> ColourKind:
     """The kind's record for a compiled model (its ``n_colours`` and ``phase``)."""
     n = int(model.n_colours)
     return ColourKind(n, 1.0 / n, np.ascontiguousarray(model.phase, dtype=np.int8), int(n - 1).bit_length())
+
+
+def max_loop_labels(kind: ColourKind) -> int:
+    """How many loops :func:`loop_update` can label in an int32 mark ~((b << colour_bits) | colour)."""
+    return 1 << (31 - kind.colour_bits)
 
 
 def initial_spins(kind: ColourKind, u: np.ndarray) -> np.ndarray:

@@ -51,7 +51,8 @@ colour kind records nothing per vertex and has no estimators of its own).  Modul
 (the projector's where a module has none): ``VERTEX_STATE`` (the kind needs ``vertices.state``;
 :func:`vertex_state_length`), ``acc_slots`` (:func:`kind_acc_slots`), ``initial_spins``, ``SLOT_COLOURS`` and
 ``LOOP_ESTIMATORS`` (every loop is updated independently of the others, so the loop estimators apply;
-:func:`loop_estimators_apply`).
+:func:`loop_estimators_apply`) and ``max_loop_labels`` (how many loops its marks can label,
+:func:`max_loop_labels`).
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
 (:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
@@ -73,7 +74,8 @@ from qmc.models.compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, VERT
 
 __all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
            "vertex_added", "measure", "loop_label", "loop_moments", "kind_record", "register_kind",
-           "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots", "loop_estimators_apply"]
+           "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots", "loop_estimators_apply",
+           "max_loop_labels"]
 
 HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
          "vertex_added", "measure", "loop_label", "loop_moments")
@@ -126,6 +128,12 @@ def vertex_state_length(kind: Any, n_slots: int) -> int:
 def kind_acc_slots(kind: Any, n_groups: int) -> int:
     """Accumulator slots the kind adds after the ``n_groups`` group slots."""
     return int(_module_attribute(kind, "acc_slots")(n_groups))
+
+
+def max_loop_labels(kind: Any) -> int:
+    """How many loops the kind's loop update can label in its marks (the projector's bound where the module
+    has none: its own loop update does not label)."""
+    return int(_module_attribute(kind, "max_loop_labels")(kind))
 
 
 def loop_estimators_apply(kind: Any) -> bool:

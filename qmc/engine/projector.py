@@ -37,7 +37,7 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
            "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
            "vertex_added", "measure", "bonds_blocked", "mark_loop", "loop_label", "loop_moments",
-           "LOOP_ESTIMATORS"]
+           "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
@@ -46,6 +46,11 @@ VERTEX_STATE = False
 """Projector loops need no per-vertex state (``vertices.state`` is empty)."""
 LOOP_ESTIMATORS = True
 """Every loop is flipped independently with probability 1/2: the loop estimators apply."""
+
+
+def max_loop_labels(kind: object) -> int:
+    """How many loops :func:`loop_update` can label in an int32 mark ~(2 b + flipped)."""
+    return 1 << 30
 
 
 def acc_slots(n_groups: int) -> int:
