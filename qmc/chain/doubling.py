@@ -47,4 +47,4 @@ def double_beta(sim: Simulation) -> Simulation:
         raise ValueError(f"beta doubling is not available for the vertex kind(s) {names}")
     return Simulation.restore(sim.model, 2.0 * sim.beta, warmup_steps=sim.warmup_steps,
                               measure_steps=sim.measure_steps, bins=sim.n_bins,
-                              state=mirrored_state(sim.state()))
+                              state=mirrored_state(sim.state()), estimators=sim.estimators)

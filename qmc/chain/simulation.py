@@ -10,6 +10,11 @@ uniformly); for models with directed loops (:mod:`qmc.engine.directed`) the loop
 directed loops adapted during the warm-up to the same work and fixed when measuring starts.  Warm-up steps
 and measurement steps are counted the same way.
 
+``estimators`` ("improved" or "plain", the ``[sampling]`` key of that name) says how the order-parameter
+observables (chi_uniform, m_stag2, m_stag4, chi_stag, s_q, s_q_shifted) are measured: by the loop
+estimators where the vertex kind updates its loops independently (:func:`uses_loop_estimators`), else by
+the plain ones; the Markov chain is the same either way.
+
 ``counters`` (int64[COUNTERS]): n, the operators in the string; directed loops per step; 1 once that number
 is frozen (measurement started); unused.
 """
@@ -24,8 +29,17 @@ from qmc.chain.alias import alias_table
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
 from qmc.chain.profiles import profile_size
+from qmc.config.schema import DEFAULT_ESTIMATORS, ESTIMATORS
 from qmc.engine.diagonal import fold_pending
-from qmc.engine.kinds import initial_spins, kind_acc_slots, kind_record, slot_colours, vertex_state_length
+from qmc.engine.kinds import (
+    initial_spins,
+    kind_acc_slots,
+    kind_record,
+    loop_estimators_apply,
+    max_loop_labels,
+    slot_colours,
+    vertex_state_length,
+)
 from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
 from qmc.engine.slots import ET_SIZE, SW_SIZE, acc_size
@@ -33,12 +47,19 @@ from qmc.engine.steps import bound_run_steps
 from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, term_table
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS"]
+__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS", "uses_loop_estimators"]
 
 COUNTERS = 4
 
 HIST_BINS = 64
 HIST_RANGE = 0.25  # |D_a| <= 1/4 for the columnar dimer order parameter
+
+
+def uses_loop_estimators(estimators: str, kind: object) -> bool:
+    """Whether a chain with the ``[sampling] estimators`` choice and vertex kind record ``kind`` measures with
+    the loop estimators (:mod:`qmc.engine.loop_estimators`): asked for ("improved") and valid for the kind
+    (loops updated independently: projector and colour kinds, not directed loops)."""
+    return estimators == "improved" and loop_estimators_apply(kind)
 
 
 class Simulation:
@@ -57,8 +78,9 @@ class Simulation:
         measure_steps: int,
         bins: int,
         seed_words: np.ndarray,
+        estimators: str = DEFAULT_ESTIMATORS,
     ) -> None:
-        self._setup(model, beta, warmup_steps, measure_steps, bins)
+        self._setup(model, beta, warmup_steps, measure_steps, bins, estimators)
         rng = np.array(seed_words, dtype=np.uint64).copy()
         if rng.shape != (4,) or not np.any(rng):
             raise ValueError("seed_words must be four uint64 words, not all zero")
@@ -83,11 +105,13 @@ class Simulation:
         measure_steps: int,
         bins: int,
         state: dict[str, np.ndarray],
+        estimators: str = DEFAULT_ESTIMATORS,
     ) -> Simulation:
         """Continue a chain from :meth:`state` output (bit-identical continuation).  A checkpoint of an
-        older layout is migrated or refused (:mod:`qmc.chain.checkpoint`)."""
+        older layout is migrated or refused (:mod:`qmc.chain.checkpoint`).  The partial bin in the state
+        must have been summed with the same ``estimators`` (the task fingerprint holds the choice)."""
         self = cls.__new__(cls)
-        self._setup(model, beta, warmup_steps, measure_steps, bins)
+        self._setup(model, beta, warmup_steps, measure_steps, bins, estimators)
         state = current_layout(state)
         self.chain = build(Chain, spins=np.array(state["spins"], dtype=np.int8),
                            ops=np.array(state["ops"], dtype=np.int32),
@@ -108,9 +132,12 @@ class Simulation:
         return self
 
     # ------------------------------------------------------------------ set-up
-    def _setup(self, model: CompiledModel, beta: float, warmup: int, measure: int, bins: int) -> None:
+    def _setup(self, model: CompiledModel, beta: float, warmup: int, measure: int, bins: int,
+               estimators: str) -> None:
         if not beta > 0:
             raise ValueError(f"beta must be positive, got {beta}")
+        if estimators not in ESTIMATORS:
+            raise ValueError(f"estimators must be one of {', '.join(ESTIMATORS)}, got {estimators!r}")
         if bins < 1 or measure < 0 or warmup < 0 or (bins and measure % bins):
             raise ValueError("need bins >= 1, non-negative step counts and bins dividing measure_steps")
         if model.n_terms == 0:
@@ -132,6 +159,8 @@ class Simulation:
         self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, beta=self.beta,
                            beta_wtot=self.beta * float(np.sum(weights)))
         self.kind = kind_record(model)
+        self.estimators = estimators
+        self.improved = uses_loop_estimators(estimators, self.kind)
         n_groups = len(model.group_names)
         self._acc_size = acc_size(n_groups, kind_acc_slots(self.kind, n_groups), *profile_size(model))
         phase = np.ascontiguousarray(model.phase, dtype=np.int8)
@@ -160,6 +189,9 @@ class Simulation:
         """Scratch records sized by the cutoff (vertex list) and the model (per-step outputs)."""
         n_slots = self.ops.shape[0] * self.kmax
         n_sites = self.model.n_sites
+        if 2 * n_slots > max_loop_labels(self.kind):  # at most one loop per vertex side
+            raise ValueError(f"an operator string of {n_slots} bond vertices has more loops than the loop "
+                             f"update can label ({max_loop_labels(self.kind)})")
         self.vertices = build(Vertices, links=np.zeros(4 * n_slots, dtype=np.int32),
                               vflip=np.zeros(n_slots, dtype=np.uint8),
                               first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32),
@@ -167,7 +199,12 @@ class Simulation:
         self.tallies = build(Tallies, acc=self.acc, hist=self.hist,
                              group_counts=np.zeros(len(self.model.group_names), dtype=np.int64),
                              sweep_out=np.zeros(SW_SIZE, dtype=np.float64),
-                             et_out=np.zeros(ET_SIZE, dtype=np.float64))
+                             et_out=np.zeros(ET_SIZE, dtype=np.float64),
+                             loop_count=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
+                             loop_length=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
+                             loop_site=np.zeros(n_sites if self.improved else 0, dtype=np.int64),
+                             loop_sums=np.zeros((n_sites if self.improved else 0, 1 + 2 * self.model.n_dirs),
+                                                dtype=np.float64))
 
     def _grow_cutoff(self) -> None:
         """Append empty slots so that the string is at least 1.5 n + 16 long (warm-up only)."""
@@ -257,7 +294,7 @@ class Simulation:
         records = (self.chain, self.terms, self.kind, self.vertices, self.probes, self.tallies)
         if self._kernel is None:  # the records' types never change (records.build fixes them)
             self._kernel = bound_run_steps(*records)
-        return self._kernel(n_steps, measure, stop_when_full, *records)
+        return self._kernel(n_steps, measure, stop_when_full, self.improved, *records)
 
     def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
         """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).

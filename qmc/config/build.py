@@ -13,7 +13,22 @@ from qmc.config.tasks import Task
 from qmc.errors import UserError
 from qmc.models import CompiledModel, ModelError
 
-__all__ = ["build_model", "distinct_models", "validate"]
+__all__ = ["build_model", "distinct_models", "validate", "measures_with_loops"]
+
+DIRECTED_TERM_TYPES = ("xxz", "field")
+"""Term types whose S = 1/2 models run on directed loops (``models.compile``: xxz and field terms, and the
+heisenberg terms of a model with a field), which are not updated loop by loop independently."""
+
+
+def measures_with_loops(task: Task) -> bool:
+    """Whether the task's chain measures with the loop estimators: ``[sampling] estimators = "improved"``
+    and a model whose loops are updated independently (no directed loops: N > 2 colours, or no xxz or field
+    term).  The chain layer decides the same from the compiled model
+    (:func:`qmc.chain.simulation.uses_loop_estimators`); tests/engine/test_loop_estimators.py checks that
+    they agree."""
+    if task.sampling.estimators != "improved":
+        return False
+    return task.colors > 2 or not any(t["type"] in DIRECTED_TERM_TYPES for t in task.terms)
 
 
 def build_model(task: Task) -> CompiledModel:

@@ -74,9 +74,11 @@ def fingerprint(run: RunSection, lattice: LatticeSpec, terms: tuple[TermSpec, ..
 
     Comments, layout, key order outside [scan], ``run.name``, ``run.description``, ``run.output``,
     ``sampling.checkpoint_seconds`` and ``exchange.max_ranks`` do not enter; numbers enter by value (1 and
-    1.0 are the same).  ``exchange.every`` enters only with replica exchange; ``model.colors`` only when it
-    is not the default 2; ``sampling.target``, ``[ground_state]`` and ``[domain_wall]`` only when given (so
-    that the fingerprints of configurations without them stay what they were).
+    1.0 are the same).  ``sampling.estimators`` does not enter (it changes the bins, not a task's id, model
+    or stream; the task fingerprint holds it).  ``exchange.every`` enters only with replica exchange;
+    ``model.colors`` only when it is not the default 2; ``sampling.target``, ``[ground_state]`` and
+    ``[domain_wall]`` only when given (so that the fingerprints of configurations without them stay what
+    they were).
     """
     s = sampling
     content = {

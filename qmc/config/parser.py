@@ -15,7 +15,7 @@ import re
 import tomllib
 from pathlib import Path
 
-from qmc.config.build import build_model, distinct_models, validate
+from qmc.config.build import build_model, distinct_models, measures_with_loops, validate
 from qmc.config.reader import TableReader
 from qmc.config.run_config import RunConfig, config_fingerprint
 from qmc.config.scan import check_names, parse_scan
@@ -33,7 +33,7 @@ from qmc.config.walls import parse_domain_wall
 from qmc.errors import UserError, did_you_mean
 
 __all__ = ["RunConfig", "Task", "load_config", "build_model", "distinct_models", "validate",
-           "config_fingerprint"]
+           "measures_with_loops", "config_fingerprint"]
 
 
 def load_config(path: str | os.PathLike) -> RunConfig:

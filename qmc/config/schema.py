@@ -60,7 +60,7 @@ __all__ = [
     "RUN_KEYS", "LATTICE_KEYS", "EXPLICIT_KEYS", "SAMPLING_KEYS", "EXCHANGE_KEYS", "GROUND_STATE_KEYS",
     "TERM_KEYS", "HOME", "MODEL_KEYS", "SIGNED_TERMS", "DOMAIN_WALL_KEYS", "WALL_PARAM", "ModelSection",
     "RunSection", "LatticeSpec", "TermSpec", "ScanEntry", "Sampling", "GroundState", "DomainWallSpec",
-    "check_coupling",
+    "check_coupling", "ESTIMATORS", "DEFAULT_ESTIMATORS",
 ]
 
 # LATTICE_KINDS (kind -> number of size entries) and BOUNDARIES come from the models package
@@ -108,7 +108,12 @@ SAMPLING_KEYS = {"warmup_steps": "Monte Carlo steps discarded before measuring, 
                  "copies": "independent copies of every parameter point (own streams), an integer >= 1",
                  "checkpoint_seconds": "seconds between checkpoints, > 0",
                  "target": 'error bars to reach, e.g. {energy = 1e-4, m_stag2 = "0.5%"} (absolute, or '
-                           'relative with %)'}
+                           'relative with %)',
+                 "estimators": '"improved" (default: loop estimators where the loops are updated '
+                               'independently) or "plain"'}
+ESTIMATORS = ("improved", "plain")
+"""Values of ``[sampling] estimators``: how the order-parameter observables are measured."""
+DEFAULT_ESTIMATORS = "improved"
 EXCHANGE_KEYS = {"along": "scan name of the coupling whose values exchange configurations",
                  "every": "Monte Carlo steps between swap attempts, an integer >= 1",
                  "max_ranks": "at most this many MPI ranks run one exchange ladder side by side, >= 1"}
@@ -241,7 +246,10 @@ class Sampling:
     None without replica exchange), ``exchange_every`` = Monte Carlo steps between swap attempts
     (``every``), ``exchange_ranks`` = the largest number of MPI ranks one ladder may use (``max_ranks``;
     None: as many as shorten its step; it changes where chains run, never the results, so it is not part
-    of any fingerprint).
+    of any fingerprint).  ``estimators``: "improved" measures chi_uniform, m_stag2, m_stag4, chi_stag, s_q
+    and s_q_shifted with the loop estimators wherever the model's loops are updated independently (every
+    model without xxz or field terms), "plain" always with the plain ones; it changes the bins, never the
+    chain, and enters the task fingerprint only where it changes the bins.
     """
 
     warmup_steps: int
@@ -253,6 +261,7 @@ class Sampling:
     exchange_every: int = 10
     exchange_ranks: int | None = None
     target: tuple[tuple[str, float, bool], ...] = ()
+    estimators: str = DEFAULT_ESTIMATORS
 
     @property
     def steps_per_bin(self) -> int:

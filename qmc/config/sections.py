@@ -14,6 +14,8 @@ import qmc.models as models
 from qmc.config.reader import TableReader
 from qmc.config.schema import (
     BOUNDARIES,
+    DEFAULT_ESTIMATORS,
+    ESTIMATORS,
     EXCHANGE_KEYS,
     EXPLICIT,
     EXPLICIT_KEYS,
@@ -270,6 +272,8 @@ def parse_sampling(r: TableReader) -> Sampling:
     if checkpoint <= 0:
         raise r.fail("sampling.checkpoint_seconds", f"must be positive, got {checkpoint}")
     target = parse_target(r, t["target"], bins) if "target" in t else ()
+    estimators = r.choice("sampling.estimators", t.get("estimators", DEFAULT_ESTIMATORS), ESTIMATORS,
+                          "kind of estimators")
     x = r.table("exchange", required=False)
     along, every, ranks = None, 10, None
     if "exchange" in r.data:
@@ -280,7 +284,7 @@ def parse_sampling(r: TableReader) -> Sampling:
             ranks = r.integer("exchange.max_ranks", x["max_ranks"], minimum=1)
     return Sampling(warmup_steps=warmup, measure_steps=measure, bins=bins, copies=copies,
                     checkpoint_seconds=float(checkpoint), exchange=along, exchange_every=every,
-                    exchange_ranks=ranks, target=target)
+                    exchange_ranks=ranks, target=target, estimators=estimators)
 
 
 def parse_target(r: TableReader, value: Any, bins: int) -> tuple[tuple[str, float, bool], ...]:

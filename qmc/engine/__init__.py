@@ -10,6 +10,7 @@
   its exit probabilities in :mod:`qmc.engine.directed_tables`
 - :mod:`qmc.engine.diagonal`    the diagonal-update sweep, fused with building the linked vertex list
 - :mod:`qmc.engine.equal_time`  estimators of a single propagated state
+- :mod:`qmc.engine.loop_estimators`  the order-parameter estimators averaged over the loop update's choices
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
 - :mod:`qmc.engine.rng`         xoshiro256** with its state in a plain array
 

@@ -34,7 +34,9 @@ The updates (derived here from these weights; the SSE bookkeeping is that of :mo
   the old colours were.  For N = 2 the new colour equals the old one with probability 1/2, which is the
   projector kind's "flip each loop with probability 1/2".  A site without operators is a loop of its own
   and gets a uniform colour.  Every leg is visited once.
-- Bookkeeping: the loop marks its legs with ``-1 - colour`` in ``links``; a last pass stores for every bond
+- Bookkeeping: the b-th loop built marks its legs with ``~((b << colour_bits) | colour)`` in ``links``
+  (negative; the colour in the low ``colour_bits`` bits, the loop's label b above them for the loop
+  estimators, :func:`loop_label`); a last pass stores for every bond
   vertex its new upper colour plus one in ``vflip`` (0: no change pending).  The next sweep (or
   :func:`qmc.engine.diagonal.fold_pending`) applies it (:func:`apply_changes`): the colour above bond a of
   the operator at slot p goes into byte a of ``Chain.above[p]``, and the bond is off-diagonal exactly when
@@ -72,26 +74,35 @@ from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ColourKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
-           "apply_changes", "hop", "site_value", "bond_value"]
+           "apply_changes", "hop", "site_value", "bond_value", "loop_label", "loop_moments", "colour_moments",
+           "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = True
 """The colour kind keeps the colours above off-diagonal bonds per slot (``Chain.above``, 8 bits a bond)."""
+LOOP_ESTIMATORS = True
+"""Every loop takes one of the N colours uniformly and independently: the loop estimators apply."""
 
 
 class ColourKind(NamedTuple):
-    """Record of the colour kind: N, the number of colours per site, 1/N, and the staggered sign phi_i
-    (int8[N_sites]: +1 on A, -1 on B)."""
+    """Record of the colour kind: N, the number of colours per site, 1/N, the staggered sign phi_i
+    (int8[N_sites]: +1 on A, -1 on B) and the bits a colour takes in a loop mark (N <= 2^colour_bits)."""
 
     n_colours: int
     inv_n: float
     phase: np.ndarray
+    colour_bits: int
 
 
 def record(model: object) -> ColourKind:
     """The kind's record for a compiled model (its ``n_colours`` and ``phase``)."""
     n = int(model.n_colours)
-    return ColourKind(n, 1.0 / n, np.ascontiguousarray(model.phase, dtype=np.int8))
+    return ColourKind(n, 1.0 / n, np.ascontiguousarray(model.phase, dtype=np.int8), int(n - 1).bit_length())
+
+
+def max_loop_labels(kind: ColourKind) -> int:
+    """How many loops :func:`loop_update` can label in an int32 mark ~((b << colour_bits) | colour)."""
+    return 1 << (31 - kind.colour_bits)
 
 
 def initial_spins(kind: ColourKind, u: np.ndarray) -> np.ndarray:
@@ -115,24 +126,26 @@ def loop_update(kind, chain, vertices, n_vertices):
     vflip = vertices.vflip
     first = vertices.first
     n_colours = kind.n_colours
+    bits = kind.colour_bits
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_legs = 4 * n_vertices
     n_loops = 0
     for l0 in range(0, n_legs, 2):
         if links[U(l0)] < 0:
             continue
-        n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-        mark_loop(links, l0, np.int32(-1 - int(u * n_colours)))
+        mark_loop(links, l0, np.int32(~((n_loops << bits) | int(u * n_colours))))
+        n_loops += 1
+    mask = (1 << bits) - 1
     for v in range(n_vertices):  # the new colour above every bond vertex, plus one
-        vflip[U(v)] = np.uint8(-links[U(4 * v + 2)])
+        vflip[U(v)] = np.uint8(((~links[U(4 * v + 2)]) & mask) + 1)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             spins[i] = np.int8(int(u * n_colours))
         else:
-            spins[i] = np.int8(-1 - links[U(f)])
+            spins[i] = np.int8((~links[U(f)]) & mask)
     rng[0] = s0
     rng[1] = s1
     rng[2] = s2
@@ -178,3 +191,24 @@ def site_value(kind, spins, i):
 def bond_value(kind, spins, i, j):
     """c_ij = 2/N - 2 delta(c_i, c_j) = -2 B_ij (4 S^z_i S^z_j at N = 2)."""
     return 2.0 * kind.inv_n - 2.0 * np.float64(spins[i] == spins[j])
+
+
+@njit(inline="always")
+def loop_label(kind, mark):
+    """The label b of the loop whose legs :func:`loop_update` marked ``mark`` (= ~((b << bits) | colour))."""
+    return (~mark) >> kind.colour_bits
+
+
+@njit(inline="always")
+def colour_moments(n):
+    """(E[x^2], E[x^4]) of x = delta(c, 0) - 1/N for a colour c uniform on 0..N-1: x = 1 - 1/N with
+    probability 1/N and -1/N otherwise, so E[x^2] = (N-1)/N^2 and E[x^4] = (N-1)(N^2-3N+3)/N^4 (at N = 2:
+    1/4 and 1/16, the moments of S^z = +-1/2)."""
+    nf = np.float64(n)
+    return (nf - 1.0) / (nf * nf), (nf - 1.0) * (nf * nf - 3.0 * nf + 3.0) / (nf * nf * nf * nf)
+
+
+@njit(inline="always")
+def loop_moments(kind):
+    """(E[x^2], E[x^4]) of a loop's share x = delta(c_l, 0) - 1/N of the staggered colour order."""
+    return colour_moments(kind.n_colours)

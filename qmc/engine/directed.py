@@ -48,9 +48,11 @@ from qmc.models.compiled import KIND_DIRECTED, CompiledModel
 from qmc.models.directed import diagonal_weights
 
 __all__ = ["DirectedKind", "record", "insertion_allowed", "vertex_added", "loop_update", "measure",
-           "VERTEX_STATE", "acc_slots", "X_MZ", "X_FIELD"]
+           "VERTEX_STATE", "LOOP_ESTIMATORS", "acc_slots", "X_MZ", "X_FIELD"]
 
 U = np.uint32
+LOOP_ESTIMATORS = False
+"""Directed loops are not flipped independently of each other: only the plain estimators apply."""
 VERTEX_STATE = True
 """This kind records a state per vertex (``vertices.state``, allocated with the vertex list)."""
 X_MZ = 0

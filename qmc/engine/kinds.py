@@ -38,12 +38,21 @@ uniform random numbers u, one per site) and ``SLOT_COLOURS`` (True if the kind k
 ``measure(kind, chain, tallies)``
     inlined into measuring steps: the kind's own estimators, in the accumulator slots after the groups
     (``acc_slots(n_groups)`` of them).
+``loop_label(kind, mark) -> b``
+    the label (0, 1, ...) of the loop whose legs the loop update marked ``mark`` in ``links``, for the loop
+    estimators (:mod:`qmc.engine.loop_estimators`); only kinds with ``LOOP_ESTIMATORS`` label their loops.
+``loop_moments(kind) -> (E[x^2], E[x^4])``
+    moments of a loop's share x of the staggered order per site (+-1/2 for spins; delta(c, 0) - 1/N for
+    N colours), which the loop update draws independently and without bias for every loop.
 
 A kind module that lacks one of these hooks gets the projector's (the directed kind keeps ±1 spins and the
 ``vflip`` changes, so it uses the projector's ``apply_changes``, ``hop``, ``site_value``, ``bond_value``; the
 colour kind records nothing per vertex and has no estimators of its own).  Module attributes read in Python
 (the projector's where a module has none): ``VERTEX_STATE`` (the kind needs ``vertices.state``;
-:func:`vertex_state_length`), ``acc_slots`` (:func:`kind_acc_slots`), ``initial_spins`` and ``SLOT_COLOURS``.
+:func:`vertex_state_length`), ``acc_slots`` (:func:`kind_acc_slots`), ``initial_spins``, ``SLOT_COLOURS`` and
+``LOOP_ESTIMATORS`` (every loop is updated independently of the others, so the loop estimators apply;
+:func:`loop_estimators_apply`) and ``max_loop_labels`` (how many loops its marks can label,
+:func:`max_loop_labels`).
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
 (:func:`register_kind`) whose set of kind codes covers all of them, so a model made only of projector
@@ -64,11 +73,12 @@ from qmc.engine import colour, directed, projector
 from qmc.models.compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
 __all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-           "vertex_added", "measure", "kind_record", "register_kind", "initial_spins", "slot_colours",
-           "vertex_state_length", "kind_acc_slots"]
+           "vertex_added", "measure", "loop_label", "loop_moments", "kind_record", "register_kind",
+           "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots", "loop_estimators_apply",
+           "max_loop_labels"]
 
 HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-         "vertex_added", "measure")
+         "vertex_added", "measure", "loop_label", "loop_moments")
 """The numba-level hooks of a kind (a kind module that lacks one gets the projector's)."""
 
 _SELECTION: list[tuple[frozenset[int], ModuleType]] = []
@@ -118,6 +128,17 @@ def vertex_state_length(kind: Any, n_slots: int) -> int:
 def kind_acc_slots(kind: Any, n_groups: int) -> int:
     """Accumulator slots the kind adds after the ``n_groups`` group slots."""
     return int(_module_attribute(kind, "acc_slots")(n_groups))
+
+
+def max_loop_labels(kind: Any) -> int:
+    """How many loops the kind's loop update can label in its marks (the projector's bound where the module
+    has none: its own loop update does not label)."""
+    return int(_module_attribute(kind, "max_loop_labels")(kind))
+
+
+def loop_estimators_apply(kind: Any) -> bool:
+    """Whether the kind's loop update treats every loop independently (the loop estimators apply)."""
+    return bool(_module_attribute(kind, "LOOP_ESTIMATORS"))
 
 
 def _implementation(kind: Any, hook: str) -> Any:
@@ -208,6 +229,26 @@ def _vertex_added(kind, vertices, v, t, a, op, si, sj):
 @overload(measure, inline="always")
 def _measure(kind, chain, tallies):
     return _implementation(kind, "measure")
+
+
+def loop_label(kind, mark):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+def loop_moments(kind):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
+@overload(loop_label, inline="always")
+def _loop_label(kind, mark):
+    return _implementation(kind, "loop_label")
+
+
+@overload(loop_moments, inline="always")
+def _loop_moments(kind):
+    return _implementation(kind, "loop_moments")
 
 
 register_kind(projector.ProjectorKind, projector, frozenset({KIND_PROJECTOR}))

@@ -11,8 +11,10 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
 - Loop update (:func:`loop_update`): every bond vertex is a four-leg vertex with equal weights, so the
   deterministic loop (enter at leg l, exit at leg l ^ 1, follow the world-line link) changes no weight and
   each loop is flipped with probability 1/2.  All loops are constructed (each leg visited exactly once);
-  legs are marked -1 (visited, kept) or -2 (visited, flipped) in ``links``.  Sites without any operator are
-  flipped with probability 1/2; the other sites follow the loop through their first leg.
+  the legs of the b-th loop built are marked ~(2 b) = -1 - 2 b (visited, kept) or ~(2 b + 1) (visited,
+  flipped) in ``links``: negative, the flip in the lowest bit, and the loop's label b (:func:`loop_label`)
+  for the loop estimators (:mod:`qmc.engine.loop_estimators`).  Sites without any operator are flipped with
+  probability 1/2; the other sites follow the loop through their first leg.
 - The state is S^z_i = spins[i] / 2 (``spins`` +-1); a flipped loop toggles the diagonal/off-diagonal bit of
   each bond side it passes (``vflip``), which the next sweep xors into ``ops`` (:func:`apply_changes`); an
   off-diagonal bond flips both spins (:func:`hop`).  Per-site and per-bond values of the estimators
@@ -34,13 +36,21 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
            "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-           "vertex_added", "measure", "bonds_blocked", "mark_loop"]
+           "vertex_added", "measure", "bonds_blocked", "mark_loop", "loop_label", "loop_moments",
+           "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
 """The projector kind keeps no per-slot colours (``Chain.above`` is empty)."""
 VERTEX_STATE = False
 """Projector loops need no per-vertex state (``vertices.state`` is empty)."""
+LOOP_ESTIMATORS = True
+"""Every loop is flipped independently with probability 1/2: the loop estimators apply."""
+
+
+def max_loop_labels(kind: object) -> int:
+    """How many loops :func:`loop_update` can label in an int32 mark ~(2 b + flipped)."""
+    return 1 << 30
 
 
 def acc_slots(n_groups: int) -> int:
@@ -119,28 +129,30 @@ def loop_update(kind, chain, vertices, n_vertices):
     for l0 in range(0, n_legs, 2):
         if links[U(l0)] < 0:
             continue
+        mark = np.int32(-1 - 2 * n_loops)  # ~(2 label + flipped): the loop's label for the loop estimators
         n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
         leg = l0
         if u < 0.5:
+            mark -= 1
             while True:
                 vflip[U(leg >> 2)] ^= 1
                 partner = leg ^ 1
                 nxt = links[U(partner)]
-                links[U(leg)] = -2
-                links[U(partner)] = -2
+                links[U(leg)] = mark
+                links[U(partner)] = mark
                 leg = nxt
                 if leg == l0:
                     break
         else:
-            mark_loop(links, l0, -1)
+            mark_loop(links, l0, mark)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        elif links[U(f)] == -2:
+        elif (~links[U(f)]) & 1:
             spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1
@@ -178,3 +190,16 @@ def site_value(kind, spins, i):
 def bond_value(kind, spins, i, j):
     """4 S^z_i S^z_j."""
     return spins[i] * spins[j]
+
+
+@njit(inline="always")
+def loop_label(kind, mark):
+    """The label b of the loop whose legs :func:`loop_update` marked ``mark`` (= ~(2 b + flipped))."""
+    return (~mark) >> 1
+
+
+@njit(inline="always")
+def loop_moments(kind):
+    """(E[x^2], E[x^4]) of a loop's share x = phi_i S^z_i = +-1/2 of the staggered order, each sign with
+    probability 1/2 after the loop update: (1/4, 1/16)."""
+    return 0.25, 0.0625

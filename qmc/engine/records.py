@@ -24,7 +24,10 @@ wrong array is refused where the record is made, not silently used.
                 (:mod:`qmc.engine.profiles`)
 ``Tallies``     where results go: ``acc`` float64[acc_size(G, K, C, T)], ``hist`` int64[h, h], and the
                 per-step scratch ``group_counts`` int64[G] (G >= 1), ``sweep_out`` float64[SW_SIZE],
-                ``et_out`` float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`)
+                ``et_out`` float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`); for the loop estimators
+                (:mod:`qmc.engine.loop_estimators`) ``loop_count``/``loop_length`` int64[2 M k_max] (one
+                per loop label), ``loop_site`` int64[N], ``loop_sums`` float64[N, 1 + 2 D] (all of length 0
+                when the chain uses the plain estimators)
 ==============  =============================================================================================
 
 The vertex kind's own record (e.g. :class:`qmc.engine.projector.ProjectorKind`) is a further argument; see
@@ -83,6 +86,10 @@ class Tallies(NamedTuple):
     group_counts: np.ndarray
     sweep_out: np.ndarray
     et_out: np.ndarray
+    loop_count: np.ndarray
+    loop_length: np.ndarray
+    loop_site: np.ndarray
+    loop_sums: np.ndarray
 
 
 _I8, _I32, _I64, _U8, _U64, _F64 = np.int8, np.int32, np.int64, np.uint8, np.uint64, np.float64
@@ -97,7 +104,8 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0),
              "site_column": (_I32, 1)},
     Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),
-              "et_out": (_F64, 1)},
+              "et_out": (_F64, 1), "loop_count": (_I64, 1), "loop_length": (_I64, 1), "loop_site": (_I64, 1),
+              "loop_sums": (_F64, 2)},
 }
 
 

@@ -34,6 +34,9 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
                            column c, each bond shared equally by its two sites' columns), then T slots n_t
                            (operators of each term t)
 
+With the loop estimators (:mod:`qmc.engine.loop_estimators`) A_MZ2, A_MS2, A_MS4, A_CHIS and A_SQN hold
+their loop forms: the same quantities in the same units, so the layout does not change.
+
 The accumulator is part of the checkpoint (:meth:`qmc.chain.simulation.Simulation.state`): changing
 ``ACC_LAYOUT`` means raising the checkpoint layout version there.
 """

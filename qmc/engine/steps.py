@@ -17,6 +17,11 @@ lattice, not yet divided by N):
 - A_GROUP + g          n_g, the number of operators of term group g
 - profile block        per-column sums on strips open along x (:mod:`qmc.engine.profiles`), only when the
                        model measures profiles (``probes.site_column`` not empty)
+
+With ``improved`` (kinds whose loops are updated independently,
+:func:`qmc.engine.kinds.loop_estimators_apply`) A_MZ2, A_MS2, A_MS4, A_CHIS and A_SQN hold instead the
+loop estimators of the same quantities, averaged over the loop update's choices
+(:mod:`qmc.engine.loop_estimators`); the chain itself is the same.
 """
 
 from __future__ import annotations
@@ -29,6 +34,7 @@ from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.equal_time import equal_time
 from qmc.engine.kinds import loop_update
 from qmc.engine.kinds import measure as kind_measure
+from qmc.engine.loop_estimators import loop_estimators
 from qmc.engine.profiles import column_profiles
 from qmc.engine.slots import (
     A_CHIS,
@@ -61,9 +67,10 @@ __all__ = ["run_steps", "bound_run_steps"]
 
 
 @njit(cache=True, boundscheck=False)
-def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, probes, tallies):
+def run_steps(n_steps, measure, stop_when_full, improved, chain, terms, kind, vertices, probes, tallies):
     """Run up to ``n_steps`` Monte Carlo steps; returns the number done.  Records: :mod:`qmc.engine.records`;
-    ``kind`` is the record of the model's vertex kind (:func:`qmc.engine.kinds.kind_record`).
+    ``kind`` is the record of the model's vertex kind (:func:`qmc.engine.kinds.kind_record`).  ``improved``
+    selects the loop estimators (module docstring; only for kinds to which they apply).
 
     ``chain.counters[0]`` holds n (operators in the string).  The scratch arrays of ``tallies`` are owned
     by the caller: allocating them here made the inlined sweep about 20% slower (measured).  With
@@ -84,20 +91,20 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
     for step in range(n_steps):
         n, n_vert = diagonal_sweep(chain, terms, kind, vertices, probes, tallies)
         counters[0] = n
-        loop_update(kind, chain, vertices, n_vert)
+        n_loops = loop_update(kind, chain, vertices, n_vert)
         if measure:
             n_old = sweep_out[SW_N_OLD]
             acc[A_NOPS] += n_old
             acc[A_NOPS2] += n_old * n_old
             for g in range(n_groups):
                 acc[A_GROUP + g] += group_counts[g]
-            if n_old > 0:
+            if not improved and n_old > 0:
                 m1 = 0.5 * sweep_out[SW_SUM_MS]
                 m2 = 0.25 * sweep_out[SW_SUM_MS2]
                 acc[A_MS2] += m2 / n_old
                 acc[A_MS4] += 0.0625 * sweep_out[SW_SUM_MS4] / n_old
                 acc[A_CHIS] += beta * (m1 * m1 + m2) / (n_old * (n_old + 1.0))
-            else:
+            elif not improved:
                 m = 0.5 * sweep_out[SW_MS_END]
                 acc[A_MS2] += m * m
                 acc[A_MS4] += m * m * m * m
@@ -107,8 +114,11 @@ def run_steps(n_steps, measure, stop_when_full, chain, terms, kind, vertices, pr
                 acc[A_W2 + d] += w * w
             kind_measure(kind, chain, tallies)
             equal_time(kind, spins, probes, tallies)
-            acc[A_MZ2] += et_out[ET_MZ2]
-            acc[A_SQN] += et_out[ET_SQN]
+            if improved:
+                loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vert, n_loops)
+            else:
+                acc[A_MZ2] += et_out[ET_MZ2]
+                acc[A_SQN] += et_out[ET_SQN]
             dx2 = et_out[ET_DX] * et_out[ET_DX]
             dy2 = et_out[ET_DY] * et_out[ET_DY]
             d2 = dx2 + dy2
@@ -129,6 +139,6 @@ def bound_run_steps(chain, terms, kind, vertices, probes, tallies) -> Callable[.
     with the same arguments without numba's per-call type dispatch (about 8 us per call for the six
     records, measured; 2-4 us remain).  Valid for any records of the same types: build them with
     :func:`qmc.engine.records.build`, which fixes every field's dtype, dimensions and layout."""
-    sig = (typeof(0), typeof(True), typeof(True), *(typeof(r) for r in (chain, terms, kind, vertices, probes,
-                                                                        tallies)))
+    flags = (typeof(0), typeof(True), typeof(True), typeof(True))
+    sig = (*flags, *(typeof(r) for r in (chain, terms, kind, vertices, probes, tallies)))
     return run_steps.compile(sig)

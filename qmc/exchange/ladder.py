@@ -170,7 +170,8 @@ class Ladder:
         self.warmup_steps = int(s.warmup_steps)
         self.total_steps = int(s.warmup_steps + s.measure_steps)
         self.group = str(t0.exchange_group)
-        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
+        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins,
+                  estimators=s.estimators)
         self.sims: dict[int, Simulation] = {}
         if chain_states is None:
             for i in self.local:

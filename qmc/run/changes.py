@@ -11,8 +11,9 @@ another beta ladder) is another chain.  What cannot grow the run, and is refused
 * other physics (master seed, lattice or terms, :func:`qmc.config.fingerprint.physics_fingerprint`): the
   old index and every task file whose chain is not exactly one of the new tasks' would mix with the new
   ones;
-* a task file of the same name written for another chain (e.g. another beta), another warm-up, or bins of
-  another length (a bin is an average over its own number of steps, so a series cannot change its length).
+* a task file of the same name written for another chain (e.g. another beta), another warm-up, bins of
+  another length (a bin is an average over its own number of steps, so a series cannot change its length),
+  or bins of the other kind of estimators (``[sampling] estimators``).
 
 Forced (``--force``), those files and the old index are renamed aside, never deleted; every other task
 file is kept.  :class:`Survey` says which is which and why, for the messages of ``qmc run``.
@@ -28,7 +29,15 @@ from typing import Any
 
 from qmc.config.parser import RunConfig, Task, load_config
 from qmc.errors import UserError
-from qmc.run.task_identity import BIN_LENGTH, CHAIN, WARMUP, finished, mismatch_text, stored_relation
+from qmc.run.task_identity import (
+    BIN_LENGTH,
+    CHAIN,
+    ESTIMATORS,
+    WARMUP,
+    finished,
+    mismatch_text,
+    stored_relation,
+)
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import task_header, task_path
 
@@ -42,6 +51,7 @@ _REASONS = {
     CHAIN: "written for another model, lattice, beta, seed or exchange ladder than the task of the same name",
     WARMUP: "measured after another number of warm-up steps",
     BIN_LENGTH: "bins of another length (measure_steps / bins)",
+    ESTIMATORS: "measured with the other kind of estimators ([sampling] estimators)",
 }
 
 
@@ -114,7 +124,7 @@ def _refusal(run_dir: Path, physics: bool, bad: dict[str, list[str]], config: Ru
         return UserError("holds a run of other physics (the master seed, lattice or terms differ from "
                          f"{config.path}); choose another output directory, or use --force to rename the old "
                          "index and the task files of changed tasks aside (never deleted)", str(run_dir))
-    for key in (CHAIN, WARMUP, BIN_LENGTH):
+    for key in (CHAIN, WARMUP, BIN_LENGTH, ESTIMATORS):
         ids = bad.get(key, [])
         if not ids:
             continue
@@ -162,7 +172,7 @@ def survey(config: RunConfig, run_dir: Path, force: bool) -> Survey:
             continue
         heads[tid] = head = task_header(path)
         relation = stored_relation(task, head.get("task_fingerprint", ""), *_stored(head))
-        if relation in (CHAIN, WARMUP, BIN_LENGTH):
+        if relation in (CHAIN, WARMUP, BIN_LENGTH, ESTIMATORS):
             bad.setdefault(relation, []).append(tid)
             out.aside.append((path, PHYSICS if physics and relation == CHAIN else relation))
             continue

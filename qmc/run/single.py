@@ -46,7 +46,8 @@ class SingleRun(TaskRun):
 
     def _load(self) -> bool:
         task, s, book, model = self.task, self.task.sampling, self.books[0], self.models[0]
-        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins)
+        kw = dict(warmup_steps=s.warmup_steps, measure_steps=s.measure_steps, bins=s.bins,
+                  estimators=s.estimators)
         data = book.read()
         log = self.ctx.log
         beta = task.beta

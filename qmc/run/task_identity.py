@@ -5,7 +5,8 @@ A task's chain is one endless stream of Monte Carlo steps: the warm-up, then bin
 bins`` steps each.  ``measure_steps`` only says where the stream stops, so a file of the same chain with a
 different number of bins *of the same length* is the same stream cut elsewhere: it continues (more bins)
 or is already done (fewer asked).  A different bin length, warm-up, model, beta, seed or exchange ladder
-is another chain.
+is another chain; the other kind of estimators (``[sampling] estimators``) is the same chain with other
+bins, which cannot be continued either.
 
 Shared by the task files (:mod:`qmc.run.task_book`), the run planning (:mod:`qmc.run.plan`) and the MPI
 farm's queue (:mod:`qmc.mpi.schedule`).
@@ -18,10 +19,11 @@ import hashlib
 import json
 import math
 
-from qmc.config.parser import Task
+from qmc.config.parser import Task, measures_with_loops
 
 __all__ = ["task_fingerprint", "task_weight", "steps_total", "steps_per_bin", "SAME", "LENGTH",
-           "BIN_LENGTH", "WARMUP", "CHAIN", "finished", "stored_relation", "with_length", "mismatch_text"]
+           "BIN_LENGTH", "WARMUP", "ESTIMATORS", "CHAIN", "finished", "stored_relation", "with_length",
+           "mismatch_text"]
 
 SAME = "same"
 """The file was written for exactly this task."""
@@ -31,6 +33,9 @@ BIN_LENGTH = "bin length"
 """The same chain except the number of steps per bin: the stored bins cannot be continued."""
 WARMUP = "warm-up"
 """The same chain except the warm-up: the stored bins were measured after another warm-up."""
+ESTIMATORS = "estimators"
+"""The same chain measured with the other kind of estimators (``[sampling] estimators``): its bins cannot be
+continued with these."""
 CHAIN = "chain"
 """Another model, lattice, beta, seed or exchange ladder."""
 
@@ -38,8 +43,9 @@ CHAIN = "chain"
 def task_fingerprint(task: Task) -> str:
     """SHA-256 of everything that determines a task's Markov chain (model, beta, sampling, random stream;
     with replica exchange also the exchanged parameter, the ladder and the exchange interval; with beta
-    doubling its beta ladder and the observables that decide when it ends).  A precision target does not
-    enter: it decides only how many of the chain's bins are made, never what they are."""
+    doubling its beta ladder and the observables that decide when it ends; with the loop estimators that
+    choice, which changes the bins, not the chain).  A precision target does not enter: it decides only how
+    many of the chain's bins are made, never what they are."""
     s = task.sampling
     content = {"seed": task.seed, "seed_key": task.seed_key, "lattice": task.lattice_kind,
                "size": list(task.size), "boundary": task.boundary, "explicit": task.explicit,
@@ -52,6 +58,8 @@ def task_fingerprint(task: Task) -> str:
     if task.ground_state is not None:  # likewise
         g = task.ground_state
         content["ground_state"] = [repr(float(g.start_beta)), repr(float(g.max_beta)), list(g.observables)]
+    if measures_with_loops(task):  # likewise: bins of the plain estimators keep their fingerprints
+        content["estimators"] = "loop"
     text = json.dumps(content, sort_keys=True, separators=(",", ":"), default=list)
     return hashlib.sha256(text.encode()).hexdigest()
 
@@ -116,7 +124,16 @@ def stored_relation(task: Task, fingerprint: str, stored_steps_per_bin: int, sto
     if stored_bins > 0 and warmup >= 0 and fingerprint == task_fingerprint(
             with_length(task, bins=stored_bins, measure_steps=measure, warmup_steps=warmup)):
         return WARMUP
+    other = _with_estimators(task, "plain" if task.sampling.estimators == "improved" else "improved")
+    if measures_with_loops(other) != measures_with_loops(task) and (
+            fingerprint == task_fingerprint(other) or (stored_bins > 0 and fingerprint == task_fingerprint(
+                with_length(other, bins=stored_bins, measure_steps=measure)))):
+        return ESTIMATORS
     return CHAIN
+
+
+def _with_estimators(task: Task, estimators: str) -> Task:
+    return dataclasses.replace(task, sampling=dataclasses.replace(task.sampling, estimators=estimators))
 
 
 def mismatch_text(relation: str, task: Task, stored_steps_per_bin: int, stored_bins: int,
@@ -131,4 +148,9 @@ def mismatch_text(relation: str, task: Task, stored_steps_per_bin: int, stored_b
         warmup = stored_steps_total - stored_steps_per_bin * stored_bins
         return (f"was measured after {warmup} warm-up steps, this configuration asks for {s.warmup_steps}; "
                 "its bins cannot count as measured after another warm-up")
+    if relation == ESTIMATORS:
+        used, other = ("plain", "improved") if measures_with_loops(task) else ("improved", "plain")
+        return (f"was measured with the {used} estimators, this configuration asks for the {other} ones "
+                f"([sampling] estimators); a series of bins cannot change its estimators, so set "
+                f'estimators = "{used}" to continue it')
     return "was written for a different model, lattice, beta, seed or exchange ladder than this task"

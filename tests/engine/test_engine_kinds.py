@@ -74,12 +74,12 @@ _SCRIPT = textwrap.dedent('''
         n_mean = []
         for _ in range(int(n_bins)):
             sim.acc[:] = 0.0
-            run_steps(int(per_bin), True, False, sim.chain, terms, kind, sim.vertices, sim.probes,
+            run_steps(int(per_bin), True, False, False, sim.chain, terms, kind, sim.vertices, sim.probes,
                       sim.tallies)
             n_mean.append(sim.acc[slots.A_NOPS] / per_bin)
         energy = (model.energy_constant - np.array(n_mean) / BETA) / model.n_sites
         out[name] = energy.tolist()
-    out["types"] = [str(sig[5]) for sig in run_steps.signatures]
+    out["types"] = [str(sig[6]) for sig in run_steps.signatures]
     print(json.dumps(out))
 ''')
 

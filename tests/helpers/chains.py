@@ -13,10 +13,12 @@ __all__ = ["SIGMAS", "mean_err", "run_qmc"]
 SIGMAS = 4.0  # allowed distance from the exact value, in error bars
 
 
-def run_qmc(model, beta, steps, seed_key, bins=100):
-    """Bins of one chain (5000 warm-up steps, master seed 20261202, stream from ``seed_key``) by name."""
+def run_qmc(model, beta, steps, seed_key, bins=100, estimators="plain"):
+    """Bins of one chain (5000 warm-up steps, master seed 20261202, stream from ``seed_key``) by name; the
+    plain estimators unless asked otherwise (the loop estimators are checked in
+    tests/engine/test_loop_estimators.py)."""
     sim = Simulation(model, beta, warmup_steps=5000, measure_steps=steps, bins=bins,
-                     seed_words=stream_seed(20261202, seed_key))
+                     seed_words=stream_seed(20261202, seed_key), estimators=estimators)
     rows = sim.advance(10**12)
     return {name: rows[:, k] for k, name in enumerate(sim.bin_names)}
 
