@@ -37,7 +37,9 @@ Same chain as the single tracer: the scan meets the pairs in increasing order, s
 loop starts at the loop's first pair, where the single tracer starts it; ids grow in scan order, so the
 roots (smallest id of each loop) come in the single tracer's loop order and draw the same random numbers
 (one pass over the ids in increasing order; parents are smaller than their children).  The free sites then
-draw in site order, as in the single tracer.  tests/test_interleaved_loops.py checks this step by step.
+draw in site order, as in the single tracer.  At the end every leg holds -1 (its loop kept) or -2
+(flipped), as the single tracer leaves ``links[:4 n_vertices]``.  tests/test_interleaved_loops.py checks
+all of this step by step.
 
 Per-loop quantities (e.g. improved estimators) would be summed per fragment id while tracing (at the
 ``links[c & ~1] = lab`` stores) and added to the root's sum in the pass over the ids, where each root is
@@ -270,12 +272,17 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             leg = nxt
             if leg == l0:
                 break
-    # the flip of a pair from its mark: ids -> their loop's flip, -1 / -2 -> kept / flipped
+    # the flip of each pair from its mark (ids -> their loop's flip, -1 / -2 -> kept / flipped); both legs
+    # end marked -1 (kept) or -2 (flipped), as the single tracer leaves them
     for v in range(n_vertices):
         m = links[U(4 * v)]
         fa = links[U(base - 3 - m)] if m <= -3 else -1 - m
+        links[U(4 * v)] = -1 - fa
+        links[U(4 * v + 1)] = -1 - fa
         m = links[U(4 * v + 2)]
         fb = links[U(base - 3 - m)] if m <= -3 else -1 - m
+        links[U(4 * v + 2)] = -1 - fb
+        links[U(4 * v + 3)] = -1 - fb
         vflip[U(v)] = np.uint8(fa ^ fb)
     for i in range(spins.shape[0]):
         f = first[i]
@@ -283,11 +290,8 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        else:
-            m = links[U(f & ~1)]
-            flip = links[U(base - 3 - m)] if m <= -3 else -1 - m
-            if flip != 0:
-                spins[i] = -spins[i]
+        elif links[U(f)] == -2:
+            spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1
     rng[2] = s2
