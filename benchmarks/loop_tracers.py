@@ -54,7 +54,7 @@ def _steps(sim: Simulation, n_steps: int, interleaved: bool) -> tuple[float, flo
         c1 = time.process_time()
         if interleaved:
             interleaved_loop_update(vertices.links, vertices.vflip, vertices.first, chain.spins, chain.rng,
-                                    nv, TRACERS, ALONE, WINDOW, 0)
+                                    nv, TRACERS, ALONE, WINDOW, 0, False)
         else:
             short = build(Vertices, **{**vertices._asdict(), "links": vertices.links[:4 * nv]})
             loop_update(sim.kind, chain, short, nv)
@@ -82,7 +82,8 @@ def scaling_case(case: str, L: int, rounds: int, work: float, warmup_work: float
             r = _steps(sim, n_steps, name == "interleaved")
             if name not in best or r[0] + r[1] < best[name][0] + best[name][1]:
                 best[name] = r
-    out: dict = {"case": case, "L": L, "beta": beta, "cutoff": M, "steps_per_round": n_steps,
+    out: dict = {"case": case, "L": L, "beta": beta, "cutoff": M, "n_ops": int(sim.counters[0]),
+                 "steps_per_round": n_steps,
                  "rounds": rounds, "links_MB": round(sim.links.nbytes / 2**20, 2)}
     for name, (ts, tl, nvs) in best.items():
         out[name] = {"cpu_ns_per_slot_per_step": (ts + tl) / n_steps / M * 1e9,

@@ -54,8 +54,30 @@ def _single_step(sim: Simulation, chain, vertices) -> int:
     return nv
 
 
+def _loop_labels(links: np.ndarray) -> np.ndarray:
+    """The number of each leg's loop when the loops are built in order of their first pair (enter a vertex at
+    leg l, leave at l ^ 1, follow the world-line link), traced here in plain Python."""
+    labels = np.full(links.shape[0], -1, dtype=np.int64)
+    b = 0
+    for l0 in range(0, links.shape[0], 2):
+        if labels[l0] >= 0:
+            continue
+        leg = l0
+        while True:
+            labels[leg] = labels[leg ^ 1] = b
+            leg = int(links[leg ^ 1])
+            if leg == l0:
+                break
+        b += 1
+    return labels
+
+
 def _assert_same(a, b, va, vb, step: int, nv: int) -> None:
     assert np.array_equal(va.links[:4 * nv], vb.links[:4 * nv]), f"leg marks differ after step {step}"
+    _assert_same_chain(a, b, va, vb, step)
+
+
+def _assert_same_chain(a, b, va, vb, step: int) -> None:
     for name in ("spins", "ops", "rng"):
         assert np.array_equal(getattr(a, name), getattr(b, name)), f"{name} differ after step {step}"
     assert a.counters[0] == b.counters[0], f"n differs after step {step}"
@@ -82,12 +104,32 @@ def test_forced_interleaved_equals_single(q: bool, variant: tuple[int, int, int,
     for step in range(60):
         va.links[:] = 12345  # the sweep rewrites every leg it uses; what lies after them is the tracer's
         nv = _sweep(sim, ca, va)
-        n_loops = interleaved_loop_update(va.links, va.vflip, va.first, ca.spins, ca.rng, nv, *variant)
+        n_loops = interleaved_loop_update(va.links, va.vflip, va.first, ca.spins, ca.rng, nv, *variant, False)
         fragments_seen += int(va.links[4 * nv + 16] in (0, 1))  # fragment id 0, turned into its loop's flip
         assert _single_step(sim, cb, vb) == nv
         _assert_same(ca, cb, va, vb, step, nv)
         assert n_loops >= 1
     assert fragments_seen > 0
+
+
+@pytest.mark.parametrize("q", [False, True], ids=["heisenberg", "jq2"])
+@pytest.mark.parametrize("variant", VARIANTS, ids=[":".join(map(str, v)) for v in VARIANTS])
+def test_labelled_marks(q: bool, variant: tuple[int, int, int, int]) -> None:
+    """With ``labelled`` every leg ends marked ~(2 b + f): f the flip the single tracer gave its loop, b the
+    loop's number in order of first pair (traced independently here); the chain itself is unchanged."""
+    sim = _warm(6, q, 4.0, 200)
+    ca, va = _copy(sim.chain, Chain), _copy(sim.vertices, Vertices)
+    cb, vb = _copy(sim.chain, Chain), _copy(sim.vertices, Vertices)
+    for step in range(30):
+        nv = _sweep(sim, ca, va)
+        want_labels = _loop_labels(va.links[:4 * nv].copy())
+        n_loops = interleaved_loop_update(va.links, va.vflip, va.first, ca.spins, ca.rng, nv, *variant, True)
+        assert _single_step(sim, cb, vb) == nv
+        value = ~va.links[:4 * nv].astype(np.int64)
+        assert np.array_equal(value & 1, -1 - vb.links[:4 * nv]), f"flips differ after step {step}"
+        assert np.array_equal(value >> 1, want_labels), f"loop labels differ after step {step}"
+        assert n_loops == want_labels.max() + 1
+        _assert_same_chain(ca, cb, va, vb, step)
 
 
 @pytest.mark.parametrize("q", [False, True], ids=["heisenberg", "jq2"])

@@ -41,8 +41,10 @@ draw in site order, as in the single tracer.  At the end every leg holds -1 (its
 (flipped), as the single tracer leaves ``links[:4 n_vertices]``.  tests/test_interleaved_loops.py checks
 all of this step by step.
 
-Per-loop quantities (e.g. improved estimators) would be summed per fragment id while tracing (at the
-``links[c & ~1] = lab`` stores) and added to the root's sum in the pass over the ids, where each root is
+Per-loop quantities (e.g. improved estimators): with ``labelled`` every leg ends marked ~(2 b + f), b the
+loop's number in the single tracer's order, so an estimator pass after the loop update reads the same
+labels whichever tracer ran.  Sums gathered while tracing would go per fragment id (at the
+``links[c & ~1] = lab`` stores) and be added to the root's sum in the pass over the ids, where each root is
 one completed loop and its flip is drawn.
 """
 
@@ -100,12 +102,17 @@ def use_interleaved(n_vertices, links_length, from_vertices):
 
 
 @njit(cache=True, boundscheck=False)
-def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_tracers, alone, window, max_ids):
+def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_tracers, alone, window, max_ids,
+                            labelled):
     """Build all loops with ``n_tracers`` interleaved tracers (each walks up to ``alone`` steps alone within
     ``window`` legs of the scan; ``window`` 0: no limit), flip each with probability 1/2 and leave ``vflip``
     and ``spins`` as :func:`qmc.engine.projector.loop_update` does; returns the loop count.  At most
     ``max_ids`` fragment ids are used (0: as many as the tail of ``links`` holds).  Needs
-    ``links.shape[0] >= 4 n_vertices + PAD``."""
+    ``links.shape[0] >= 4 n_vertices + PAD``.
+
+    Leg marks left in ``links[:4 n_vertices]``: -1 - f with f = 1 if the leg's loop flipped, else 0; with
+    ``labelled`` -1 - (2 b + f) = ~(2 b + f) instead, b = 0, 1, ... the loop's number in the single
+    tracer's order (the order in which loops draw their flips), for per-loop estimators."""
     n_legs = 4 * n_vertices
     base = n_legs + PAD  # fragment ids: links[base + f]
     cap = links.shape[0] - base
@@ -247,24 +254,32 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             else:
                 t += 1
 
-    # one flip per loop (root), in increasing id order; children take their root's flip
+    # one flip per loop (root), in increasing id order; children take their root's value.  The value of a
+    # loop: its flip f, or 2 b + f (labelled)
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_loops = 0
     for f in range(n_frag):
         p = links[U(base + f)]
         if p == f:
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-            links[U(base + f)] = 1 if u < 0.5 else 0
+            value = 1 if u < 0.5 else 0
+            if labelled:
+                value += 2 * n_loops
+            links[U(base + f)] = value
             n_loops += 1
         else:
             links[U(base + f)] = links[U(base + p)]
-    # ids ran out: the unmarked pairs left, all beyond the scan, form whole loops; finish them in scan order
+    # ids ran out: the unmarked pairs left, all beyond the scan, form whole loops; finish them in scan order,
+    # marking -3 - n_frag - value (below every id mark)
     for l0 in range(scan, n_legs, 2):
         if links[U(l0)] < 0:
             continue
-        n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-        mark = -2 if u < 0.5 else -1
+        value = 1 if u < 0.5 else 0
+        if labelled:
+            value += 2 * n_loops
+        n_loops += 1
+        mark = -3 - n_frag - value
         leg = l0
         while True:
             nxt = links[U(leg ^ 1)]
@@ -272,25 +287,25 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             leg = nxt
             if leg == l0:
                 break
-    # the flip of each pair from its mark (ids -> their loop's flip, -1 / -2 -> kept / flipped); both legs
-    # end marked -1 (kept) or -2 (flipped), as the single tracer leaves them
+    # each pair's value from its mark (id -> its loop's value; below the ids -> the value in the mark); both
+    # legs end marked -1 - value, vflip[v] = flip below xor flip above
     for v in range(n_vertices):
-        m = links[U(4 * v)]
-        fa = links[U(base - 3 - m)] if m <= -3 else -1 - m
-        links[U(4 * v)] = -1 - fa
-        links[U(4 * v + 1)] = -1 - fa
-        m = links[U(4 * v + 2)]
-        fb = links[U(base - 3 - m)] if m <= -3 else -1 - m
-        links[U(4 * v + 2)] = -1 - fb
-        links[U(4 * v + 3)] = -1 - fb
-        vflip[U(v)] = np.uint8(fa ^ fb)
+        i = -3 - links[U(4 * v)]
+        va = links[U(base + i)] if i < n_frag else i - n_frag
+        links[U(4 * v)] = -1 - va
+        links[U(4 * v + 1)] = -1 - va
+        i = -3 - links[U(4 * v + 2)]
+        vb = links[U(base + i)] if i < n_frag else i - n_frag
+        links[U(4 * v + 2)] = -1 - vb
+        links[U(4 * v + 3)] = -1 - vb
+        vflip[U(v)] = np.uint8((va ^ vb) & 1)
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        elif links[U(f)] == -2:
+        elif (-1 - links[U(f)]) & 1:
             spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1

@@ -124,7 +124,8 @@ def loop_update(kind, chain, vertices, n_vertices):
     vflip = vertices.vflip
     first = vertices.first
     if use_interleaved(n_vertices, links.shape[0], INTERLEAVE_FROM_VERTICES):
-        return interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, TRACERS, ALONE, WINDOW, 0)
+        return interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, TRACERS, ALONE, WINDOW, 0,
+                                       False)
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_legs = 4 * n_vertices
     n_loops = 0
