@@ -5,6 +5,8 @@
 - :mod:`qmc.engine.vertices`    operator encoding, leg numbering, the per-term table (k | kind | group, bonds)
 - :mod:`qmc.engine.kinds`       the vertex-kind seam: hooks, registry, the choice of a model's kind
 - :mod:`qmc.engine.projector`   the singlet-projector kind (deterministic loops; the fast path)
+- :mod:`qmc.engine.interleaved` the projector's loops on vertex lists larger than the caches, traced by
+  several tracers at once to keep several memory loads in flight (the same chain bit for bit)
 - :mod:`qmc.engine.colour`      the SU(N) colour kind (the same loops, each given one of N colours)
 - :mod:`qmc.engine.directed`    the directed-loop kind (xxz bonds with folded fields, and projectors);
   its exit probabilities in :mod:`qmc.engine.directed_tables`

@@ -31,6 +31,14 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
+from qmc.engine.interleaved import (
+    ALONE,
+    INTERLEAVE_FROM_VERTICES,
+    TRACERS,
+    WINDOW,
+    interleaved_loop_update,
+    use_interleaved,
+)
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
@@ -117,12 +125,17 @@ def measure(kind, chain, tallies):
 
 @njit(cache=True, boundscheck=False)
 def loop_update(kind, chain, vertices, n_vertices):
-    """Build all loops of the linked vertex list, flip each with probability 1/2; returns the loop count."""
+    """Build all loops of the linked vertex list, flip each with probability 1/2; returns the loop count.
+    Vertex lists larger than the caches go to :func:`qmc.engine.interleaved.interleaved_loop_update` (the
+    same loops, flips and random numbers, several tracers at once)."""
     spins = chain.spins
     rng = chain.rng
     links = vertices.links
     vflip = vertices.vflip
     first = vertices.first
+    if use_interleaved(n_vertices, links.shape[0], INTERLEAVE_FROM_VERTICES):
+        return interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, TRACERS, ALONE, WINDOW, 0,
+                                       True)  # loop labels in the marks, as below (the loop estimators)
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_legs = 4 * n_vertices
     n_loops = 0
