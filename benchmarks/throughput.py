@@ -2,10 +2,19 @@
 
 Usage:  python benchmarks/throughput.py [--case square|jq2|jq2_su3|jq2_su4|jq2_colour2|xxz|xxz-field|all]
                                        [--L 32] [--beta 32] [--steps 200] [--repeats 1]
-        python benchmarks/throughput.py --scaling 8,16,32,64 [--case ...]
+        python benchmarks/throughput.py --scaling 8,16,32,64,128,256 [--case square|jq2|all]
+                                       [--plot docs/speed/scaling.png] [--large-from 256]
+                                       [--large-steps 5] [--large-warmup 60]
 
 ``--scaling`` measures L x L lattices at beta = L instead (no start-up figures): the cost of a step is
-linear in N beta when ns per slot stays flat; it rises where the vertex list outgrows the caches.
+linear in N beta when ns per slot stays flat; it rises where the vertex list outgrows the caches.  Sizes
+L >= ``--large-from`` run one chain of ``--large-steps`` measured steps after ``--large-warmup`` (a step
+at L = 256 takes seconds).  Each row also gives the CPU seconds per step and the process's peak resident
+memory so far (``resource.getrusage``; the sizes run in increasing order, so at the largest L it is that
+size's peak, or an earlier case's if that was larger).  With ``--case all`` it runs the two canonical
+cases.  After the JSON lines a table goes to stderr, and a plot of CPU ns per slot per step against L
+(log-2 axis) is written to ``--plot`` (default ``docs/speed/scaling.png``, shown in the README;
+``--plot ""`` writes none).
 
 Prints one JSON object per case; with ``--repeats`` > 1 the time figures are the minimum over that many
 independent chains (the machine is shared), ``..._all`` lists every repeat.  Start-up is measured in fresh
@@ -22,6 +31,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -33,7 +43,7 @@ from _cases import CASES, COLOUR_CASES, XXZ_CASES, add_case_arguments, any_case_
 from qmc.chain.simulation import Simulation
 from qmc.engine.rng import stream_seed
 
-__all__ = ["measure_case", "main"]
+__all__ = ["measure_case", "peak_rss_mb", "scaling_table", "plot_scaling", "run_scaling", "main"]
 
 
 def make_model(case: str, L: int):
@@ -69,6 +79,7 @@ def measure_case(case: str, L: int, beta: float, steps: int, warmup: int, repeat
         "cpu_ns_per_slot_per_step": min(cpus),
         "cpu_ns_per_slot_per_step_all": cpus,
         "ns_per_op_per_step": min(per_op),
+        "cpu_seconds_per_step": min(cpus) * sim.cutoff * 1e-9,
         "steps_per_second": 1e9 / (min(walls) * sim.cutoff),
         "bytes_per_slot": work_bytes / sim.cutoff,
         "first_call_seconds_in_process": first_call,
@@ -95,6 +106,75 @@ def startup_seconds(cache_dir: str | None = None) -> tuple[float, float]:
     return float(out.stdout.strip()), total
 
 
+def peak_rss_mb() -> float:
+    """Peak resident memory of this process so far in MB (Linux reports ``ru_maxrss`` in KiB)."""
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def scaling_table(rows: list[dict]) -> str:
+    """Markdown table of the ``--scaling`` rows."""
+    lines = ["| case | L = beta | cutoff | steps x chains | CPU ns / slot / step | CPU s / step "
+             "| peak RSS MB |", "|---|---|---|---|---|---|---|"]
+    for r in rows:
+        lines.append(f"| {r['case']} | {r['L']} | {r['cutoff']} | {r['steps']} x {r['repeats']} "
+                     f"| {r['cpu_ns_per_slot_per_step']:.1f} | {r['cpu_seconds_per_step']:.3g} "
+                     f"| {r['peak_rss_MB']:.0f} |")
+    return "\n".join(lines)
+
+
+CASE_LABELS = {"square": "square-lattice Heisenberg", "jq2": "J-Q2 model, J/Q = 0.05"}
+
+
+def plot_scaling(rows: list[dict], path: str) -> None:
+    """Write a PNG of CPU ns per operator slot per step against L (log-2 axis), one curve per case."""
+    from matplotlib.ticker import FixedLocator, NullLocator, ScalarFormatter
+
+    from qmc.analysis.plots import new_figure, set_labels
+
+    fig, axes = new_figure(size=(5.4, 3.8), note=(
+        "One Monte Carlo step (diagonal update, loop update, all measurements) on L x L periodic lattices "
+        "at inverse temperature beta = L; CPU time divided by the length of the operator string. "
+        "A flat curve means the cost of a step grows only like L^2 beta. "
+        "Shared 2-core machine; minimum over repeated chains."))
+    ax = axes[0, 0]
+    sizes = sorted({r["L"] for r in rows})
+    for case in dict.fromkeys(r["case"] for r in rows):
+        pts = sorted((r["L"], r["cpu_ns_per_slot_per_step"]) for r in rows if r["case"] == case)
+        ax.plot([p[0] for p in pts], [p[1] for p in pts], "o-", label=CASE_LABELS.get(case, case))
+    ax.set_xscale("log", base=2)
+    ax.xaxis.set_major_locator(FixedLocator(sizes))
+    ax.xaxis.set_major_formatter(ScalarFormatter())
+    ax.xaxis.set_minor_locator(NullLocator())
+    ax.set_ylim(bottom=0)
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize="small")
+    set_labels(ax, "lattice size L (L x L sites, beta = L)", "CPU ns per operator slot per step")
+    os.makedirs(os.path.dirname(os.path.abspath(path)), exist_ok=True)
+    fig.savefig(path, dpi=150)
+
+
+def run_scaling(a: argparse.Namespace) -> None:
+    """The ``--scaling`` mode: JSON lines, then the table (stderr) and the plot."""
+    rows = []
+    sizes = sorted(int(x) for x in a.scaling.split(","))
+    for case in ([*CASES] if a.case == "all" else [a.case]):  # "all": the two canonical cases
+        for L in sizes:
+            large = L >= a.large_from
+            steps, warmup, repeats = ((a.large_steps, a.large_warmup, 1) if large
+                                      else (a.steps, a.warmup, a.repeats))
+            r = measure_case(case, L, float(L), steps, warmup, repeats)
+            r["repeats"] = repeats
+            r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
+            r["peak_rss_MB"] = peak_rss_mb()
+            rows.append(r)
+            print(json.dumps(r))
+            sys.stdout.flush()
+    print(scaling_table(rows), file=sys.stderr)
+    if a.plot:
+        plot_scaling(rows, a.plot)
+        print(f"plot: {a.plot}", file=sys.stderr)
+
+
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     add_case_arguments(p, colour_cases=True, directed=True)
@@ -102,14 +182,15 @@ def main() -> None:
                    help="independent chains per case; the minimum time is reported")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="measure these L at beta = L (linearity in N beta) instead of one size")
+    p.add_argument("--plot", default=os.path.join("docs", "speed", "scaling.png"),
+                   help="--scaling: PNG to write ('' for none)")
+    p.add_argument("--large-from", type=int, default=256,
+                   help="--scaling: from this L on, one chain with --large-steps and --large-warmup")
+    p.add_argument("--large-steps", type=int, default=5)
+    p.add_argument("--large-warmup", type=int, default=60)
     a = p.parse_args()
     if a.scaling:
-        for case in selected_cases(a.case, colour_cases=True, directed=True):
-            for L in (int(x) for x in a.scaling.split(",")):
-                r = measure_case(case, L, float(L), a.steps, a.warmup, a.repeats)
-                r["slots_times_bytes_MB"] = round(r["bytes_per_slot"] * r["cutoff"] / 2**20, 2)
-                print(json.dumps(r))
-                sys.stdout.flush()
+        run_scaling(a)
         return
     with tempfile.TemporaryDirectory() as cache:
         cold, cold_whole = startup_seconds(cache)
