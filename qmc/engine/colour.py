@@ -74,8 +74,8 @@ from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ColourKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
-           "apply_changes", "hop", "site_value", "bond_value", "loop_label", "loop_moments", "colour_moments",
-           "LOOP_ESTIMATORS", "max_loop_labels"]
+           "hop_masked", "apply_changes", "hop", "site_value", "bond_value", "loop_label", "loop_moments",
+           "colour_moments", "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = True
@@ -179,6 +179,14 @@ def hop(kind, spins, phase, above, p, a, i, j):
     spins[U(i)] = up
     spins[U(j)] = up
     return -phase[U(i)] * d, 4 * d
+
+
+@njit(inline="always")
+def hop_masked(kind, spins, phase, above, p, a, i, j, f):
+    """:func:`hop` if f = 1, nothing if f = 0 (returns (0, 0))."""
+    if f:
+        return hop(kind, spins, phase, above, p, a, i, j)
+    return np.int64(0), np.int64(0)
 
 
 @njit(inline="always")

@@ -36,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from qmc.engine.kinds import apply_changes, hop, insertion_allowed, site_value, vertex_added
+from qmc.engine.kinds import apply_changes, hop, hop_masked, insertion_allowed, site_value, vertex_added
 from qmc.engine.rng import next_double
 from qmc.engine.slots import (
     SW_MS_END,
@@ -109,20 +109,22 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             group_counts[U(meta_group(meta))] += 1
             if (op & OP_OFF_MASK) != 0:
                 ops[p] = op
+                # propagate through every bond: off-diagonal ones (f = 1) flip their pair, diagonal ones
+                # (f = 0) change nothing and add zero; no branch on the bond pattern of a multi-bond
+                # operator, which the predictor cannot guess
                 for a in range(k):
-                    if (op >> a) & 1:
-                        col = TT_BOND + TT_BOND_WIDTH * a
-                        i = table[U(t), col]
-                        j = table[U(t), col + 1]
-                        b = table[U(t), col + 2]
-                        si, d_ms = hop(kind, spins, phase, above, p, a, i, j)
-                        if n_dirs > 0:
-                            w0 += si * bond_disp[U(b), 0]
-                            if n_dirs > 1:
-                                w1 += si * bond_disp[U(b), 1]
-                                if n_dirs > 2:
-                                    w2 += si * bond_disp[U(b), 2]
-                        ms += d_ms
+                    col = TT_BOND + TT_BOND_WIDTH * a
+                    i = table[U(t), col]
+                    j = table[U(t), col + 1]
+                    b = table[U(t), col + 2]
+                    si, d_ms = hop_masked(kind, spins, phase, above, p, a, i, j, (op >> a) & 1)
+                    if n_dirs > 0:
+                        w0 += si * bond_disp[U(b), 0]
+                        if n_dirs > 1:
+                            w1 += si * bond_disp[U(b), 1]
+                            if n_dirs > 2:
+                                w2 += si * bond_disp[U(b), 2]
+                    ms += d_ms
                 fm = float(ms)
                 sum_ms += fm
                 sum_ms2 += fm * fm
@@ -145,8 +147,10 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             r = u * n_terms
             t = int(r)
-            if r - t >= alias_prob[U(t)]:
-                t = alias_idx[U(t)]
+            # alias draw without a branch: both loads always, then a select (the test is a coin flip
+            # for terms whose weight is below the mean, e.g. the J terms of J-Q2)
+            alt = alias_idx[U(t)]
+            t = alt if r - t >= alias_prob[U(t)] else t
             k = meta_bonds(table[U(t), TT_META])
             allowed, s0, s1, s2, s3 = insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3)
             if not allowed:

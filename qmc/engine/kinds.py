@@ -24,6 +24,9 @@ Hooks (a kind module defines a numba function of the same name and arguments for
     inlined into the sweep at bond a (sites i, j) of an off-diagonal operator at slot p: propagate
     ``spins`` through it; returns the weight of the hop i -> j in the winding number (the net charge moved
     along the bond, e.g. S^z_i before the hop, times 2) and the change of ms = 2 x the staggered order.
+``hop_masked(kind, spins, phase, above, p, a, i, j, f) -> (weight, d_ms)``
+    ``hop`` if f = 1; if f = 0 the state stays and (0, 0) is returned.  The sweep calls it for every bond
+    of an off-diagonal operator (f = its off-diagonal bit); the projector's has no branch.
 ``site_value(kind, spins, i) -> sigma_i``
     the site's share of the uniform order (2 S^z_i for spins); phase_i sigma_i is its share of ms.
 ``bond_value(kind, spins, i, j) -> c_ij``
@@ -72,12 +75,12 @@ from numba.extending import overload
 from qmc.engine import colour, directed, projector
 from qmc.models.compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, VERTEX_KINDS, CompiledModel
 
-__all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-           "vertex_added", "measure", "loop_label", "loop_moments", "kind_record", "register_kind",
-           "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots", "loop_estimators_apply",
-           "max_loop_labels"]
+__all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value",
+           "bond_value", "vertex_added", "measure", "loop_label", "loop_moments", "kind_record",
+           "register_kind", "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots",
+           "loop_estimators_apply", "max_loop_labels"]
 
-HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
+HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value", "bond_value",
          "vertex_added", "measure", "loop_label", "loop_moments")
 """The numba-level hooks of a kind (a kind module that lacks one gets the projector's)."""
 
@@ -191,6 +194,11 @@ def hop(kind, spins, phase, above, p, a, i, j):
     raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
 
 
+def hop_masked(kind, spins, phase, above, p, a, i, j, f):
+    """Hook (see module docstring); only callable inside numba kernels."""
+    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+
+
 def site_value(kind, spins, i):
     """Hook (see module docstring); only callable inside numba kernels."""
     raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
@@ -209,6 +217,11 @@ def _apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
 @overload(hop, inline="always")
 def _hop(kind, spins, phase, above, p, a, i, j):
     return _implementation(kind, "hop")
+
+
+@overload(hop_masked, inline="always")
+def _hop_masked(kind, spins, phase, above, p, a, i, j, f):
+    return _implementation(kind, "hop_masked")
 
 
 @overload(site_value, inline="always")

@@ -43,9 +43,9 @@ from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
-           "insertion_allowed", "loop_update", "apply_changes", "hop", "site_value", "bond_value",
-           "vertex_added", "measure", "bonds_blocked", "mark_loop", "loop_label", "loop_moments",
-           "LOOP_ESTIMATORS", "max_loop_labels"]
+           "insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value",
+           "bond_value", "vertex_added", "measure", "bonds_blocked", "mark_loop", "loop_label",
+           "loop_moments", "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
@@ -191,6 +191,20 @@ def hop(kind, spins, phase, above, p, a, i, j):
     spins[U(i)] = -si
     spins[U(j)] = -spins[U(j)]
     return si, d_ms
+
+
+@njit(inline="always")
+def hop_masked(kind, spins, phase, above, p, a, i, j, f):
+    """:func:`hop` if f = 1, nothing if f = 0 (returns (0, 0)), without a branch: the sweep propagates
+    through every bond of an off-diagonal multi-bond operator this way, since which of its bonds hop is
+    a coin flip that a branch predictor cannot guess."""
+    si = spins[U(i)]
+    sj = spins[U(j)]
+    d_ms = -f * (2 * phase[U(i)] * si + 2 * phase[U(j)] * sj)
+    sign = 1 - 2 * f  # -1: flip the pair, +1: keep it
+    spins[U(i)] = sign * si
+    spins[U(j)] = sign * sj
+    return f * si, d_ms
 
 
 @njit(inline="always")
