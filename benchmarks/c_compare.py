@@ -13,13 +13,19 @@ all its measurements, as in benchmarks/throughput.py) and prints one JSON object
 - ``c_cpu_ns_per_slot_per_step`` / ``numba_cpu_ns_per_slot_per_step``: CPU time (``time.process_time``
   for numba, ``CLOCK_PROCESS_CPUTIME_ID`` inside the C program) of the measured steps divided by
   steps x cutoff, the minimum over repeats (the machine is shared), with the spread (max/min) of repeats;
-- ``ratio_numba_over_c``: the ratio of those minima (also per operator, since the two cutoffs differ);
+- ``ratio_numba_over_c``: the ratio of those minima (also per operator, since the two cutoffs differ, and
+  ``ratio_numba_over_c_per_step`` of the CPU microseconds per step, ``*_cpu_us_per_step``);
 - the sweep / loop split of one step for both (for numba the two kernels are called one at a time from
-  Python, so the split includes a few microseconds of dispatch per call);
+  Python, so the split includes a few microseconds of dispatch per call), and the loop's CPU ns per leg
+  visit (``*_loop_cpu_ns_per_leg``, 4 legs per bond vertex);
 - the energy per site of both, each the mean over the repeats with its error bar (bin errors combined
   over the independent chains), their difference in combined error bars, and ``energies_agree``:
   |difference| < 5 error bars or < 2e-3 relative (independent Markov chains; a loose check that the two
   programs sample the same distribution, not a precision test).
+
+``--estimators`` chooses the engine's estimators: ``improved`` (default, what ``qmc run`` does by default:
+the loop estimators, one more pass over the string per measured step, which the C program does not
+make) or ``plain`` (the same measurements as the C program).
 
 ``--c-variant`` is the C program's loop variant (``K`` or ``K:E``, see ``--scaling``; default 0: chosen by
 size, as the C program does by itself).
@@ -82,13 +88,16 @@ def run_c(exe: str, L: int, beta: float, J: float, Q: float, warmup: int, steps:
                           variants, str(rounds)], check=True, capture_output=True, text=True)
     res = json.loads(out.stdout)
     res.update({k: v for k, v in res["variants"][0].items() if k != "auto"})
+    res["cpu_us_per_step"] = 1e3 * res["cpu_ms_per_step"]
     return res
 
 
-def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
+def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float, int]:
     """CPU seconds of the diagonal sweep and of the loop update over ``steps`` extra (unmeasured) steps,
-    each kernel called directly so that the two can be timed separately."""
+    each kernel called directly so that the two can be timed separately, and the bond vertices summed over
+    those steps."""
     t_sweep = t_loop = 0.0
+    n_vert_sum = 0
     for _ in range(steps):
         c0 = time.process_time()
         n, n_vert = diagonal_sweep(sim.chain, sim.terms, sim.kind, sim.vertices, sim.probes, sim.tallies)
@@ -98,16 +107,17 @@ def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float]:
         c2 = time.process_time()
         t_sweep += c1 - c0
         t_loop += c2 - c1
-    return t_sweep, t_loop
+        n_vert_sum += int(n_vert)
+    return t_sweep, t_loop, n_vert_sum
 
 
 def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int,
-              split_steps: int) -> dict:
+              split_steps: int, estimators: str = "improved") -> dict:
     """One numba chain: warm-up, ``steps`` measured steps (CPU-timed), then the kernel split."""
     model = case_model(L, J, Q)
     bins = max(b for b in range(1, min(N_BINS, steps) + 1) if steps % b == 0)
     sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=bins,
-                     seed_words=stream_seed(seed, f"c-compare-{L}-{beta}-{J}-{Q}"))
+                     seed_words=stream_seed(seed, f"c-compare-{L}-{beta}-{J}-{Q}"), estimators=estimators)
     sim.advance(warmup)
     c0 = time.process_time()
     rows = sim.advance(steps)
@@ -115,7 +125,7 @@ def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, 
     energy = rows[:, sim.bin_names.index("energy")]
     n_ops = rows[:, sim.bin_names.index("n_ops")]
     err = float(np.std(energy, ddof=1) / np.sqrt(len(energy))) if len(energy) > 1 else 0.0
-    t_sweep, t_loop = _kernel_split(sim, split_steps)
+    t_sweep, t_loop, n_vert_sum = _kernel_split(sim, split_steps)
     return {
         "cutoff": sim.cutoff, "mean_n": float(np.mean(n_ops)),
         "energy_per_site": float(np.mean(energy)), "energy_per_site_err": err,
@@ -123,6 +133,8 @@ def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, 
         "cpu_ns_per_op_per_step": cpu / steps / max(float(np.mean(n_ops)), 1.0) * 1e9,
         "sweep_cpu_ns_per_slot": t_sweep / split_steps / sim.cutoff * 1e9,
         "loop_cpu_ns_per_slot": t_loop / split_steps / sim.cutoff * 1e9,
+        "loop_cpu_ns_per_leg": t_loop / max(4 * n_vert_sum, 1) * 1e9,
+        "cpu_us_per_step": cpu / steps * 1e6,
     }
 
 
@@ -136,7 +148,7 @@ def _combine(runs: list[dict]) -> tuple[float, float]:
 def _summary(runs: list[dict], prefix: str) -> dict:
     out = {}
     for key in ("cpu_ns_per_slot_per_step", "cpu_ns_per_op_per_step", "sweep_cpu_ns_per_slot",
-                "loop_cpu_ns_per_slot"):
+                "loop_cpu_ns_per_slot", "loop_cpu_ns_per_leg", "cpu_us_per_step"):
         vals = [r[key] for r in runs]
         out[f"{prefix}_{key}"] = min(vals)
         if key == "cpu_ns_per_slot_per_step":
@@ -151,20 +163,21 @@ def _summary(runs: list[dict], prefix: str) -> dict:
 
 
 def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, repeats: int,
-                 seed: int, c_variant: str = "0") -> dict:
+                 seed: int, c_variant: str = "0", estimators: str = "improved") -> dict:
     """Timings and energies of the C program and the numba engine on one case (see module docstring)."""
     J, Q = CASES[case]
     split_steps = max(10, steps // 4)
     c_runs, nb_runs = [], []
     for r in range(repeats):  # interleaved, so that a burst of load on the machine hits both
         c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r, c_variant))
-        nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps))
+        nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps, estimators))
     out = {"case": case, "L": L, "beta": beta, "J": J, "Q": Q, "warmup": warmup, "steps": steps,
-           "repeats": repeats}
+           "repeats": repeats, "numba_estimators": estimators}
     out.update(_summary(c_runs, "c"))
     out["c_loop_variant"] = {"tracers": c_runs[0]["tracers"], "eager": c_runs[0]["eager"]}
     out.update(_summary(nb_runs, "numba"))
     out["ratio_numba_over_c"] = out["numba_cpu_ns_per_slot_per_step"] / out["c_cpu_ns_per_slot_per_step"]
+    out["ratio_numba_over_c_per_step"] = out["numba_cpu_us_per_step"] / out["c_cpu_us_per_step"]
     out["ratio_numba_over_c_per_op"] = out["numba_cpu_ns_per_op_per_step"] / out["c_cpu_ns_per_op_per_step"]
     out["ratio_sweep"] = out["numba_sweep_cpu_ns_per_slot"] / out["c_sweep_cpu_ns_per_slot"]
     out["ratio_loop"] = out["numba_loop_cpu_ns_per_slot"] / out["c_loop_cpu_ns_per_slot"]
@@ -205,6 +218,9 @@ def main() -> None:
     p.add_argument("--seed", type=int, default=1)
     p.add_argument("--cc", default=os.environ.get("CC", "cc"))
     p.add_argument("--c-variant", default="0", help="loop variant of the C program (K or K:E; 0 = by size)")
+    p.add_argument("--estimators", default="improved", choices=["improved", "plain"],
+                   help="the engine's estimators (improved: the loop estimators, qmc run's default; "
+                        "plain: the same measurements as the C program)")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="C program only: compare loop variants at these L (beta = L)")
     p.add_argument("--variants", default="1,8:0,16:0,32:0,16:4,32:4",
@@ -234,7 +250,7 @@ def main() -> None:
                     sys.stdout.flush()
                 continue
             print(json.dumps(compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed,
-                                          a.c_variant)))
+                                          a.c_variant, a.estimators)))
             sys.stdout.flush()
 
 
