@@ -142,23 +142,22 @@ def loop_update(kind, chain, vertices, n_vertices):
     for l0 in range(0, n_legs, 2):
         if links[U(l0)] < 0:
             continue
-        mark = np.int32(-1 - 2 * n_loops)  # ~(2 label + flipped): the loop's label for the loop estimators
-        n_loops += 1
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
+        # one walk for kept and flipped loops, without a branch on the coin: a kept loop xors 0 into vflip;
+        # the mark ~(2 label + flipped) carries the loop's label for the loop estimators
+        f = np.uint8(u < 0.5)
+        mark = np.int32(-1 - 2 * n_loops) - np.int32(f)
+        n_loops += 1
         leg = l0
-        if u < 0.5:
-            mark -= 1
-            while True:
-                vflip[U(leg >> 2)] ^= 1
-                partner = leg ^ 1
-                nxt = links[U(partner)]
-                links[U(leg)] = mark
-                links[U(partner)] = mark
-                leg = nxt
-                if leg == l0:
-                    break
-        else:
-            mark_loop(links, l0, mark)
+        while True:
+            vflip[U(leg >> 2)] ^= f
+            partner = leg ^ 1
+            nxt = links[U(partner)]
+            links[U(leg)] = mark
+            links[U(partner)] = mark
+            leg = nxt
+            if leg == l0:
+                break
     for i in range(spins.shape[0]):
         f = first[i]
         if f < 0:
