@@ -23,9 +23,11 @@ One pass over the string does three things per slot:
    linked vertex list (leg layout in :mod:`qmc.engine.vertices`).
 
 Implementation notes (measured, see benchmarks/c_compare.py): the sweep is bound by data-dependent branches,
-so the loop flips are applied without a branch (``op ^= vflip << a``) and the insertion test ORs the bond
-checks instead of leaving early; the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit
-off-diagonal mask), which stops LLVM from vectorising the one-to-three-bond loops behind run-time checks.
+so the loop flips are applied without a branch (``op ^= vflip << a``), an off-diagonal operator propagates
+through all its bonds with the off-diagonal bit as a factor (hook ``hop_masked``), the alias draw selects
+between its two loaded candidates, and the insertion test ORs the bond checks instead of leaving early;
+the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit off-diagonal mask), which stops LLVM
+from vectorising the one-to-three-bond loops behind run-time checks.
 A term's bond count, group, sites and bonds come from one row of :func:`qmc.engine.vertices.term_table`
 rather than the chain term -> bond list -> bond -> sites.  The records' arrays are copied into locals once
 per sweep, so that the hot loop indexes plain arrays.
