@@ -14,11 +14,9 @@ tests/engine/test_colour_kind.py.
 from __future__ import annotations
 
 import pytest
-from helpers.chains import SIGMAS, mean_err, run_qmc
+from helpers.chains import estimates_of, off_by_more_than_sigmas, run_qmc
 from helpers.colour_clusters import CASES
 from helpers.colour_clusters import exact_colour_case as _exact
-
-from qmc.analysis.jackknife import jackknife
 
 
 @pytest.mark.parametrize(("name", "beta"), [pytest.param(n, b, id=f"{n}-beta{b}") for n, c in CASES.items()
@@ -27,18 +25,10 @@ def test_colour_averages_match_exact(name, beta):
     model = CASES[name][0]()
     exact = _exact(name).values(beta)
     bins = run_qmc(model, beta, steps=CASES[name][2][beta], seed_key=f"colour-{name}-{beta}")
-    n = model.n_sites
-    results = {}
-    for key in exact:
-        if key == "specific_heat":
-            c, err, _ = jackknife(lambda a, b: (b - a * a - a) / n, bins["n_ops"], bins["n_ops_sq"])
-            results[key] = (c, err)
-        else:
-            results[key] = mean_err(bins[key])
+    results = estimates_of(bins, exact, model.n_sites)
     e, de = results["energy"]
     assert de / abs(e) < 3e-3, f"energy error bar too large to be a test: {de / abs(e):.2%}"
     # 1e-5 absolute floor: a quantity with no fluctuation in a finite run has a zero error bar (at high
     # temperature a 6-site chain winds about once in 10^5 steps: stiffness ~ 1e-6)
-    bad = {k: (results[k], exact[k]) for k in exact
-           if abs(results[k][0] - exact[k]) > SIGMAS * results[k][1] + 1e-5}
+    bad = off_by_more_than_sigmas(results, exact, 1e-5)
     assert not bad, f"{name} beta={beta}: (QMC mean, error) vs exact: {bad}"

@@ -10,11 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from helpers.chains import SIGMAS, mean_err, run_qmc
+from helpers.chains import estimates_of, off_by_more_than_sigmas, run_qmc
 from helpers.exact_clusters import CASES
 from helpers.exact_clusters import exact_case as _exact
-
-from qmc.analysis.jackknife import jackknife
 
 # the columnar cluster has only 8 translations, so its exact spectrum takes minutes: run it with -m slow
 SLOW_CASES = {"columnar4"}
@@ -28,20 +26,12 @@ def test_thermal_averages_match_exact(name, beta):
     model = CASES[name][0]()
     exact = _exact(name).values(beta)
     bins = run_qmc(model, beta, steps=300_000, seed_key=f"{name}-{beta}")
-    n = model.n_sites
-    results = {}
-    for key in exact:
-        if key == "specific_heat":
-            c, err, _ = jackknife(lambda a, b: (b - a * a - a) / n, bins["n_ops"], bins["n_ops_sq"])
-            results[key] = (c, err)
-        else:
-            results[key] = mean_err(bins[key])
+    results = estimates_of(bins, exact, model.n_sites)
     e, de = results["energy"]
     assert de / abs(e) < 2e-3, f"energy error bar too large to be a test: {de / abs(e):.2%}"
     # 1e-6 absolute floor: quantities that are exponentially small in a gapped cluster (e.g. chi_uniform at
     # low T) can have no fluctuation at all in a finite run, hence a zero error bar
-    bad = {k: (results[k], exact[k]) for k in exact
-           if abs(results[k][0] - exact[k]) > SIGMAS * results[k][1] + 1e-6}
+    bad = off_by_more_than_sigmas(results, exact, 1e-6)
     assert not bad, f"{name} beta={beta}: (QMC mean, error) vs exact: {bad}"
 
 

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from helpers.chains import SIGMAS, run_qmc
+from helpers.chains import SIGMAS, off_by_more_than_sigmas, run_qmc
 from helpers.chains import mean_err as _mean_err
 from helpers.colour_clusters import CASES as COLOUR_CASES
 from helpers.colour_clusters import exact_colour_case as colour_exact
@@ -69,8 +69,7 @@ def test_loop_estimators_match_exact(name: str, beta: float, steps: int) -> None
     m, dm = results["m_stag2"]
     assert dm / m < 1e-2, f"m_stag2 error bar too large to be a test: {dm / m:.2%}"
     # 1e-7 absolute floor: chi_uniform of a gapped cluster at low T can be ~0 with no fluctuation at all
-    bad = {k: (results[k], exact[k]) for k in exact
-           if abs(results[k][0] - exact[k]) > SIGMAS * results[k][1] + 1e-7}
+    bad = off_by_more_than_sigmas(results, exact, 1e-7)
     assert not bad, f"{name} beta={beta}: (QMC mean, error) vs exact: {bad}"
 
 

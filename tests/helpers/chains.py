@@ -5,10 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from qmc.analysis.jackknife import jackknife
 from qmc.chain.simulation import Simulation
 from qmc.engine.rng import stream_seed
 
-__all__ = ["SIGMAS", "mean_err", "run_qmc"]
+__all__ = ["SIGMAS", "estimates_of", "mean_err", "off_by_more_than_sigmas", "run_qmc"]
 
 SIGMAS = 4.0  # allowed distance from the exact value, in error bars
 
@@ -26,3 +27,24 @@ def run_qmc(model, beta, steps, seed_key, bins=100, estimators="plain"):
 def mean_err(x):
     """Mean of the bins and its standard error (bins taken as independent)."""
     return float(np.mean(x)), float(np.std(x, ddof=1) / np.sqrt(len(x)))
+
+
+def estimates_of(bins, keys, n_sites: int) -> dict[str, tuple[float, float]]:
+    """(mean, error) of each of ``keys`` from the bins; ``specific_heat`` by jackknife from the operator
+    counts, C = (<n^2> - <n>^2 - <n>) / N (common practice, no source)."""
+    out = {}
+    for key in keys:
+        if key == "specific_heat":
+            c, err, _ = jackknife(lambda a, b: (b - a * a - a) / n_sites, bins["n_ops"], bins["n_ops_sq"])
+            out[key] = (c, err)
+        else:
+            out[key] = mean_err(bins[key])
+    return out
+
+
+def off_by_more_than_sigmas(results, exact, floor: float) -> dict:
+    """The entries of ``results`` farther from ``exact`` than SIGMAS error bars plus an absolute ``floor``
+    (a quantity with no fluctuation in a finite run has a zero error bar), as
+    {key: ((mean, error), exact)}."""
+    return {k: (results[k], exact[k]) for k in exact
+            if abs(results[k][0] - exact[k]) > SIGMAS * results[k][1] + floor}
