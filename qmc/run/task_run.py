@@ -30,6 +30,7 @@ import logging
 import os
 import time
 import traceback
+from abc import ABC, abstractmethod
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -84,7 +85,7 @@ class Decision(NamedTuple):
     write: bool
 
 
-class TaskRun:
+class TaskRun(ABC):
     """One execution of the tasks in ``tasks`` (those of this process) -- the shared path.
 
     Subclasses set :attr:`label` and implement :meth:`done_text`, :meth:`_load`, :meth:`_chains`,
@@ -112,21 +113,23 @@ class TaskRun:
         self._source: ConfigSource | None = None
 
     # ------------------------------------------------------------------------------------------ hooks
+    @abstractmethod
     def _load(self) -> bool:
         """Build or restore the chains, begin the books' sessions; False if the files say done."""
-        raise NotImplementedError
 
+    @abstractmethod
     def _chains(self) -> list[Simulation]:
         """The chains of this process, in the order of :attr:`books`."""
-        raise NotImplementedError
 
     @property
+    @abstractmethod
     def steps_done(self) -> int:
-        raise NotImplementedError
+        """Steps done by each chain of this run, warm-up included."""
 
     @property
+    @abstractmethod
     def total_steps(self) -> int:
-        raise NotImplementedError
+        """Steps each chain makes in all (warm-up and measurement) when the run goes to its end."""
 
     @property
     def target_reached(self) -> bool:
@@ -137,21 +140,21 @@ class TaskRun:
     def done(self) -> bool:
         return self.steps_done >= self.total_steps or self.target_reached
 
+    @abstractmethod
     def done_text(self) -> str:
         """What the log says about a finished run, e.g. ``"20 bins"``."""
-        raise NotImplementedError
 
+    @abstractmethod
     def _chunk(self, pacer: Pacer) -> int:
         """Steps to advance next (at least 1)."""
-        raise NotImplementedError
 
+    @abstractmethod
     def _advance(self, n: int) -> list[Sequence[np.ndarray]]:
         """Advance by ``n`` steps; the bins completed by each chain (order of :attr:`books`)."""
-        raise NotImplementedError
 
+    @abstractmethod
     def _decision(self) -> Decision | None:
         """The decision due now, None when this is not a decision point."""
-        raise NotImplementedError
 
     def _extras(self, j: int, sim: Simulation) -> dict[str, Any]:
         """Keyword arguments for :meth:`TaskBook.record` of book ``j`` besides the chain (none here)."""
@@ -162,7 +165,7 @@ class TaskRun:
         search), so that the loop goes on; False (here) to finish."""
         return False
 
-    def _written(self, j: int) -> None:
+    def _written(self, j: int) -> None:  # noqa: B027 (an optional hook: nothing to do by default)
         """Book ``j`` has just been written."""
 
     # ------------------------------------------------------------------------------------------ shared

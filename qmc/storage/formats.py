@@ -6,10 +6,10 @@ Every file this program writes says what it is in a ``format`` attribute (task f
 * task file: ``format = "seriesloop/task"``;
 * run index: ``format = "seriesloop/run-index"``.
 
-Releases before the project took its name wrote ``"dsqmc-task"`` and ``"dsqmc-run-index"`` with the same
-layout (version 1); such files are read as they are, and a file that is rewritten gets the new name.
-Reading one is said once per process (:func:`note_old_format`, a warning on the ``qmc.storage`` logger),
-not once per file.
+Releases before the project took its name wrote the same layout (version 1) under the format names in
+:data:`OLD_NAMES` (the only place they are spelled); such files are read as they are, and a file that
+is rewritten gets the new name.  Reading one is said once per process (:func:`note_old_format`, a warning
+on the ``qmc.storage`` logger), not once per file.
 """
 
 from __future__ import annotations

@@ -29,6 +29,9 @@ from qmc.storage.task_file import (
     write_task,
 )
 
+(OLD_TASK,) = formats.OLD_NAMES[TASK_FORMAT]  # the format names of releases before the rename
+(OLD_INDEX,) = formats.OLD_NAMES[INDEX_FORMAT]
+
 
 def test_round_trip(tmp_path):
     path = tmp_path / "t.h5"
@@ -245,15 +248,15 @@ def test_task_files_of_the_old_format_open_with_one_note(tmp_path, caplog, fresh
         path = task_path(run, tid)
         write_task(path, make_record(task_id=tid))
         with h5py.File(path, "r+") as f:
-            f.attrs["format"] = "dsqmc-task"
+            f.attrs["format"] = OLD_TASK
     caplog.set_level("WARNING", logger="qmc.storage")
     got = read_run(run)
     assert [d.task_id for d in got] == ["a", "b"] and got[0].bins_done == 3
     assert np.array_equal(got[1].bins["energy"], make_record().bins[:, 0])
     assert got[0].file_format == TASK_FORMAT  # same layout: shown under the current name
-    assert task_header(task_path(run, "a"))["format"] == "dsqmc-task"
+    assert task_header(task_path(run, "a"))["format"] == OLD_TASK
     notes = _old_notes(caplog)
-    assert len(notes) == 1 and "'dsqmc-task'" in notes[0] and "'seriesloop/task'" in notes[0]
+    assert len(notes) == 1 and repr(OLD_TASK) in notes[0] and "'seriesloop/task'" in notes[0]
     assert formats.old_format_noted(TASK_FORMAT) and not formats.old_format_noted(INDEX_FORMAT)
     write_task(task_path(run, "a"), make_record(task_id="a", n_bins=4))  # a rewrite uses the new name
     with h5py.File(task_path(run, "a"), "r") as f:
@@ -265,14 +268,14 @@ def test_task_files_of_the_old_format_open_with_one_note(tmp_path, caplog, fresh
 def test_run_index_of_the_old_format_opens_with_one_note(tmp_path, caplog, fresh_notes):
     index = new_index("fp", "/x.toml", "demo", [{"task_id": "t1", "params": {}, "bins_total": 8,
                                                  "steps_total": 85}])
-    index["format"] = "dsqmc-run-index"
+    index["format"] = OLD_INDEX
     (tmp_path / "index.json").write_text(json.dumps(index))
     caplog.set_level("WARNING", logger="qmc.storage")
     for _ in range(3):
         back = load_index(tmp_path)
         assert back["format"] == INDEX_FORMAT and back["tasks"]["t1"]["bins_total"] == 8
     notes = _old_notes(caplog)
-    assert len(notes) == 1 and "'dsqmc-run-index'" in notes[0]
+    assert len(notes) == 1 and repr(OLD_INDEX) in notes[0]
     write_index(tmp_path, back)
     assert json.loads((tmp_path / "index.json").read_text())["format"] == INDEX_FORMAT
 
@@ -280,12 +283,12 @@ def test_run_index_of_the_old_format_opens_with_one_note(tmp_path, caplog, fresh
 def test_a_quiet_process_reads_old_files_without_a_note(tmp_path, caplog, fresh_notes):
     write_task(tmp_path / "t.h5", make_record())
     with h5py.File(tmp_path / "t.h5", "r+") as f:
-        f.attrs["format"] = "dsqmc-task"
+        f.attrs["format"] = OLD_TASK
     formats.quiet_old_format_notes()
     caplog.set_level("WARNING", logger="qmc.storage")
     assert read_task(tmp_path / "t.h5").task_id == "L4_beta2_r0"
     assert _old_notes(caplog) == []
     with h5py.File(tmp_path / "t.h5", "r+") as f:  # any other name is still foreign
-        f.attrs["format"] = "dsqmc-task-2"
+        f.attrs["format"] = OLD_TASK + "-2"
     with pytest.raises(UserError, match="foreign"):
         read_task(tmp_path / "t.h5")
