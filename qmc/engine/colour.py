@@ -34,7 +34,8 @@ The updates (derived here from these weights; the SSE bookkeeping is that of :mo
   the old colours were.  For N = 2 the new colour equals the old one with probability 1/2, which is the
   projector kind's "flip each loop with probability 1/2".  A site without operators is a loop of its own
   and gets a uniform colour.  Every leg is visited once.
-- Bookkeeping: the b-th loop built marks its legs with ``~((b << colour_bits) | colour)`` in ``links``
+- Bookkeeping: the b-th loop built marks the even leg of each pair of legs it passes with
+  ``~((b << colour_bits) | colour)`` in ``links``
   (negative; the colour in the low ``colour_bits`` bits, the loop's label b above them for the loop
   estimators, :func:`loop_label`); a last pass stores for every bond
   vertex its new upper colour plus one in ``vflip`` (0: no change pending).  The next sweep (or
@@ -145,7 +146,7 @@ def loop_update(kind, chain, vertices, n_vertices):
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             spins[i] = np.int8(int(u * n_colours))
         else:
-            spins[i] = np.int8((~links[U(f)]) & mask)
+            spins[i] = np.int8((~links[U(f & ~1)]) & mask)
     rng[0] = s0
     rng[1] = s1
     rng[2] = s2

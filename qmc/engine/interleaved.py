@@ -37,13 +37,13 @@ Same chain as the single tracer: the scan meets the pairs in increasing order, s
 loop starts at the loop's first pair, where the single tracer starts it; ids grow in scan order, so the
 roots (smallest id of each loop) come in the single tracer's loop order and draw the same random numbers
 (one pass over the ids in increasing order; parents are smaller than their children).  The free sites then
-draw in site order, as in the single tracer.  At the end every leg holds -1 (its loop kept) or -2
-(flipped), as the single tracer leaves ``links[:4 n_vertices]``.
+draw in site order, as in the single tracer.  At the end the even leg of every pair holds -1 (its loop
+kept) or -2 (flipped) and the odd legs keep their links, as the single tracer leaves ``links[:4 n_vertices]``.
 tests/engine/test_interleaved_loops.py checks all of this step by step.
 
-Per-loop quantities (e.g. improved estimators): with ``labelled`` every leg ends marked ~(2 b + f), b the
-loop's number in the single tracer's order, so an estimator pass after the loop update reads the same
-labels whichever tracer ran.  Sums gathered while tracing would go per fragment id (at the
+Per-loop quantities (e.g. improved estimators): with ``labelled`` the even leg of every pair ends marked
+~(2 b + f), b the loop's number in the single tracer's order, so an estimator pass after the loop update
+reads the same labels whichever tracer ran.  Sums gathered while tracing would go per fragment id (at the
 ``links[c & ~1] = lab`` stores) and be added to the root's sum in the pass over the ids, where each root is
 one completed loop and its flip is drawn.
 """
@@ -110,9 +110,10 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
     ``max_ids`` fragment ids are used (0: as many as the tail of ``links`` holds).  Needs
     ``links.shape[0] >= 4 n_vertices + PAD``.
 
-    Leg marks left in ``links[:4 n_vertices]``: -1 - f with f = 1 if the leg's loop flipped, else 0; with
-    ``labelled`` -1 - (2 b + f) = ~(2 b + f) instead, b = 0, 1, ... the loop's number in the single
-    tracer's order (the order in which loops draw their flips), for per-loop estimators."""
+    Leg marks left on the even legs of ``links[:4 n_vertices]`` (the odd legs keep their links): -1 - f
+    with f = 1 if the leg's loop flipped, else 0; with ``labelled`` -1 - (2 b + f) = ~(2 b + f) instead,
+    b = 0, 1, ... the loop's number in the single tracer's order (the order in which loops draw their
+    flips), for per-loop estimators."""
     n_legs = 4 * n_vertices
     base = n_legs + PAD  # fragment ids: links[base + f]
     cap = links.shape[0] - base
@@ -287,17 +288,15 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             leg = nxt
             if leg == l0:
                 break
-    # each pair's value from its mark (id -> its loop's value; below the ids -> the value in the mark); both
-    # legs end marked -1 - value, vflip[v] = flip below xor flip above
+    # each pair's value from its mark (id -> its loop's value; below the ids -> the value in the mark); the
+    # even leg of each pair ends marked -1 - value, vflip[v] = flip below xor flip above
     for v in range(n_vertices):
         i = -3 - links[U(4 * v)]
         va = links[U(base + i)] if i < n_frag else i - n_frag
         links[U(4 * v)] = -1 - va
-        links[U(4 * v + 1)] = -1 - va
         i = -3 - links[U(4 * v + 2)]
         vb = links[U(base + i)] if i < n_frag else i - n_frag
         links[U(4 * v + 2)] = -1 - vb
-        links[U(4 * v + 3)] = -1 - vb
         vflip[U(v)] = np.uint8((va ^ vb) & 1)
     for i in range(spins.shape[0]):
         f = first[i]
@@ -305,7 +304,7 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        elif (-1 - links[U(f)]) & 1:
+        elif (-1 - links[U(f & ~1)]) & 1:
             spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1

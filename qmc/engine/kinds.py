@@ -42,7 +42,8 @@ uniform random numbers u, one per site) and ``SLOT_COLOURS`` (True if the kind k
     inlined into measuring steps: the kind's own estimators, in the accumulator slots after the groups
     (``acc_slots(n_groups)`` of them).
 ``loop_label(kind, mark) -> b``
-    the label (0, 1, ...) of the loop whose legs the loop update marked ``mark`` in ``links``, for the loop
+    the label (0, 1, ...) of the loop that the loop update marked ``mark`` in ``links`` (on the even leg of
+    each pair of legs it passes; read ``links[leg & ~1]``), for the loop
     estimators (:mod:`qmc.engine.loop_estimators`); only kinds with ``LOOP_ESTIMATORS`` label their loops.
 ``loop_moments(kind) -> (E[x^2], E[x^4])``
     moments of a loop's share x of the staggered order per site (+-1/2 for spins; delta(c, 0) - 1/N for

@@ -115,7 +115,7 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vertices, n
             q2 += 1
             q4 += 1.0
         else:
-            b = loop_label(kind, links[U(f)])
+            b = loop_label(kind, links[U(f & ~1)])
             cb = count[b]
             if cb == 0:
                 length[b] = n_c
@@ -156,7 +156,7 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vertices, n
     for i in range(n_sites):  # L_l = n n_l(0) - sum over its changes d at operator p of d p
         f = first[i]
         if f >= 0:
-            b = loop_label(kind, links[U(f)])
+            b = loop_label(kind, links[U(f & ~1)])
             length[b] = n * count[b]
     sum_q2 = 0.0
     sum_q2sq = 0.0

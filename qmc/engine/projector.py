@@ -11,9 +11,10 @@ parallel pair, so an operator weighs C_t / 2^k whenever all its bonds are antipa
 - Loop update (:func:`loop_update`): every bond vertex is a four-leg vertex with equal weights, so the
   deterministic loop (enter at leg l, exit at leg l ^ 1, follow the world-line link) changes no weight and
   each loop is flipped with probability 1/2.  All loops are constructed (each leg visited exactly once);
-  the legs of the b-th loop built are marked ~(2 b) = -1 - 2 b (visited, kept) or ~(2 b + 1) (visited,
-  flipped) in ``links``: negative, the flip in the lowest bit, and the loop's label b (:func:`loop_label`)
-  for the loop estimators (:mod:`qmc.engine.loop_estimators`).  Sites without any operator are flipped with
+  the b-th loop built marks the even leg of each pair of legs it passes (a pair {2q, 2q + 1} lies on one
+  loop; the odd legs keep their links) ~(2 b) = -1 - 2 b (visited, kept) or ~(2 b + 1) (visited,
+  flipped): negative, the flip in the lowest bit, and the loop's label b (:func:`loop_label`) for the loop
+  estimators (:mod:`qmc.engine.loop_estimators`).  Sites without any operator are flipped with
   probability 1/2; the other sites follow the loop through their first leg.
 - The state is S^z_i = spins[i] / 2 (``spins`` +-1); a flipped loop toggles the diagonal/off-diagonal bit of
   each bond side it passes (``vflip``), which the next sweep xors into ``ops`` (:func:`apply_changes`); an
@@ -89,14 +90,13 @@ def bonds_blocked(table, t, k, spins, blocked_if_equal):
 
 @njit(inline="always")
 def mark_loop(links, l0, mark):
-    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set every leg it
-    visits to ``mark`` (< 0: visited).  Shared with the colour kind."""
+    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set the even leg of
+    every pair of legs it visits to ``mark`` (< 0: visited; the odd legs keep their links).  Shared with
+    the colour kind."""
     leg = l0
     while True:
-        partner = leg ^ 1
-        nxt = links[U(partner)]
-        links[U(leg)] = mark
-        links[U(partner)] = mark
+        nxt = links[U(leg ^ 1)]
+        links[U(leg & ~1)] = mark
         leg = nxt
         if leg == l0:
             break
@@ -149,12 +149,10 @@ def loop_update(kind, chain, vertices, n_vertices):
         mark = np.int32(-1 - 2 * n_loops) - np.int32(f)
         n_loops += 1
         leg = l0
-        while True:
+        while True:  # one mark per pair of legs, on its even leg (the pair lies on one loop)
             vflip[U(leg >> 2)] ^= f
-            partner = leg ^ 1
-            nxt = links[U(partner)]
-            links[U(leg)] = mark
-            links[U(partner)] = mark
+            nxt = links[U(leg ^ 1)]
+            links[U(leg & ~1)] = mark
             leg = nxt
             if leg == l0:
                 break
@@ -164,7 +162,7 @@ def loop_update(kind, chain, vertices, n_vertices):
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
             if u < 0.5:
                 spins[i] = -spins[i]
-        elif (~links[U(f)]) & 1:
+        elif (~links[U(f & ~1)]) & 1:
             spins[i] = -spins[i]
     rng[0] = s0
     rng[1] = s1
