@@ -15,6 +15,13 @@ observables (chi_uniform, m_stag2, m_stag4, chi_stag, s_q, s_q_shifted) are meas
 estimators where the vertex kind updates its loops independently (:func:`uses_loop_estimators`), else by
 the plain ones; the Markov chain is the same either way.
 
+Cutoff: the string starts with max(32, 1.2 beta W_tot + 16) slots; during the warm-up, whenever fewer than
+n/3 of them are empty it grows to :func:`grown_cutoff` = n + n/3 + 16 slots (about 4n/3; the margin n/3
+is far beyond the fluctuations of n, of order sqrt(n), so the string never fills when measuring).  A
+longer string costs sweep time and changes nothing else (empty slots carry no vertex).  Up to commit
+46a0760 the string grew to n + n/2 + 16 (the same distribution, another random path; chains warmed up by
+that code keep their longer string; tests/chain/test_stored_bins.py checks both rules).
+
 ``counters`` (int64[COUNTERS]): n, the operators in the string; directed loops per step; 1 once that number
 is frozen (measurement started); unused.
 """
@@ -47,12 +54,18 @@ from qmc.engine.steps import bound_run_steps
 from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, term_table
 from qmc.models.compiled import CompiledModel
 
-__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS", "uses_loop_estimators"]
+__all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS", "uses_loop_estimators", "grown_cutoff"]
 
 COUNTERS = 4
 
 HIST_BINS = 64
 HIST_RANGE = 0.25  # |D_a| <= 1/4 for the columnar dimer order parameter
+
+
+def grown_cutoff(n: int) -> int:
+    """The cutoff (slots) the string grows to when fewer than n/3 of its slots are empty (warm-up only):
+    n + n // 3 + 16 for n operators (module docstring)."""
+    return n + n // 3 + 16
 
 
 def uses_loop_estimators(estimators: str, kind: object) -> bool:
@@ -207,9 +220,8 @@ class Simulation:
                                                 dtype=np.float64))
 
     def _grow_cutoff(self) -> None:
-        """Append empty slots so that the string is at least 1.5 n + 16 long (warm-up only)."""
-        n = int(self.counters[0])
-        new = n + n // 2 + 16
+        """Append empty slots so that the string is at least :func:`grown_cutoff` (n) long (warm-up only)."""
+        new = grown_cutoff(int(self.counters[0]))
         if new <= self.ops.shape[0]:
             return
         self._fold_flips()

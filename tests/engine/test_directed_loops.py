@@ -154,13 +154,27 @@ CHAIN_CASES = {  # name: (J, delta, h, staggered, beta)
 }
 
 
+UNRESOLVED = {"heisenberg in a staggered field": "stiffness"}
+"""Observables a case's run cannot resolve.  In the staggered field the exact stiffness of the 12-site chain
+is 2.9e-5: a configuration with a winding number appears a few times in 10^6 steps and stays for about a
+hundred steps, so 3e5 steps see zero to two such episodes and the bins' error bar (zero when none is seen)
+means nothing.  The other cases test the stiffness; :func:`test_12_site_chain_matches_exact_diagonalization`
+checks that the skipped value is indeed below what the run resolves."""
+
+
 @pytest.mark.parametrize("case", CHAIN_CASES)
 def test_12_site_chain_matches_exact_diagonalization(case):
     J, delta, h, staggered, beta = CHAIN_CASES[case]
     model, bins = _run(build_lattice("chain", (12,)), [XXZTerm("nn", J, delta), FieldTerm(h, staggered)],
                        beta, 300000, seed=11)
     exact = xxz_observables("chain", (12,), beta, {"nn": (J, delta)}, h, staggered)
-    _compare(_estimates(model, bins, beta), exact)
+    qmc = _estimates(model, bins, beta)
+    if case in UNRESOLVED:
+        skipped = UNRESOLVED[case]
+        assert abs(exact[skipped]) < 1e-4, (skipped, exact[skipped])
+        assert abs(qmc[skipped][0]) < 1e-4, (skipped, qmc[skipped])
+        del qmc[skipped]
+    _compare(qmc, exact)
 
 
 SQUARE_CASES = {
