@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from helpers.configs import config_text, heisenberg_nn, plaquette_pairs
 from helpers.paths import REPO
 from helpers.synthetic_tasks import GS, make_task
 
@@ -15,30 +16,10 @@ from qmc.analysis.fit_quality import crossing_caveats, fit_quality
 from qmc.analysis.labels import axis_label, coupling_label, describe, observable_note
 from qmc.analysis.run_text import run_text
 
-CONFIG = """
-[run]
-name = "synthetic"
-seed = 1
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "g"
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = 1.0
-[scan]
-L = [8, 16]
-g = {start = 0.9, stop = 1.1, num = 9}
-beta = "L"
-[sampling]
-warmup_steps = 10
-measure_steps = 100
-bins = 10
-"""
+CONFIG = config_text(run_name="synthetic", output=None, terms=[heisenberg_nn("g"), plaquette_pairs(1.0)],
+                     scan={"L": [8, 16], "g": {"start": 0.9, "stop": 1.1, "num": 9}, "beta": "L"},
+                     warmup_steps=10, measure_steps=100, bins=10)
+"""The configuration text the synthetic tasks carry: the titles and labels are read from it."""
 
 
 def test_the_stated_limits_of_the_ratios_follow_from_their_distributions():
@@ -72,6 +53,7 @@ def test_run_text_of_a_demo_config():
     assert text.hamiltonian == "H = J sum_nn S_i.S_j - 1 sum_plaquette-pair PP"
     assert text.lattice == "square lattice of L x L unit cells, periodic boundaries"
     assert text.beta_rule == "beta = L" and text.couplings == {"J": "Heisenberg coupling on the nn bonds"}
+    # hand-written on purpose: text that is not TOML at all, which the builder cannot produce
     assert run_text("not [ toml").description.startswith("the configuration text could not be read")
 
 

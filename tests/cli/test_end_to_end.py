@@ -11,47 +11,23 @@ from __future__ import annotations
 import json
 
 from click.testing import CliRunner
+from helpers.configs import heisenberg_nn, plaquette_pairs
 
 from qmc.cli.main import cli
 
 G_C = 2.5220  # Wang, Beach and Sandvik, PRB 73, 014431 (2006)
 SYSTEMATIC = 0.04
 
-CONFIG = """
-[run]
-name = "bilayer-e2e"
-output = "run"
-seed = 4242
-
-[lattice]
-kind = "bilayer"
-size = ["L", "L"]
-
-[[terms]]
-type = "heisenberg"
-bonds = "intra"
-coupling = 1.0
-
-[[terms]]
-type = "heisenberg"
-bonds = "inter"
-coupling = "g"
-
-[scan]
-L = [4, 8]
-g = { start = 2.3, stop = 2.7, num = 5 }
-beta = "2*L"
-
-[sampling]
-warmup_steps = 1000
-measure_steps = 6000
-bins = 60
-"""
+BILAYER = dict(run_name="bilayer-e2e", seed=4242, lattice="bilayer",
+               terms=[{"type": "heisenberg", "bonds": "intra", "coupling": 1.0},
+                      {"type": "heisenberg", "bonds": "inter", "coupling": "g"}],
+               scan={"L": [4, 8], "g": {"start": 2.3, "stop": 2.7, "num": 5}, "beta": "2*L"},
+               warmup_steps=1000, measure_steps=6000, bins=60)
+"""Keywords of the make_config fixture: the bilayer with J_intra = 1 and J_inter = g scanned across g_c."""
 
 
-def test_bilayer_sweep_crossing_brackets_published_critical_coupling(tmp_path):
-    config = tmp_path / "bilayer.toml"
-    config.write_text(CONFIG)
+def test_bilayer_sweep_crossing_brackets_published_critical_coupling(tmp_path, make_config):
+    config = make_config("bilayer.toml", **BILAYER)
     runner = CliRunner()
     result = runner.invoke(cli, ["run", str(config), "--quiet"])
     assert result.exit_code == 0, result.output
@@ -69,38 +45,16 @@ def test_bilayer_sweep_crossing_brackets_published_critical_coupling(tmp_path):
     assert len(table) - 1 == 10
 
 
-SCAN_OF_TWO = """
-[run]
-seed = 99
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = "J"
-[[terms]]
-type = "projector-product"
-shape = "plaquette-pair"
-coupling = "Q"
-[scan]
-L = [4, 6]
-Q = [0.5, 1.0, 1.5]
-J = [0.5, 1.0]
-beta = ["L", "2*L"]
-[sampling]
-warmup_steps = 100
-measure_steps = 640
-bins = 64
-"""
+SCAN_OF_TWO = dict(seed=99, terms=[heisenberg_nn("J"), plaquette_pairs("Q")],
+                   scan={"L": [4, 6], "Q": [0.5, 1.0, 1.5], "J": [0.5, 1.0], "beta": ["L", "2*L"]},
+                   warmup_steps=100, measure_steps=640, bins=64)
+"""Keywords of the make_config fixture: the J-Q2 model with both couplings scanned."""
 
 
-def test_analyze_groups_by_a_second_parameter_and_checks_beta_pairs(tmp_path):
+def test_analyze_groups_by_a_second_parameter_and_checks_beta_pairs(tmp_path, make_config):
     """Q is scanned at two values of J, every point at beta = L and 2L (a list of expressions): the
     analysis runs per J and compares every (L, Q, J) at beta and 2 beta."""
-    config = tmp_path / "two.toml"
-    config.write_text(SCAN_OF_TWO)
+    config = make_config("two.toml", **SCAN_OF_TWO)
     runner = CliRunner()
     result = runner.invoke(cli, ["run", str(config), "--quiet"])
     assert result.exit_code == 0, result.output

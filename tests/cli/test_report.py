@@ -19,37 +19,18 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from helpers.configs import write_config
 
 import qmc
 from qmc.cli.main import cli
 
-CONFIG = """
-[run]
-name = "report-test"
-seed = 77
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "columnar-weak"
-coupling = 1.0
-[[terms]]
-type = "heisenberg"
-bonds = "columnar-strong"
-coupling = "g"
-[scan]
-L = [4, 8]
-g = [1.2, 1.6, 2.0, 2.4, 2.8]
-beta = "L"
-[sampling]
-warmup_steps = 100
-measure_steps = 640
-bins = 16
-"""
-"""Columnar dimerized square lattice around its Neel to dimer-singlet transition (g_c near 1.9): the curves
-of L = 4 and 8 cross inside the scan."""
+COLUMNAR = dict(run_name="report-test", seed=77,
+                terms=[{"type": "heisenberg", "bonds": "columnar-weak", "coupling": 1.0},
+                       {"type": "heisenberg", "bonds": "columnar-strong", "coupling": "g"}],
+                scan={"L": [4, 8], "g": [1.2, 1.6, 2.0, 2.4, 2.8], "beta": "L"},
+                warmup_steps=100, measure_steps=640, bins=16)
+"""Keywords of helpers.configs.write_config: the columnar dimerized square lattice around its Neel to
+dimer-singlet transition (g_c near 1.9); the curves of L = 4 and 8 cross inside the scan."""
 
 PNG = b"\x89PNG\r\n\x1a\n"
 
@@ -83,7 +64,7 @@ class Page(HTMLParser):
 @pytest.fixture(scope="module")
 def report(tmp_path_factory) -> tuple[Path, Path]:
     tmp = tmp_path_factory.mktemp("report")
-    (tmp / "config.toml").write_text(CONFIG)
+    write_config(tmp, "config.toml", **COLUMNAR)
     run_dir = qmc.run_config(tmp / "config.toml", progress=False)
     result = CliRunner().invoke(cli, ["report", str(run_dir)])
     assert result.exit_code == 0, result.output

@@ -14,7 +14,8 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-__all__ = ["HEISENBERG_NN", "JQ2_TERMS", "config_text", "heisenberg_nn", "toml_value", "write_config"]
+__all__ = ["HEISENBERG_NN", "JQ2_TERMS", "config_text", "heisenberg_nn", "plaquette_pairs", "toml_value",
+           "write_config"]
 
 
 def heisenberg_nn(coupling: Any = 1.0) -> dict[str, Any]:
@@ -22,9 +23,14 @@ def heisenberg_nn(coupling: Any = 1.0) -> dict[str, Any]:
     return {"type": "heisenberg", "bonds": "nn", "coupling": coupling}
 
 
+def plaquette_pairs(coupling: Any = "Q") -> dict[str, Any]:
+    """The product of two singlet projectors on the plaquette pairs with the given coupling (the Q2 term)."""
+    return {"type": "projector-product", "shape": "plaquette-pair", "coupling": coupling}
+
+
 HEISENBERG_NN = (heisenberg_nn(1.0),)
 # J = 1 on nearest neighbours and Q (the scanned parameter) on plaquette pairs: the J-Q2 model.
-JQ2_TERMS = (heisenberg_nn(1.0), {"type": "projector-product", "shape": "plaquette-pair", "coupling": "Q"})
+JQ2_TERMS = (heisenberg_nn(1.0), plaquette_pairs("Q"))
 
 
 def toml_value(value: Any) -> str:

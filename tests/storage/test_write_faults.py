@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.configs import write_config
 from helpers.task_records import make_record
 
 import qmc.storage.atomic as atomic
@@ -31,31 +32,16 @@ from qmc.storage.faults import WRITE_FAULT_EXIT, WriteFault
 from qmc.storage.run_index import load_index
 from qmc.storage.task_file import read_task, task_path, write_task
 
-CONFIG = """
-[run]
-seed = 77
-output = "run"
-[lattice]
-kind = "square"
-size = ["L", "L"]
-[[terms]]
-type = "heisenberg"
-bonds = "nn"
-coupling = 1.0
-[scan]
-L = [16]
-beta = 8
-[sampling]
-warmup_steps = 100
-measure_steps = 60000
-bins = 400
-copies = {copies}
-checkpoint_seconds = 0.05
-"""
+
 # a task file of this configuration holds ~240 KB after 255 bins and ~280 KB from bin 256 on (the bins
 # datasets grow by chunks of 256 rows): a 520 KB disk cannot hold the old and the new file side by side,
 # and a 260 KB file-size limit refuses the write of bin 256.  A task runs for several seconds (5 s on an
 # idle 2026 machine), so that checkpoints with bins are written before (at most one write a second).
+def write_fault_config(directory: Path, *, copies: int, measure_steps: int = 60000) -> Path:
+    """``directory / c.toml``: square-lattice Heisenberg model, L = 16 at beta = 8, ``copies`` equal tasks
+    with 400 bins each, a checkpoint asked for every 0.05 s."""
+    return write_config(directory, "c.toml", seed=77, scan={"L": [16], "beta": 8}, warmup_steps=100,
+                        measure_steps=measure_steps, bins=400, copies=copies, checkpoint_seconds=0.05)
 
 
 # ------------------------------------------------------------------------------------------- the writer
@@ -164,8 +150,7 @@ def _can_mount() -> bool:
 
 
 def test_a_full_disk_stops_the_run_cleanly_and_it_resumes(tmp_path):
-    config = tmp_path / "c.toml"
-    config.write_text(CONFIG.format(copies=1))
+    config = write_fault_config(tmp_path, copies=1)
     disk = tmp_path / "disk"
     disk.mkdir()
     mounted = _can_mount() and subprocess.run(["mount", "-t", "tmpfs", "-o", "size=520k", "tmpfs", str(disk)],
@@ -205,10 +190,9 @@ def test_under_mpi_a_fault_on_one_rank_stops_every_rank_with_a_checkpoint(tmp_pa
     mpiexec = str(here) if here.exists() else shutil.which("mpiexec")
     if mpiexec is None:
         pytest.skip("no mpiexec")
-    config = tmp_path / "c.toml"
-    # two equal tasks, one per rank; longer bins than CONFIG so that rank 0 is still well inside its task
-    # when rank 1 hits its limit (at bin 256) and the stop reaches it
-    config.write_text(CONFIG.format(copies=2).replace("measure_steps = 60000", "measure_steps = 180000"))
+    # two equal tasks, one per rank; longer bins than the default so that rank 0 is still well inside its
+    # task when rank 1 hits its limit (at bin 256) and the stop reaches it
+    config = write_fault_config(tmp_path, copies=2, measure_steps=180000)
     run_dir = tmp_path / "run"
     args = ["run", str(config), "--quiet", "--out", str(run_dir)]
     # rank 1 limits its file size once MPI has started (the MPI library's shared memory is a file too)
