@@ -213,8 +213,9 @@ class Simulation:
                              group_counts=np.zeros(len(self.model.group_names), dtype=np.int64),
                              sweep_out=np.zeros(SW_SIZE, dtype=np.float64),
                              et_out=np.zeros(ET_SIZE, dtype=np.float64),
-                             loop_count=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
-                             loop_length=np.zeros(2 * n_slots if self.improved else 0, dtype=np.int64),
+                             loop_tally=np.zeros(4 * n_slots if self.improved else 0, dtype=np.int64),
+                             loop_ends=np.zeros(n_slots + 1 if self.improved and self.kmax > 1 else 0,
+                                                dtype=np.uint8),
                              loop_site=np.zeros(n_sites if self.improved else 0, dtype=np.int64),
                              loop_sums=np.zeros((n_sites if self.improved else 0, 1 + 2 * self.model.n_dirs),
                                                 dtype=np.float64))

@@ -11,7 +11,9 @@ Per configuration (N sites, phi_i the staggered sign):
 - ``D_x, D_y``   columnar dimer order parameter D_a = (1/N) sum_{bonds b along a} (-1)^{a_b} S^z_i S^z_j
 - ``cos4``       cos 4 theta = (D_x^4 - 6 D_x^2 D_y^2 + D_y^4) / (D_x^2 + D_y^2)^2 (0 when D = 0)
 
-and the (D_x, D_y) histogram over [-r, r]^2.
+and the (D_x, D_y) histogram over [-r, r]^2.  ``mz2`` and ``s_q_shifted`` are computed only when asked
+(``order``): with the loop estimators (:mod:`qmc.engine.loop_estimators`) the step driver takes their loop
+forms instead and leaves the two slots alone.
 """
 
 from __future__ import annotations
@@ -24,13 +26,9 @@ from qmc.engine.slots import ET_DX, ET_DY, ET_MZ2, ET_SQN
 __all__ = ["equal_time"]
 
 
-@njit(cache=True, boundscheck=False)
-def equal_time(kind, spins, probes, tallies):
-    """Fill ``tallies.et_out`` (slots ``ET_*``: mz2, S(Q + dq), D_x, D_y) for the current spins and add
-    (D_x, D_y) to ``tallies.hist``.  Records: :mod:`qmc.engine.records`."""
-    cos_tab, sin_tab, hist_range = probes.cos_tab, probes.sin_tab, probes.hist_range
-    vbs_bonds, vbs_dir, vbs_phase = probes.vbs_bonds, probes.vbs_dir, probes.vbs_phase
-    hist, out = tallies.hist, tallies.et_out
+@njit(inline="always")
+def _order_parameters(kind, spins, cos_tab, sin_tab, out):
+    """out[ET_MZ2] = (sum_i S^z_i)^2 and out[ET_SQN] = S(Q + dq) averaged over the directions."""
     n_sites = spins.shape[0]
     mz = 0
     for i in range(n_sites):
@@ -50,6 +48,19 @@ def equal_time(kind, spins, probes, tallies):
         out[ET_SQN] = 0.25 * sqn / (n_dirs * n_sites)
     else:
         out[ET_SQN] = 0.0
+
+
+@njit(cache=True, boundscheck=False)
+def equal_time(kind, spins, probes, tallies, order):
+    """Fill ``tallies.et_out`` (slots ``ET_*``: D_x, D_y, and with ``order`` mz2 and S(Q + dq); without it
+    those two slots keep what they held) for the current spins and add (D_x, D_y) to ``tallies.hist``.
+    Records: :mod:`qmc.engine.records`."""
+    cos_tab, sin_tab, hist_range = probes.cos_tab, probes.sin_tab, probes.hist_range
+    vbs_bonds, vbs_dir, vbs_phase = probes.vbs_bonds, probes.vbs_dir, probes.vbs_phase
+    hist, out = tallies.hist, tallies.et_out
+    n_sites = spins.shape[0]
+    if order:
+        _order_parameters(kind, spins, cos_tab, sin_tab, out)
     dx = 0.0
     dy = 0.0
     for b in range(vbs_bonds.shape[0]):

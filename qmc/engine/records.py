@@ -25,9 +25,11 @@ wrong array is refused where the record is made, not silently used.
 ``Tallies``     where results go: ``acc`` float64[acc_size(G, K, C, T)], ``hist`` int64[h, h], and the
                 per-step scratch ``group_counts`` int64[G] (G >= 1), ``sweep_out`` float64[SW_SIZE],
                 ``et_out`` float64[ET_SIZE] (slots in :mod:`qmc.engine.slots`); for the loop estimators
-                (:mod:`qmc.engine.loop_estimators`) ``loop_count``/``loop_length`` int64[2 M k_max] (one
-                per loop label), ``loop_site`` int64[N], ``loop_sums`` float64[N, 1 + 2 D] (all of length 0
-                when the chain uses the plain estimators)
+                (:mod:`qmc.engine.loop_estimators`) ``loop_tally`` int64[4 M k_max] (a loop's site count
+                and length side by side, two per loop label; left zero between calls), ``loop_ends``
+                uint8[M k_max + 1] (models with multi-bond terms, else length 0: where the operators end;
+                left zero between calls), ``loop_site`` int64[N], ``loop_sums`` float64[N, 1 + 2 D] (all of
+                length 0 when the chain uses the plain estimators)
 ==============  =============================================================================================
 
 The vertex kind's own record (e.g. :class:`qmc.engine.projector.ProjectorKind`) is a further argument; see
@@ -86,8 +88,8 @@ class Tallies(NamedTuple):
     group_counts: np.ndarray
     sweep_out: np.ndarray
     et_out: np.ndarray
-    loop_count: np.ndarray
-    loop_length: np.ndarray
+    loop_tally: np.ndarray
+    loop_ends: np.ndarray
     loop_site: np.ndarray
     loop_sums: np.ndarray
 
@@ -104,7 +106,8 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0),
              "site_column": (_I32, 1)},
     Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),
-              "et_out": (_F64, 1), "loop_count": (_I64, 1), "loop_length": (_I64, 1), "loop_site": (_I64, 1),
+              "et_out": (_F64, 1), "loop_tally": (_I64, 1), "loop_ends": (_U8, 1),
+              "loop_site": (_I64, 1),
               "loop_sums": (_F64, 2)},
 }
 

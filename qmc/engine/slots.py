@@ -12,8 +12,8 @@ into the code and the kernels, :mod:`qmc.chain.observables` and the tests name t
 
 ``et_out`` (float64[ET_SIZE]), filled by :func:`qmc.engine.equal_time.equal_time` (S^z units):
 
-- ET_MZ2                   (sum_i S^z_i)^2
-- ET_SQN                   S(Q + dq) averaged over directions (per site)
+- ET_MZ2                   (sum_i S^z_i)^2 (only with the plain estimators; not written with the loop ones)
+- ET_SQN                   S(Q + dq) averaged over directions (per site; likewise)
 - ET_DX, ET_DY             columnar dimer order parameters D_x, D_y
 
 ``acc`` (float64[acc_size(G)]), summed over the measured steps of a bin by :func:`qmc.engine.steps.run_steps`

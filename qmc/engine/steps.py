@@ -113,7 +113,7 @@ def run_steps(n_steps, measure, stop_when_full, improved, chain, terms, kind, ve
                 w = sweep_out[SW_WINDING + d]
                 acc[A_W2 + d] += w * w
             kind_measure(kind, chain, tallies)
-            equal_time(kind, spins, probes, tallies)
+            equal_time(kind, spins, probes, tallies, not improved)  # improved: M_z^2, S(Q+dq) from the loops
             if improved:
                 loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vert, n_loops)
             else:
