@@ -1,14 +1,52 @@
-"""Walker's alias table: draw index t with probability w_t / sum(w) from one uniform number.
+"""Tables for drawing a term t with probability w_t / sum(w) from one uniform number
+(the draw itself: :func:`qmc.engine.term_draw.draw_term`).
 
-Draw: r = u * T, t = floor(r); keep t if r - t < prob[t], else take alias[t].  Built with Vose's
-stable variant (common practice, no source).
+- :func:`group_draw_tables`: when every term group has one weight and its terms are contiguous, the
+  distribution is piecewise uniform: the cumulative weight where each group starts, the inverse of its
+  term weight, its first and last term.  Used whenever it applies (at most :data:`MAX_DRAW_GROUPS`
+  groups).
+- :func:`alias_table`: Walker's alias table for any weights.  Draw: r = u * T, t = floor(r); keep t if
+  r - t < prob[t], else take alias[t].  Built with Vose's stable variant (common practice, no source).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["alias_table"]
+__all__ = ["alias_table", "group_draw_tables", "MAX_DRAW_GROUPS"]
+
+MAX_DRAW_GROUPS = 4
+"""Above this many groups the alias table is used (the group draw compares u with four group edges)."""
+
+
+def group_draw_tables(term_group: np.ndarray, weights: np.ndarray
+                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(edge float64[4], inv_w float64[4], first int32[4], last int32[4]) for the draw by group, or four
+    empty arrays when it does not apply: a group whose terms differ in weight (relative 1e-12) or are not
+    contiguous, a group of weight zero, or more than :data:`MAX_DRAW_GROUPS` groups.  edge[g] is the sum of
+    the weights of the terms before group g (+inf for the missing groups g >= G), inv_w[g] = 1 / w_g,
+    first/last the group's term range."""
+    group = np.asarray(term_group, dtype=np.int64)
+    w = np.asarray(weights, dtype=np.float64)
+    empty = (np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int32), np.zeros(0, dtype=np.int32))
+    if group.size == 0 or group.size != w.size:
+        return empty
+    starts = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
+    if starts.size > MAX_DRAW_GROUPS or np.unique(group).size != starts.size:
+        return empty  # too many groups, or a group split into several runs
+    ends = np.r_[starts[1:], group.size]
+    edge, inv_w = [], []
+    total = 0.0
+    for a, b in zip(starts, ends, strict=True):
+        wg = w[a]
+        if not wg > 0 or np.any(np.abs(w[a:b] - wg) > 1e-12 * wg):
+            return empty
+        edge.append(total)
+        inv_w.append(1.0 / wg)
+        total += wg * (b - a)
+    pad = MAX_DRAW_GROUPS - len(edge)
+    return (np.array(edge + [np.inf] * pad), np.array(inv_w + [1.0] * pad),
+            np.r_[starts, [0] * pad].astype(np.int32), np.r_[ends - 1, [0] * pad].astype(np.int32))
 
 
 def alias_table(weights: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

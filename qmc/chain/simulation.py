@@ -32,7 +32,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from qmc.chain.alias import alias_table
+from qmc.chain.alias import alias_table, group_draw_tables
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
 from qmc.chain.profiles import profile_size
@@ -169,8 +169,11 @@ class Simulation:
         self.term_group = np.ascontiguousarray(model.term_group, dtype=np.int32)
         table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
                            model.group_kind)
-        self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, beta=self.beta,
-                           beta_wtot=self.beta * float(np.sum(weights)))
+        edge, inv_w, first, last = group_draw_tables(self.term_group, weights)
+        wtot = float(np.sum(weights))
+        self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge,
+                           group_inv_w=inv_w, group_first=first, group_last=last, beta=self.beta, wtot=wtot,
+                           beta_wtot=self.beta * wtot)
         self.kind = kind_record(model)
         self.estimators = estimators
         self.improved = uses_loop_estimators(estimators, self.kind)

@@ -6,7 +6,7 @@ SSE with a fixed-length string of M slots and n operators samples
 
 for H = E_const - sum_t C_t prod_a P_{i_a j_a} (see :mod:`models.compiled`).  At an empty slot an operator
 is proposed with probability min(1, beta W_tot / (M - n)), the term being drawn with probability
-w_t / W_tot (w_t = C_t / 2^{k_t}, alias table), and accepted as its vertex kind says
+w_t / W_tot (w_t = C_t / 2^{k_t}; :mod:`qmc.engine.term_draw`), and accepted as its vertex kind says
 (:func:`qmc.engine.kinds.insertion_allowed`; singlet projectors: when all its bonds are antiparallel); a
 fully diagonal operator is removed with probability min(1, (M - n + 1) / (beta W_tot)).  Off-diagonal
 operators stay and propagate the state (hook ``hop``).
@@ -24,10 +24,11 @@ One pass over the string does three things per slot:
 
 Implementation notes (measured, see benchmarks/c_compare.py): the sweep is bound by data-dependent branches,
 so the loop flips are applied without a branch (``op ^= vflip << a``), an off-diagonal operator propagates
-through all its bonds with the off-diagonal bit as a factor (hook ``hop_masked``), the alias draw selects
-between its two loaded candidates, and the insertion test ORs the bond checks instead of leaving early;
-the bond count is masked with ``& 3`` (k <= 3 is implied by the 3-bit off-diagonal mask), which stops LLVM
-from vectorising the one-to-three-bond loops behind run-time checks.
+through all its bonds with the off-diagonal bit as a factor (hook ``hop_masked``), the term draw reads
+only per-group constants when the groups are uniform (:mod:`qmc.engine.term_draw`), and the insertion
+test ORs the bond checks instead of leaving early; the bond count is masked with ``& 3`` (k <= 3 is
+implied by the 3-bit off-diagonal mask), which stops LLVM from vectorising the one-to-three-bond loops
+behind run-time checks.
 A term's bond count, group, sites and bonds come from one row of :func:`qmc.engine.vertices.term_table`
 rather than the chain term -> bond list -> bond -> sites.  The records' arrays are copied into locals once
 per sweep, so that the hot loop indexes plain arrays.
@@ -48,6 +49,7 @@ from qmc.engine.slots import (
     SW_SUM_MS4,
     SW_WINDING,
 )
+from qmc.engine.term_draw import draw_term
 from qmc.engine.vertices import (
     EMPTY,
     OP_OFF_MASK,
@@ -71,6 +73,8 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
     ops, spins, rng, above = chain.ops, chain.spins, chain.rng, chain.above
     links, vflip, first, last = vertices.links, vertices.vflip, vertices.first, vertices.last
     table, alias_prob, alias_idx, beta_wtot = terms.table, terms.alias_prob, terms.alias_idx, terms.beta_wtot
+    edge, inv_w, g_first, g_last, wtot = (terms.group_edge, terms.group_inv_w, terms.group_first,
+                                          terms.group_last, terms.wtot)
     bond_disp, phase = probes.bond_disp, probes.phase
     group_counts, out = tallies.group_counts, tallies.sweep_out
     M = ops.shape[0]
@@ -147,12 +151,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             if u * (M - n) >= beta_wtot:
                 continue
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-            r = u * n_terms
-            t = int(r)
-            # alias draw without a branch: both loads always, then a select (the test is a coin flip
-            # for terms whose weight is below the mean, e.g. the J terms of J-Q2)
-            alt = alias_idx[U(t)]
-            t = alt if r - t >= alias_prob[U(t)] else t
+            t = draw_term(u, n_terms, alias_prob, alias_idx, edge, inv_w, g_first, g_last, wtot)
             k = meta_bonds(table[U(t), TT_META])
             allowed, s0, s1, s2, s3 = insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3)
             if not allowed:

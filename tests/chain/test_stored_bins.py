@@ -5,16 +5,19 @@ three-chain exchange ladder along Q) are run with the plain estimators and every
 stored file.  A change that alters the Markov chain (random numbers, operator order, estimator
 arithmetic, cutoff) fails here; one that only moves code or renames things does not.
 
-Two files, one chain change between them, each checked:
+Two files, two chain changes between them, each checked:
 
-* ``bins_cutoff_four_thirds.npz``, today's chain: written at the commit that made the cutoff grow to
-  n + n/3 + 16 instead of n + n/2 + 16 (:func:`qmc.chain.simulation.grown_cutoff`; a shorter string, the
-  sweep's cost per step, issue 11).  That rule changes the insertion probabilities' denominators, hence
-  the random path of every chain (not its distribution).
+* ``bins_short_string_group_draw.npz``, today's chain, written when two changes made the step cheaper
+  (issue 11): the cutoff grows to n + n/3 + 16 instead of n + n/2 + 16
+  (:func:`qmc.chain.simulation.grown_cutoff`; it changes the insertion probabilities' denominators), and
+  the inserted term is drawn by group where the groups are uniform
+  (:func:`qmc.chain.alias.group_draw_tables`; the same uniform number selects another term than the
+  alias table did).  Both change the random path of every chain, not its distribution.
 * ``bins_before_house.npz``, made with commit ff097ea before the house reshaping (names of that commit:
   ``RENAMED`` maps observables to today's names and :func:`_current_task` the task ids, copy suffix
-  ``_r0`` then, ``_c0`` now).  :func:`test_bins_match_before_house` runs with the former cutoff rule put
-  back and must still reproduce it bit for bit: so the cutoff rule is the only change of the chain since.
+  ``_r0`` then, ``_c0`` now).  :func:`test_bins_match_before_house` runs with the former cutoff rule and
+  the alias draw put back and must still reproduce it bit for bit: so these two are the only changes of
+  the chain since.
 
 With the default loop estimators (:func:`test_loop_estimators_keep_the_chain`) the six observables they
 replace differ, and every other column must still be bit-identical: the loop estimators change no random
@@ -32,7 +35,7 @@ from helpers.stored_bins import RUNS, STORED, read_bins, run_stored
 import qmc.chain.simulation as simulation
 
 RENAMED = {"s_q_next": "s_q_shifted", "bond_energy": "term_energy"}
-TODAY = "bins_cutoff_four_thirds.npz"
+TODAY = "bins_short_string_group_draw.npz"
 BEFORE_HOUSE = "bins_before_house.npz"
 
 
@@ -67,6 +70,11 @@ def _former_cutoff(n: int) -> int:
     return n + n // 2 + 16
 
 
+def _alias_only(term_group: np.ndarray, weights: np.ndarray) -> tuple[np.ndarray, ...]:
+    """No draw by group: the alias table for every model, as up to commit 46a0760."""
+    return np.zeros(0), np.zeros(0), np.zeros(0, np.int32), np.zeros(0, np.int32)
+
+
 @pytest.mark.parametrize("run", RUNS)
 def test_bins_match_stored(run: str, tmp_path: Path) -> None:
     got = read_bins(run, run_stored(run, tmp_path, "plain"))
@@ -75,15 +83,16 @@ def test_bins_match_stored(run: str, tmp_path: Path) -> None:
 
 @pytest.mark.parametrize("run", RUNS)
 def test_bins_match_before_house(run: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    """With the former cutoff rule the bins of commit ff097ea come back bit for bit; with today's rule they
-    differ (so the rule is what changed, and this test notices it)."""
+    """With the former cutoff rule and the alias draw the bins of commit ff097ea come back bit for bit; with
+    today's they differ (so those are what changed, and this test notices it)."""
     stored = {_today_key(k): v for k, v in _stored(BEFORE_HOUSE, run).items()}
     with monkeypatch.context() as m:
         m.setattr(simulation, "grown_cutoff", _former_cutoff)
+        m.setattr(simulation, "group_draw_tables", _alias_only)
         got = read_bins(run, run_stored(run, tmp_path, "plain"))
     _compare(stored, got, set())
     today = _stored(TODAY, run)
-    assert any(not np.array_equal(today[k], v) for k, v in stored.items()), "the cutoff rule changed nothing"
+    assert any(not np.array_equal(today[k], v) for k, v in stored.items()), "the changes changed nothing"
 
 
 @pytest.mark.parametrize("run", ["heisenberg", "jq3"])
