@@ -169,11 +169,10 @@ class Simulation:
         self.term_group = np.ascontiguousarray(model.term_group, dtype=np.int32)
         table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
                            model.group_kind)
-        edge, inv_w, first, last = group_draw_tables(self.term_group, weights)
-        wtot = float(np.sum(weights))
+        edge, scale, first, last = group_draw_tables(self.term_group, weights)
         self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge,
-                           group_inv_w=inv_w, group_first=first, group_last=last, beta=self.beta, wtot=wtot,
-                           beta_wtot=self.beta * wtot)
+                           group_scale=scale, group_first=first, group_last=last, beta=self.beta,
+                           beta_wtot=self.beta * float(np.sum(weights)))
         self.kind = kind_record(model)
         self.estimators = estimators
         self.improved = uses_loop_estimators(estimators, self.kind)

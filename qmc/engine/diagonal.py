@@ -73,8 +73,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
     ops, spins, rng, above = chain.ops, chain.spins, chain.rng, chain.above
     links, vflip, first, last = vertices.links, vertices.vflip, vertices.first, vertices.last
     table, alias_prob, alias_idx, beta_wtot = terms.table, terms.alias_prob, terms.alias_idx, terms.beta_wtot
-    edge, inv_w, g_first, g_last, wtot = (terms.group_edge, terms.group_inv_w, terms.group_first,
-                                          terms.group_last, terms.wtot)
+    edge, scale, g_first, g_last = terms.group_edge, terms.group_scale, terms.group_first, terms.group_last
     bond_disp, phase = probes.bond_disp, probes.phase
     group_counts, out = tallies.group_counts, tallies.sweep_out
     M = ops.shape[0]
@@ -151,7 +150,7 @@ def diagonal_sweep(chain, terms, kind, vertices, probes, tallies):
             if u * (M - n) >= beta_wtot:
                 continue
             u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
-            t = draw_term(u, n_terms, alias_prob, alias_idx, edge, inv_w, g_first, g_last, wtot)
+            t = draw_term(u, n_terms, alias_prob, alias_idx, edge, scale, g_first, g_last)
             k = meta_bonds(table[U(t), TT_META])
             allowed, s0, s1, s2, s3 = insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3)
             if not allowed:

@@ -17,9 +17,9 @@ wrong array is refused where the record is made, not silently used.
                 vertex kind records per vertex; empty for kinds that record nothing)
 ``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
                 ``alias_prob`` float64[T], ``alias_idx`` int32[T], and for the draw by group (else empty)
-                ``group_edge``/``group_inv_w`` float64[G], ``group_first``/``group_last`` int32[G]
-                (:mod:`qmc.chain.alias`, :mod:`qmc.engine.term_draw`), ``beta``, ``wtot`` = sum_t w_t,
-                ``beta_wtot`` = beta wtot
+                ``group_edge``/``group_scale`` float64[4], ``group_first``/``group_last`` int32[4]
+                (:mod:`qmc.chain.alias`, :mod:`qmc.engine.term_draw`), ``beta``, ``beta_wtot`` =
+                beta sum_t w_t
 ``Probes``      what the estimators need: ``phase`` int8[N] (staggered sign), ``bond_disp`` float64[nb, D],
                 ``cos_tab``/``sin_tab`` float64[D, N], ``vbs_bonds`` int32[nv, 2], ``vbs_dir``/``vbs_phase``
                 int8[nv], ``hist_range``; for profiles along x (else empty) ``site_column`` int32[N]
@@ -69,11 +69,10 @@ class Terms(NamedTuple):
     alias_prob: np.ndarray
     alias_idx: np.ndarray
     group_edge: np.ndarray
-    group_inv_w: np.ndarray
+    group_scale: np.ndarray
     group_first: np.ndarray
     group_last: np.ndarray
     beta: float
-    wtot: float
     beta_wtot: float
 
 
@@ -108,8 +107,8 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
     Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1),
                "state": (_I32, 1)},
     Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "group_edge": (_F64, 1),
-            "group_inv_w": (_F64, 1), "group_first": (_I32, 1), "group_last": (_I32, 1), "beta": (float, 0),
-            "wtot": (float, 0), "beta_wtot": (float, 0)},
+            "group_scale": (_F64, 1), "group_first": (_I32, 1), "group_last": (_I32, 1), "beta": (float, 0),
+            "beta_wtot": (float, 0)},
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0),
              "site_column": (_I32, 1)},

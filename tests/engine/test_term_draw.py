@@ -18,10 +18,10 @@ K = 200_000
 
 
 @njit(cache=False)
-def _counts(n_terms, prob, alias, edge, inv_w, first, last, wtot, k_grid):
+def _counts(n_terms, prob, alias, edge, scale, first, last, k_grid):
     out = np.zeros(n_terms, dtype=np.int64)
     for k in range(k_grid):
-        out[draw_term((k + 0.5) / k_grid, n_terms, prob, alias, edge, inv_w, first, last, wtot)] += 1
+        out[draw_term((k + 0.5) / k_grid, n_terms, prob, alias, edge, scale, first, last)] += 1
     return out
 
 
@@ -30,7 +30,7 @@ def _draw_counts(groups: np.ndarray, weights: np.ndarray, by_group: bool) -> np.
     tables = group_draw_tables(groups, weights)
     if not by_group:
         tables = (np.zeros(0), np.zeros(0), np.zeros(0, np.int32), np.zeros(0, np.int32))
-    return _counts(weights.size, prob, alias, *tables, float(np.sum(weights)), K)
+    return _counts(weights.size, prob, alias, *tables, K)
 
 
 CASES = {  # name: (group of each term, weight of each term)
@@ -45,7 +45,8 @@ CASES = {  # name: (group of each term, weight of each term)
 @pytest.mark.parametrize("by_group", [True, False], ids=["by-group", "alias"])
 def test_draws_follow_the_weights(case: str, by_group: bool) -> None:
     groups, weights = CASES[case]
-    assert group_draw_tables(groups, weights)[0].size == MAX_DRAW_GROUPS  # the draw by group applies
+    size = group_draw_tables(groups, weights)[0].size  # the draw by group applies, except to one group
+    assert size == (0 if np.unique(groups).size == 1 else MAX_DRAW_GROUPS)
     counts = _draw_counts(groups, weights, by_group)
     want = K * weights / weights.sum()
     assert counts.sum() == K
@@ -53,20 +54,23 @@ def test_draws_follow_the_weights(case: str, by_group: bool) -> None:
 
 
 def test_the_group_draw_is_refused_where_it_does_not_apply() -> None:
-    """Unequal weights in a group, a group in two runs, five groups, a zero weight: the alias table."""
+    """Unequal weights in a group, a group in two runs, five groups, a zero weight, one group: the alias
+    table."""
     cases = [
         (np.zeros(4, int), np.array([1.0, 1.0, 2.0, 1.0])),
         (np.array([0, 1, 0]), np.ones(3)),
         (np.arange(5), np.ones(5)),
         (np.array([0, 1]), np.array([1.0, 0.0])),
+        (np.zeros(3, int), np.ones(3)),
     ]
     for groups, weights in cases:
         assert all(a.size == 0 for a in group_draw_tables(groups, weights)), (groups, weights)
 
 
 def test_group_tables() -> None:
-    """Edges are the cumulative group weights (missing groups at +inf), first/last the term ranges."""
-    edge, inv_w, first, last = group_draw_tables(np.repeat([0, 1], [2, 3]), np.repeat([0.5, 2.0], [2, 3]))
-    np.testing.assert_allclose(edge, [0.0, 1.0, np.inf, np.inf])
-    np.testing.assert_allclose(inv_w[:2], [2.0, 0.5])
+    """Edges are the cumulative group probabilities (missing groups at +inf), scale = W_tot / w_g,
+    first/last the term ranges."""
+    edge, scale, first, last = group_draw_tables(np.repeat([0, 1], [2, 3]), np.repeat([0.5, 2.0], [2, 3]))
+    np.testing.assert_allclose(edge, [0.0, 1.0 / 7.0, np.inf, np.inf])
+    np.testing.assert_allclose(scale[:2], [14.0, 3.5])
     assert first[:2].tolist() == [0, 2] and last[:2].tolist() == [1, 4]
