@@ -44,12 +44,12 @@
  * Random numbers: xoshiro256** (Blackman and Vigna), doubles = top 53 bits * 2^-53; seeded by splitmix64.
  *
  * Differences from the numba engine (deliberate; each makes the C side cheaper, not dearer): the term is
- * chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no table)
- * instead of by an alias table over all terms; k <= 2 is a compile-time bound; winding numbers are integer
- * sums; loop flips are one byte per leg pair written by the loops (no clearing) instead of one byte per
+ * chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no table;
+ * the engine's draw by group, qmc/engine/term_draw.py, does the same with up to four group edges read
+ * from small arrays); k <= 2 is a compile-time bound; winding numbers are integer sums; loop flips are one byte per leg pair written by the loops (no clearing) instead of one byte per
  * vertex toggled by them; seeding uses splitmix64 rather than numpy's SeedSequence.  Cutoff: starts at
  * 1.2 beta W_tot + 16 and, during warm-up, grows to n + n/3 + 16 whenever fewer than n/3 slots are empty
- * (M about 4n/3; the engine uses n + n/2 + 16).
+ * (M about 4n/3; the engine uses the same rule).
  * Output: one JSON object.  CPU time (CLOCK_PROCESS_CPUTIME_ID) of the measured steps only.
  */
 #define _DEFAULT_SOURCE
