@@ -70,7 +70,8 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
-from qmc.engine.projector import bonds_blocked, mark_loop
+from qmc.engine.interleaved import mark_loop
+from qmc.engine.projector import bonds_blocked
 from qmc.engine.rng import next_double
 from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 

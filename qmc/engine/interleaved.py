@@ -59,7 +59,7 @@ from numba.extending import intrinsic
 from qmc.engine.rng import next_double
 
 __all__ = ["interleaved_loop_update", "use_interleaved", "INTERLEAVE_FROM_VERTICES", "TRACERS", "ALONE",
-           "WINDOW", "PAD", "MIN_IDS", "prefetch"]
+           "WINDOW", "PAD", "MIN_IDS", "prefetch", "mark_loop"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 INTERLEAVE_FROM_VERTICES = 1 << 16
@@ -99,6 +99,20 @@ def use_interleaved(n_vertices, links_length, from_vertices):
     """Whether the interleaved path runs: more than ``from_vertices`` vertices and room for the padding and
     at least :data:`MIN_IDS` fragment ids after the legs."""
     return n_vertices > from_vertices and links_length >= 4 * n_vertices + PAD + MIN_IDS
+
+
+@njit(inline="always")
+def mark_loop(links, l0, mark):
+    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set the even leg of
+    every pair of legs it visits to ``mark`` (< 0: visited; the odd legs keep their links).  Used by the
+    projector and colour kinds and by :func:`interleaved_loop_update` for loops left whole."""
+    leg = l0
+    while True:
+        nxt = links[U(leg ^ 1)]
+        links[U(leg & ~1)] = mark
+        leg = nxt
+        if leg == l0:
+            break
 
 
 @njit(cache=True, boundscheck=False)
@@ -280,14 +294,7 @@ def interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, n_trace
         if labelled:
             value += 2 * n_loops
         n_loops += 1
-        mark = -3 - n_frag - value
-        leg = l0
-        while True:
-            nxt = links[U(leg ^ 1)]
-            links[U(leg & ~1)] = mark
-            leg = nxt
-            if leg == l0:
-                break
+        mark_loop(links, l0, -3 - n_frag - value)
     # each pair's value from its mark (id -> its loop's value; below the ids -> the value in the mark); the
     # even leg of each pair ends marked -1 - value, vflip[v] = flip below xor flip above
     for v in range(n_vertices):

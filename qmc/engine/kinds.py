@@ -156,23 +156,27 @@ def _implementation(kind: Any, hook: str) -> Any:
 
 
 def insertion_allowed(kind, table, t, k, spins, s0, s1, s2, s3):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "insertion_allowed")(kind, table, t, k, spins, s0, s1, s2, s3)
 
 
 def loop_update(kind, chain, vertices, n_vertices):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "loop_update")(kind, chain, vertices, n_vertices)
 
 
 def vertex_added(kind, vertices, v, t, a, op, si, sj):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "vertex_added")(kind, vertices, v, t, a, op, si, sj)
 
 
 def measure(kind, chain, tallies):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "measure")(kind, chain, tallies)
 
 
 @overload(insertion_allowed, inline="always")
@@ -186,28 +190,33 @@ def _loop_update(kind, chain, vertices, n_vertices):
 
 
 def apply_changes(kind, op, p, t, k, table, spins, above, vflip, v):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "apply_changes")(kind, op, p, t, k, table, spins, above, vflip, v)
 
 
 def hop(kind, spins, phase, above, p, a, i, j):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "hop")(kind, spins, phase, above, p, a, i, j)
 
 
 def hop_masked(kind, spins, phase, above, p, a, i, j, f):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "hop_masked")(kind, spins, phase, above, p, a, i, j, f)
 
 
 def site_value(kind, spins, i):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "site_value")(kind, spins, i)
 
 
 def bond_value(kind, spins, i, j):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "bond_value")(kind, spins, i, j)
 
 
 @overload(apply_changes, inline="always")
@@ -246,13 +255,15 @@ def _measure(kind, chain, tallies):
 
 
 def loop_label(kind, mark):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "loop_label")(kind, mark)
 
 
 def loop_moments(kind):
-    """Hook (see module docstring); only callable inside numba kernels."""
-    raise NotImplementedError("a vertex-kind hook runs only inside numba kernels")
+    """Hook (see module docstring): in a kernel the kind's own function, inlined; from Python, the same
+    function called through numba."""
+    return _module_attribute(kind, "loop_moments")(kind)
 
 
 @overload(loop_label, inline="always")

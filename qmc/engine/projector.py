@@ -45,7 +45,7 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
            "insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value",
-           "bond_value", "vertex_added", "measure", "bonds_blocked", "mark_loop", "loop_label",
+           "bond_value", "vertex_added", "measure", "bonds_blocked", "loop_label",
            "loop_moments", "LOOP_ESTIMATORS", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
@@ -86,20 +86,6 @@ def bonds_blocked(table, t, k, spins, blocked_if_equal):
         col = TT_BOND + TT_BOND_WIDTH * a
         blocked |= (spins[U(table[U(t), col])] == spins[U(table[U(t), col + 1])]) == blocked_if_equal
     return blocked
-
-
-@njit(inline="always")
-def mark_loop(links, l0, mark):
-    """Walk the loop through leg l0 (enter at l, leave at l ^ 1, follow the link) and set the even leg of
-    every pair of legs it visits to ``mark`` (< 0: visited; the odd legs keep their links).  Shared with
-    the colour kind."""
-    leg = l0
-    while True:
-        nxt = links[U(leg ^ 1)]
-        links[U(leg & ~1)] = mark
-        leg = nxt
-        if leg == l0:
-            break
 
 
 def initial_spins(kind: ProjectorKind, u: np.ndarray) -> np.ndarray:

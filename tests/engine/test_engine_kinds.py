@@ -21,7 +21,14 @@ import textwrap
 
 import numpy as np
 import pytest
-from qmc.models import CompiledModel, HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
+from qmc.models import (
+    CompiledModel,
+    HeisenbergTerm,
+    ProjectorProductTerm,
+    ProjectorTerm,
+    build_lattice,
+    compile_model,
+)
 from qmc.models.compiled import KIND_PROJECTOR, VERTEX_KINDS
 
 from qmc.engine.kinds import kind_record
@@ -127,3 +134,21 @@ def test_stored_models_without_kinds_read_as_projector_and_unknown_codes_are_ref
     arrays["group_kind"] = np.array([len(VERTEX_KINDS)], dtype=np.int8)
     with pytest.raises(ValueError, match="group_kind"):
         CompiledModel.from_arrays(arrays)
+
+
+def test_hooks_called_from_python_run_the_kind_s_own_function():
+    """Outside a kernel a hook is the kind's function called through numba: the S = 1/2 values of
+    qmc.engine.projector (2 S^z, 4 S^z S^z, the spin loop moments 1/4 and 1/16 and the label in a mark
+    ~(2 b + f)), and the colour kind's at N = 3 (common practice, no source: a dispatch check)."""
+    from qmc.engine import kinds
+
+    spins = np.array([1, -1, 1], dtype=np.int8)
+    k = ProjectorKind()
+    assert kinds.site_value(k, spins, 1) == -1 and kinds.bond_value(k, spins, 0, 2) == 1
+    assert kinds.loop_moments(k) == (0.25, 0.0625)
+    assert kinds.loop_label(k, np.int32(~(2 * 7 + 1))) == 7
+    lattice = build_lattice("chain", (4,))
+    colour = kind_record(compile_model(lattice, [ProjectorTerm("nn", 1.0)], colours=3))
+    assert type(colour) is not ProjectorKind
+    assert kinds.loop_moments(colour) == pytest.approx((2 / 9, 2 * 3 / 81))
+    assert kinds.bond_value(colour, np.array([0, 0, 1, 2], dtype=np.int8), 0, 1) == pytest.approx(2 / 3 - 2)
