@@ -125,7 +125,8 @@ def loop_update(kind, chain, vertices, n_vertices):
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
     n_legs = 4 * n_vertices
     n_loops = 0
-    for l0 in range(0, n_legs, 2):
+    for q in range(n_legs >> 1):  # pairs q, even legs 2q (a range of q: the tighter scan, measured)
+        l0 = q + q
         if links[U(l0)] < 0:
             continue
         u, s0, s1, s2, s3 = next_double(s0, s1, s2, s3)
