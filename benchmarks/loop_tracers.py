@@ -13,7 +13,8 @@ the diagonal sweep and the loop update, called one at a time from Python (a few 
 call, included; no measurements). Per path the fastest round counts (CPU time, ``time.process_time``; the
 machine is shared). Prints one JSON object per case and L: CPU ns per slot per step (sweep + loop), loop ns
 per leg visit (4 legs per bond vertex), the links array in MB, the speed-up of the interleaved path, and
-``engine_path``: the one the engine's dispatch takes at this size.
+``engine_path``: what a chain of this size does (:mod:`qmc.chain.tracer_choice`: one tracer, interleaved,
+or timed by the chain).
 """
 
 from __future__ import annotations
@@ -26,15 +27,9 @@ import time
 from _cases import CASES, case_model, selected_cases
 
 from qmc.chain.simulation import Simulation
+from qmc.chain.tracer_choice import TRIAL_FROM, TRIAL_UP_TO
 from qmc.engine.diagonal import diagonal_sweep
-from qmc.engine.interleaved import (
-    ALONE,
-    INTERLEAVE_FROM_VERTICES,
-    TRACERS,
-    WINDOW,
-    interleaved_loop_update,
-    use_interleaved,
-)
+from qmc.engine.interleaved import ALONE, TRACERS, WINDOW, interleaved_loop_update
 from qmc.engine.projector import loop_update
 from qmc.engine.records import Vertices, build
 from qmc.engine.rng import stream_seed
@@ -91,9 +86,9 @@ def scaling_case(case: str, L: int, rounds: int, work: float, warmup_work: float
                      "loop_ns_per_leg": tl / (4 * nvs) * 1e9, "mean_vertices": nvs / n_steps}
     out["speedup_interleaved"] = out["single"]["cpu_ns_per_slot_per_step"] / out["interleaved"][
         "cpu_ns_per_slot_per_step"]
-    nv = out["single"]["mean_vertices"]
-    switched = use_interleaved(int(nv), sim.links.shape[0], INTERLEAVE_FROM_VERTICES)
-    out["engine_path"] = "interleaved" if switched else "single"
+    nv = out["single"]["mean_vertices"]  # what a chain does (qmc.chain.tracer_choice)
+    out["engine_path"] = ("single" if nv <= TRIAL_FROM else "interleaved" if nv > TRIAL_UP_TO
+                          else "timed by the chain")
     return out
 
 

@@ -46,8 +46,10 @@
  * Differences from the numba engine (deliberate; each makes the C side cheaper, not dearer): the term is
  * chosen by kind (J or Q, by weight) and then uniformly within the kind (one uniform number, no table;
  * the engine's draw by group, qmc/engine/term_draw.py, does the same with up to four group edges read
- * from small arrays); k <= 2 is a compile-time bound; winding numbers are integer sums; loop flips are one byte per leg pair written by the loops (no clearing) instead of one byte per
- * vertex toggled by them; seeding uses splitmix64 rather than numpy's SeedSequence.  Cutoff: starts at
+ * from small arrays); k <= 2 is a compile-time bound and the term-table row width a constant (8 int32);
+ * winding numbers are integer sums of two directions; seeding uses splitmix64 rather than numpy's
+ * SeedSequence.  Loop flips are kept as the engine keeps them (one byte per bond vertex, toggled by the
+ * loops, applied and cleared by the next sweep).  Cutoff: starts at
  * 1.2 beta W_tot + 16 and, during warm-up, grows to n + n/3 + 16 whenever fewer than n/3 slots are empty
  * (M about 4n/3; the engine uses the same rule).
  * Output: one JSON object.  CPU time (CLOCK_PROCESS_CPUTIME_ID) of the measured steps only: sweep, loop

@@ -36,6 +36,7 @@ from qmc.chain.alias import alias_table, group_draw_tables
 from qmc.chain.checkpoint import CHECKPOINT_LAYOUT, LAYOUT_KEY, current_layout
 from qmc.chain.observables import bin_names, bin_row
 from qmc.chain.profiles import profile_size
+from qmc.chain.tracer_choice import TracerChoice
 from qmc.config.schema import DEFAULT_ESTIMATORS, ESTIMATORS
 from qmc.engine.diagonal import fold_pending
 from qmc.engine.kinds import (
@@ -45,6 +46,7 @@ from qmc.engine.kinds import (
     loop_estimators_apply,
     max_loop_labels,
     slot_colours,
+    tracer_choice,
     vertex_state_length,
 )
 from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
@@ -195,6 +197,7 @@ class Simulation:
         self._hist_bins = HIST_BINS if model.n_vbs_dirs >= 2 else 0
         self.bin_names = bin_names(model)
         self._kernel = None
+        self._tracers = TracerChoice(tracer_choice(self.kind))
 
     def _above_length(self, cutoff: int) -> int:
         """Length of ``Chain.above``: the cutoff for kinds with per-slot colours, else 0."""
@@ -210,7 +213,8 @@ class Simulation:
         self.vertices = build(Vertices, links=np.zeros(4 * n_slots, dtype=np.int32),
                               vflip=np.zeros(n_slots, dtype=np.uint8),
                               first=np.zeros(n_sites, dtype=np.int32), last=np.zeros(n_sites, dtype=np.int32),
-                              state=np.zeros(vertex_state_length(self.kind, n_slots), dtype=np.int32))
+                              state=np.zeros(vertex_state_length(self.kind, n_slots), dtype=np.int32),
+                              interleave_above=np.array([self._tracers.setting], dtype=np.int64))
         self.tallies = build(Tallies, acc=self.acc, hist=self.hist,
                              group_counts=np.zeros(len(self.model.group_names), dtype=np.int64),
                              sweep_out=np.zeros(SW_SIZE, dtype=np.float64),
@@ -309,7 +313,29 @@ class Simulation:
         records = (self.chain, self.terms, self.kind, self.vertices, self.probes, self.tallies)
         if self._kernel is None:  # the records' types never change (records.build fixes them)
             self._kernel = bound_run_steps(*records)
-        return self._kernel(n_steps, measure, stop_when_full, self.improved, *records)
+
+        def call(k: int) -> int:
+            return self._kernel(k, measure, stop_when_full, self.improved, *records)
+
+        tracers = self._tracers  # the loop update's path, timed once the string has its length
+        if tracers.settled or self.steps_done < self.warmup_steps // 2:
+            return call(n_steps)
+        if tracers.settle_by_size(self._bond_vertices()):
+            self.vertices.interleave_above[0] = tracers.setting
+            return call(n_steps)
+        return tracers.run(call, n_steps, self.vertices.interleave_above)
+
+    def fix_loop_tracing(self, setting: int) -> None:
+        """Fix the loop update's path instead of timing it: :data:`qmc.chain.tracer_choice.SINGLE`,
+        :data:`~qmc.chain.tracer_choice.INTERLEAVED`, or a bond-vertex count above which it interleaves
+        (speed only: the chain is the same)."""
+        self._tracers.fix(setting)
+        self.vertices.interleave_above[0] = setting
+
+    def _bond_vertices(self) -> int:
+        """Bond vertices of the current operator string."""
+        terms = self.ops[self.ops >= 0] >> OP_TERM_SHIFT
+        return int(np.sum(np.diff(self.model.term_start)[terms]))
 
     def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
         """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).

@@ -77,11 +77,13 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 
 __all__ = ["ColourKind", "record", "initial_spins", "SLOT_COLOURS", "insertion_allowed", "loop_update",
            "hop_masked", "apply_changes", "hop", "site_value", "bond_value", "loop_label", "loop_moments",
-           "colour_moments", "LOOP_ESTIMATORS", "max_loop_labels"]
+           "colour_moments", "LOOP_ESTIMATORS", "TRACER_CHOICE", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = True
 """The colour kind keeps the colours above off-diagonal bonds per slot (``Chain.above``, 8 bits a bond)."""
+TRACER_CHOICE = False
+"""The loop update has one path (``vertices.interleave_above`` is not read)."""
 LOOP_ESTIMATORS = True
 """Every loop takes one of the N colours uniformly and independently: the loop estimators apply."""
 

@@ -48,9 +48,11 @@ from qmc.models.compiled import KIND_DIRECTED, CompiledModel
 from qmc.models.directed import diagonal_weights
 
 __all__ = ["DirectedKind", "record", "insertion_allowed", "vertex_added", "loop_update", "measure",
-           "VERTEX_STATE", "LOOP_ESTIMATORS", "acc_slots", "X_MZ", "X_FIELD"]
+           "VERTEX_STATE", "LOOP_ESTIMATORS", "TRACER_CHOICE", "acc_slots", "X_MZ", "X_FIELD"]
 
 U = np.uint32
+TRACER_CHOICE = False
+"""The loop update has one path (``vertices.interleave_above`` is not read)."""
 LOOP_ESTIMATORS = False
 """Directed loops are not flipped independently of each other: only the plain estimators apply."""
 VERTEX_STATE = True

@@ -55,7 +55,8 @@ colour kind records nothing per vertex and has no estimators of its own).  Modul
 (the projector's where a module has none): ``VERTEX_STATE`` (the kind needs ``vertices.state``;
 :func:`vertex_state_length`), ``acc_slots`` (:func:`kind_acc_slots`), ``initial_spins``, ``SLOT_COLOURS`` and
 ``LOOP_ESTIMATORS`` (every loop is updated independently of the others, so the loop estimators apply;
-:func:`loop_estimators_apply`) and ``max_loop_labels`` (how many loops its marks can label,
+:func:`loop_estimators_apply`), ``TRACER_CHOICE`` (the loop update reads ``vertices.interleave_above``:
+:func:`tracer_choice`) and ``max_loop_labels`` (how many loops its marks can label,
 :func:`max_loop_labels`).
 
 :func:`kind_record` picks the record for a model from the kinds of its groups: the first kind registered
@@ -79,7 +80,7 @@ from qmc.models.compiled import KIND_COLOUR, KIND_DIRECTED, KIND_PROJECTOR, VERT
 __all__ = ["HOOKS", "insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value",
            "bond_value", "vertex_added", "measure", "loop_label", "loop_moments", "kind_record",
            "register_kind", "initial_spins", "slot_colours", "vertex_state_length", "kind_acc_slots",
-           "loop_estimators_apply", "max_loop_labels"]
+           "loop_estimators_apply", "max_loop_labels", "tracer_choice"]
 
 HOOKS = ("insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value", "bond_value",
          "vertex_added", "measure", "loop_label", "loop_moments")
@@ -143,6 +144,11 @@ def max_loop_labels(kind: Any) -> int:
 def loop_estimators_apply(kind: Any) -> bool:
     """Whether the kind's loop update treats every loop independently (the loop estimators apply)."""
     return bool(_module_attribute(kind, "LOOP_ESTIMATORS"))
+
+
+def tracer_choice(kind: Any) -> bool:
+    """Whether the kind's loop update has a single-tracer and an interleaved path to choose from."""
+    return bool(_module_attribute(kind, "TRACER_CHOICE"))
 
 
 def _implementation(kind: Any, hook: str) -> Any:

@@ -34,7 +34,6 @@ from numba import njit
 
 from qmc.engine.interleaved import (
     ALONE,
-    INTERLEAVE_FROM_VERTICES,
     TRACERS,
     WINDOW,
     interleaved_loop_update,
@@ -46,7 +45,7 @@ from qmc.engine.vertices import TT_BOND, TT_BOND_WIDTH
 __all__ = ["ProjectorKind", "record", "initial_spins", "SLOT_COLOURS", "VERTEX_STATE", "acc_slots",
            "insertion_allowed", "loop_update", "apply_changes", "hop", "hop_masked", "site_value",
            "bond_value", "vertex_added", "measure", "bonds_blocked", "loop_label",
-           "loop_moments", "LOOP_ESTIMATORS", "max_loop_labels"]
+           "loop_moments", "LOOP_ESTIMATORS", "TRACER_CHOICE", "max_loop_labels"]
 
 U = np.uint32  # unsigned indices: no negative-index wrap-around code in the hot loop
 SLOT_COLOURS = False
@@ -55,6 +54,8 @@ VERTEX_STATE = False
 """Projector loops need no per-vertex state (``vertices.state`` is empty)."""
 LOOP_ESTIMATORS = True
 """Every loop is flipped independently with probability 1/2: the loop estimators apply."""
+TRACER_CHOICE = True
+"""The loop update has two paths, one tracer or several interleaved (``vertices.interleave_above``)."""
 
 
 def max_loop_labels(kind: object) -> int:
@@ -112,14 +113,16 @@ def measure(kind, chain, tallies):
 @njit(cache=True, boundscheck=False)
 def loop_update(kind, chain, vertices, n_vertices):
     """Build all loops of the linked vertex list, flip each with probability 1/2; returns the loop count.
-    Vertex lists larger than the caches go to :func:`qmc.engine.interleaved.interleaved_loop_update` (the
-    same loops, flips and random numbers, several tracers at once)."""
+    Vertex lists of more than ``vertices.interleave_above[0]`` bond vertices go to
+    :func:`qmc.engine.interleaved.interleaved_loop_update` (the same loops, flips and random numbers,
+    several tracers at once; which path is faster depends on the size, the loops and the machine:
+    :mod:`qmc.chain.tracer_choice`)."""
     spins = chain.spins
     rng = chain.rng
     links = vertices.links
     vflip = vertices.vflip
     first = vertices.first
-    if use_interleaved(n_vertices, links.shape[0], INTERLEAVE_FROM_VERTICES):
+    if use_interleaved(n_vertices, links.shape[0], vertices.interleave_above[0]):
         return interleaved_loop_update(links, vflip, first, spins, rng, n_vertices, TRACERS, ALONE, WINDOW, 0,
                                        True)  # loop labels in the marks, as below (the loop estimators)
     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]

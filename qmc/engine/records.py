@@ -14,7 +14,10 @@ wrong array is refused where the record is made, not silently used.
 ``Vertices``    the linked vertex list rebuilt by every sweep: ``links`` int32[4 M k_max], ``vflip``
                 uint8[M k_max] (loop flips not yet applied to ``ops``), ``first``/``last`` int32[N]
                 (first and last leg of each site's world line), ``state`` int32[M k_max or 0] (what the
-                vertex kind records per vertex; empty for kinds that record nothing)
+                vertex kind records per vertex; empty for kinds that record nothing),
+                ``interleave_above`` int64[1] (the projector kind's loop update traces several loops at
+                once when the list has more bond vertices than this; speed only, the chain is the same:
+                :mod:`qmc.chain.tracer_choice`)
 ``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
                 ``alias_prob`` float64[T], ``alias_idx`` int32[T], and for the draw by group (else empty)
                 ``group_edge``/``group_scale`` float64[4], ``group_first``/``group_last`` int32[4]
@@ -62,6 +65,7 @@ class Vertices(NamedTuple):
     first: np.ndarray
     last: np.ndarray
     state: np.ndarray
+    interleave_above: np.ndarray
 
 
 class Terms(NamedTuple):
@@ -105,7 +109,7 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
     Chain: {"spins": (_I8, 1), "ops": (_I32, 1), "counters": (_I64, 1), "rng": (_U64, 1),
             "above": (_I32, 1)},
     Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1),
-               "state": (_I32, 1)},
+               "state": (_I32, 1), "interleave_above": (_I64, 1)},
     Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "group_edge": (_F64, 1),
             "group_scale": (_F64, 1), "group_first": (_I32, 1), "group_last": (_I32, 1), "beta": (float, 0),
             "beta_wtot": (float, 0)},

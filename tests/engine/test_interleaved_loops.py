@@ -15,6 +15,7 @@ import pytest
 from qmc.models import HeisenbergTerm, ProjectorProductTerm, build_lattice, compile_model
 
 from qmc.chain.simulation import Simulation
+from qmc.chain.tracer_choice import INTERLEAVED
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.interleaved import INTERLEAVE_FROM_VERTICES, interleaved_loop_update
 from qmc.engine.projector import loop_update
@@ -141,10 +142,11 @@ def test_labelled_marks(q: bool, variant: tuple[int, int, int, int]) -> None:
 
 @pytest.mark.parametrize("q", [False, True], ids=["heisenberg", "jq2"])
 def test_dispatch_above_switch_equals_single(q: bool) -> None:
-    """A list above the switch (more than INTERLEAVE_FROM_VERTICES vertices) runs the interleaved path inside
-    the engine's own steps (run_steps) and still follows the single tracer's chain."""
+    """With the interleaved path chosen (:mod:`qmc.chain.tracer_choice`) the engine's own steps (run_steps)
+    run it and still follow the single tracer's chain."""
     L = 40 if q else 48
     sim = _warm(L, q, 32.0, 60)
+    sim.fix_loop_tracing(INTERLEAVED)
     cb, vb = _copy(sim.chain, Chain), _copy(sim.vertices, Vertices)
     switched = 0
     for step in range(4):
