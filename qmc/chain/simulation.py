@@ -22,6 +22,9 @@ longer string costs sweep time and changes nothing else (empty slots carry no ve
 46a0760 the string grew to n + n/2 + 16 (the same distribution, another random path; chains warmed up by
 that code keep their longer string; tests/chain/test_stored_bins.py checks both rules).
 
+The projector kind's loop update has two paths that give the same chain bit for bit, one tracer or 32
+interleaved; which one runs is timed on the chain's own steps (:mod:`qmc.chain.tracer_choice`).
+
 ``counters`` (int64[COUNTERS]): n, the operators in the string; directed loops per step; 1 once that number
 is frozen (measurement started); unused.
 """
@@ -317,13 +320,19 @@ class Simulation:
         def call(k: int) -> int:
             return self._kernel(k, measure, stop_when_full, self.improved, *records)
 
-        tracers = self._tracers  # the loop update's path, timed once the string has its length
-        if tracers.settled or self.steps_done < self.warmup_steps // 2:
+        tracers = self._tracers  # the loop update's path, timed half-way through the warm-up
+        if tracers.settled:
             return call(n_steps)
+        done = 0
+        before = self.warmup_steps // 2 - self.steps_done
+        if before > 0:
+            done = call(min(n_steps, before))
+            if done < min(n_steps, before) or done == n_steps:  # stopped early (cutoff), or all done
+                return done
         if tracers.settle_by_size(self._bond_vertices()):
             self.vertices.interleave_above[0] = tracers.setting
-            return call(n_steps)
-        return tracers.run(call, n_steps, self.vertices.interleave_above)
+            return done + call(n_steps - done)
+        return done + tracers.run(call, n_steps - done, self.vertices.interleave_above)
 
     def fix_loop_tracing(self, setting: int) -> None:
         """Fix the loop update's path instead of timing it: :data:`qmc.chain.tracer_choice.SINGLE`,

@@ -99,3 +99,14 @@ def test_same_chain_whatever_the_path(monkeypatch: pytest.MonkeyPatch) -> None:
         rows, other = _bins(setting, monkeypatch)
         assert np.array_equal(rows, timed), setting
         assert np.array_equal(other.ops, sim.ops) and np.array_equal(other.spins, sim.spins)
+
+
+def test_timed_half_way_through_one_long_warm_up(monkeypatch: pytest.MonkeyPatch) -> None:
+    """A warm-up run in one call still stops half-way to time both paths, so measuring starts settled."""
+    monkeypatch.setattr(tracer_choice, "TRIAL_FROM", 0)
+    model = compile_model(build_lattice("square", (16, 16)), [HeisenbergTerm(bonds="nn", coupling=1.0)])
+    sim = Simulation(model, 8.0, warmup_steps=200, measure_steps=10, bins=1,
+                     seed_words=stream_seed(6, "tracer-choice-warm-up"))
+    sim.advance(200)
+    assert sim.steps_done == 200 and sim._tracers.settled
+    assert all(len(t) == TRIAL_ROUNDS for t in sim._tracers.per_step.values())
