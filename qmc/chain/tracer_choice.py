@@ -6,7 +6,7 @@ give the same Markov chain bit for bit (tests/engine/test_interleaved_loops.py),
 speed alone, and the faster one depends on the vertex list against the caches, on the loops and on the
 machine.  Measured on the 2-core development machine (CPU time per step with all measurements, 32x32 at
 beta = 32 and neighbours, see CHANGELOG): the long loops of the square-lattice antiferromagnet gain from
-interleaving from about 16 000 bond vertices on (7-10% at L = 24 and 32 with the loop estimators), the
+interleaving from about 16 000 bond vertices on (3-10% less time per step at L = 24 and 32), the
 many short loops of the J-Q2 model near its transition lose 10-15% below about 100 000 and gain above
 200 000.  A fixed size threshold is therefore wrong for some model on every machine.  The rule:
 
