@@ -6,10 +6,11 @@ Every file this program writes says what it is in a ``format`` attribute (task f
 * task file: ``format = "seriesloop/task"``;
 * run index: ``format = "seriesloop/run-index"``.
 
-Releases before the project took its name wrote the same layout (version 1) under the format names in
-:data:`OLD_NAMES` (the only place they are spelled); such files are read as they are, and a file that
-is rewritten gets the new name.  Reading one is said once per process (:func:`note_old_format`, a warning
-on the ``qmc.storage`` logger), not once per file.
+Releases before the project took its name wrote the same layout (version 1) under a hyphenated format
+name, ``<former name>-task`` and ``<former name>-run-index`` (:data:`OLD_SUFFIXES`; current names have a
+slash); such files are read as they are, and a file that is rewritten gets the new name.  Reading one is
+said once per process (:func:`note_old_format`, a warning on the ``qmc.storage`` logger), not once per
+file.
 """
 
 from __future__ import annotations
@@ -17,7 +18,7 @@ from __future__ import annotations
 import logging
 
 __all__ = [
-    "TASK_FORMAT", "TASK_VERSION", "INDEX_FORMAT", "INDEX_VERSION", "OLD_NAMES", "known_format",
+    "TASK_FORMAT", "TASK_VERSION", "INDEX_FORMAT", "INDEX_VERSION", "OLD_SUFFIXES", "known_format",
     "note_old_format", "old_format_noted", "quiet_old_format_notes", "short_reason",
 ]
 
@@ -25,8 +26,9 @@ TASK_FORMAT = "seriesloop/task"
 TASK_VERSION = 1
 INDEX_FORMAT = "seriesloop/run-index"
 INDEX_VERSION = 1
-OLD_NAMES = {TASK_FORMAT: ("dsqmc-task",), INDEX_FORMAT: ("dsqmc-run-index",)}
-"""For each current format name, the earlier names of the same layout (still read)."""
+OLD_SUFFIXES = {TASK_FORMAT: "-task", INDEX_FORMAT: "-run-index"}
+"""For each current format name, how the names of the same layout written before the rename end: a single
+word followed by this suffix (still read)."""
 
 _LOG = logging.getLogger("qmc.storage")
 _noted: set[str] = set()  # current format names for which an old file has been reported in this process
@@ -40,7 +42,9 @@ def known_format(found: object, expected: str) -> str | None:
         found = found.decode("utf-8", "replace")
     if found == expected:
         return "current"
-    if found in OLD_NAMES.get(expected, ()):
+    suffix = OLD_SUFFIXES.get(expected)
+    if (isinstance(found, str) and suffix is not None and found.endswith(suffix)
+            and found[:-len(suffix)].isalnum()):
         return "old"
     return None
 

@@ -1,7 +1,7 @@
 """Task files: one HDF5 file per task with its bins, its checkpoint and where it came from.
 
 Layout (``format = "seriesloop/task"``, ``format_version = 1``; files written under the project's earlier
-name have the same layout and are read too, see :data:`qmc.storage.formats.OLD_NAMES`)::
+name have the same layout and are read too, see :data:`qmc.storage.formats.OLD_SUFFIXES`)::
 
     /                 attrs format, format_version, task_id, status, message, task_fingerprint, updated
     /config           attrs toml (full text of the configuration), path, fingerprint

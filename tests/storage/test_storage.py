@@ -29,8 +29,8 @@ from qmc.storage.task_file import (
     write_task,
 )
 
-(OLD_TASK,) = formats.OLD_NAMES[TASK_FORMAT]  # the format names of releases before the rename
-(OLD_INDEX,) = formats.OLD_NAMES[INDEX_FORMAT]
+OLD_TASK = "formerly" + formats.OLD_SUFFIXES[TASK_FORMAT]  # format names as releases before the rename wrote
+OLD_INDEX = "formerly" + formats.OLD_SUFFIXES[INDEX_FORMAT]  # them: one word, then the suffix
 
 
 def test_round_trip(tmp_path):
