@@ -167,6 +167,7 @@ class Simulation:
         self.n_bins = int(bins)
         self.steps_per_bin = self.measure_steps // self.n_bins
         k = np.diff(model.term_start).astype(np.int64)
+        self._term_bonds = k
         weights = model.term_weights
         alias_prob, alias_idx = alias_table(weights)
         self.kmax = int(np.max(k))
@@ -320,19 +321,9 @@ class Simulation:
         def call(k: int) -> int:
             return self._kernel(k, measure, stop_when_full, self.improved, *records)
 
-        tracers = self._tracers  # the loop update's path, timed half-way through the warm-up
-        if tracers.settled:
-            return call(n_steps)
-        done = 0
-        before = self.warmup_steps // 2 - self.steps_done
-        if before > 0:
-            done = call(min(n_steps, before))
-            if done < min(n_steps, before) or done == n_steps:  # stopped early (cutoff), or all done
-                return done
-        if tracers.settle_by_size(self._bond_vertices()):
-            self.vertices.interleave_above[0] = tracers.setting
-            return done + call(n_steps - done)
-        return done + tracers.run(call, n_steps - done, self.vertices.interleave_above)
+        # the loop update's path, timed half-way through the warm-up
+        return self._tracers.run(call, n_steps, self.vertices.interleave_above,
+                                 due_in=self.warmup_steps // 2 - self.steps_done, count=self._bond_vertices)
 
     def fix_loop_tracing(self, setting: int) -> None:
         """Fix the loop update's path instead of timing it: :data:`qmc.chain.tracer_choice.SINGLE`,
@@ -343,8 +334,7 @@ class Simulation:
 
     def _bond_vertices(self) -> int:
         """Bond vertices of the current operator string."""
-        terms = self.ops[self.ops >= 0] >> OP_TERM_SHIFT
-        return int(np.sum(np.diff(self.model.term_start)[terms]))
+        return int(np.sum(self._term_bonds[self.ops[self.ops >= 0] >> OP_TERM_SHIFT]))
 
     def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
         """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).

@@ -65,11 +65,23 @@ class TracerChoice:
             self._settle(INTERLEAVED)
         return self.settled
 
-    def run(self, call: Callable[[int], int], n_steps: int, setting: np.ndarray) -> int:
-        """Run ``n_steps`` steps by ``call(k) -> steps done`` (which may stop early), timing blocks of each
-        path until the choice is made; ``setting`` is the chain's ``interleave_above`` array.  Returns the
-        steps done."""
+    def run(self, call: Callable[[int], int], n_steps: int, setting: np.ndarray, due_in: int = 0,
+            count: Callable[[], int] | None = None) -> int:
+        """Run ``n_steps`` steps by ``call(k) -> steps done`` (which may stop early; then so does this),
+        timing blocks of each path until the choice is made; ``setting`` is the chain's ``interleave_above``
+        array.  The choice is due after ``due_in`` more steps; ``count()`` gives the bond vertices then (the
+        size rule; without it every size is timed).  Returns the steps done."""
+        if self.settled:
+            return call(n_steps)
         done = 0
+        if due_in > 0:
+            want = min(n_steps, due_in)
+            done = call(want)
+            if done < want or done == n_steps:
+                return done
+        if count is not None and self.settle_by_size(count()):
+            setting[0] = self.setting
+            return done + call(n_steps - done)
         while done < n_steps and not self.settled:
             path = self._next_path()
             setting[0] = path
@@ -83,9 +95,7 @@ class TracerChoice:
             if self._complete():
                 best = {p: min(t) for p, t in self.per_step.items()}
                 self._settle(min(best, key=lambda p: (best[p], p != SINGLE)))  # a tie keeps one tracer
-            else:
-                self.setting = INTERLEAVE_FROM_VERTICES
-            setting[0] = self.setting
+            setting[0] = self.setting  # the choice, or the size rule until it is made
             if got < want:  # the kernel stopped early (the cutoff must grow first)
                 return done
         if done < n_steps:
