@@ -2,6 +2,7 @@
 
 Usage:  python benchmarks/c_compare.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
                                        [--warmup 300] [--repeats 3] [--seed 1] [--cc cc] [--c-variant best]
+                                       [--estimators improved|plain]
         python benchmarks/c_compare.py --scaling 16,32,64,128 [--case ...] [--variants 1,16:0,32:4]
                                        [--rounds 3] [--work 2e7]
 
@@ -22,11 +23,14 @@ all its measurements, as in benchmarks/throughput.py) and prints one JSON object
 - the energy per site of both, each the mean over the repeats with its error bar (bin errors combined
   over the independent chains), their difference in combined error bars, and ``energies_agree``:
   |difference| < 5 error bars or < 2e-3 relative (independent Markov chains; a loose check that the two
-  programs sample the same distribution, not a precision test).
+  programs sample the same distribution, not a precision test); the same for the staggered moment
+  ``m_stag2`` = <(M_s/N)^2> and the staggered susceptibility ``chi_stag`` (``m_stag2_diff_sigmas``,
+  ``m_stag2_agree``, ``chi_stag_*``), which the two programs estimate with the estimators chosen below.
 
-``--estimators`` chooses the engine's estimators: ``improved`` (default, what ``qmc run`` does by default:
-the loop estimators, one more pass over the string per measured step, which the C program does not
-make) or ``plain`` (the same measurements as the C program).
+``--estimators`` chooses the measurements of both programs (``estimators``): ``improved`` (default, what
+``qmc run`` does by default: the loop estimators of m_stag2, m_stag4, chi_stag, chi_uniform and
+S(Q + dq), one more pass over the string per measured step; the C program's ``improved`` mode does the
+same work) or ``plain`` (the sweep's time averages and the slice-0 sums, both programs).
 
 ``--c-variant`` is the C program's loop variant (``K`` or ``K:E``, see ``--scaling``; ``0``: chosen by size,
 as the C program does by itself).  The default ``best`` runs the single tracer and the interleaved one on the
@@ -84,19 +88,21 @@ def compile_reference(cc: str, workdir: str) -> str:
 
 
 def run_c(exe: str, L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int,
-          variants: str = "0", rounds: int = 1) -> dict:
+          variants: str = "0", rounds: int = 1, estimators: str = "plain") -> dict:
     """One run of the C program (its JSON output as a dict).
 
     ``variants`` is the program's list of loop variants (``K`` or ``K:E``: K tracers, E eager pairs; ``0``
     chooses by size; ``best``: one tracer and :data:`C_INTERLEAVED`); every round runs ``steps`` steps of
-    each variant in turn on the same chain.  The timings of the first variant (with ``best``: of the
-    faster) are also copied to the top level of the dict."""
+    each variant in turn on the same chain; ``estimators`` is ``plain`` or ``improved`` (the loop
+    estimators).  The timings of the first variant (with ``best``: of the faster) are also copied to the
+    top level of the dict, and the staggered moment to ``m_stag2``."""
     best = variants == "best"
     if best:
         variants = f"1,{C_INTERLEAVED}"
     out = subprocess.run([exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(steps), str(seed),
-                          variants, str(rounds)], check=True, capture_output=True, text=True)
+                          variants, str(rounds), estimators], check=True, capture_output=True, text=True)
     res = json.loads(out.stdout)
+    res["m_stag2"] = res["m_stag2_time_avg"]
     chosen = min(res["variants"], key=lambda v: v["cpu_ms_per_step"]) if best else res["variants"][0]
     res.update({k: v for k, v in chosen.items() if k != "auto"})
     res["cpu_us_per_step"] = 1e3 * res["cpu_ms_per_step"]
@@ -133,13 +139,15 @@ def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, 
     c0 = time.process_time()
     rows = sim.advance(steps)
     cpu = time.process_time() - c0
-    energy = rows[:, sim.bin_names.index("energy")]
     n_ops = rows[:, sim.bin_names.index("n_ops")]
-    err = float(np.std(energy, ddof=1) / np.sqrt(len(energy))) if len(energy) > 1 else 0.0
+    estimates = {}
+    for name, key in (("energy", "energy_per_site"), ("m_stag2", "m_stag2"), ("chi_stag", "chi_stag")):
+        x = rows[:, sim.bin_names.index(name)]
+        estimates[key] = float(np.mean(x))
+        estimates[f"{key}_err"] = float(np.std(x, ddof=1) / np.sqrt(len(x))) if len(x) > 1 else 0.0
     t_sweep, t_loop, n_vert_sum = _kernel_split(sim, split_steps)
     return {
-        "cutoff": sim.cutoff, "mean_n": float(np.mean(n_ops)),
-        "energy_per_site": float(np.mean(energy)), "energy_per_site_err": err,
+        "cutoff": sim.cutoff, "mean_n": float(np.mean(n_ops)), **estimates,
         "cpu_ns_per_slot_per_step": cpu / steps / sim.cutoff * 1e9,
         "cpu_ns_per_op_per_step": cpu / steps / max(float(np.mean(n_ops)), 1.0) * 1e9,
         "sweep_cpu_ns_per_slot": t_sweep / split_steps / sim.cutoff * 1e9,
@@ -149,10 +157,14 @@ def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, 
     }
 
 
-def _combine(runs: list[dict]) -> tuple[float, float]:
-    """Mean energy over independent runs and its error bar."""
-    e = np.array([r["energy_per_site"] for r in runs])
-    s = np.array([r["energy_per_site_err"] for r in runs])
+COMPARED = ("energy_per_site", "m_stag2", "chi_stag")
+"""Estimates compared between the two programs (mean over the repeats, combined error bars)."""
+
+
+def _combine(runs: list[dict], key: str = "energy_per_site") -> tuple[float, float]:
+    """Mean of estimate ``key`` over independent runs and its error bar."""
+    e = np.array([r[key] for r in runs])
+    s = np.array([r[f"{key}_err"] for r in runs])
     return float(np.mean(e)), float(np.sqrt(np.sum(s**2)) / len(runs))
 
 
@@ -167,9 +179,10 @@ def _summary(runs: list[dict], prefix: str) -> dict:
             out[f"{prefix}_spread_max_over_min"] = max(vals) / min(vals)
     out[f"{prefix}_cutoff"] = runs[0]["cutoff"]
     out[f"{prefix}_mean_n"] = float(np.mean([r["mean_n"] for r in runs]))
-    e, err = _combine(runs)
-    out[f"{prefix}_energy_per_site"] = e
-    out[f"{prefix}_energy_per_site_err"] = err
+    for key in COMPARED:
+        e, err = _combine(runs, key)
+        out[f"{prefix}_{key}"] = e
+        out[f"{prefix}_{key}_err"] = err
     return out
 
 
@@ -180,10 +193,11 @@ def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: i
     split_steps = max(10, steps // 4)
     c_runs, nb_runs = [], []
     for r in range(repeats):  # interleaved, so that a burst of load on the machine hits both
-        c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r, c_variant))
+        c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r, c_variant, estimators=estimators))
         nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps, estimators))
     out = {"case": case, "L": L, "beta": beta, "J": J, "Q": Q, "warmup": warmup, "steps": steps,
-           "repeats": repeats, "numba_estimators": estimators}
+           "repeats": repeats, "estimators": estimators, "numba_estimators": estimators,
+           "c_estimators": c_runs[0]["estimators"]}
     out.update(_summary(c_runs, "c"))
     out["c_loop_variant"] = {"tracers": c_runs[0]["tracers"], "eager": c_runs[0]["eager"]}
     out["c_measure_cpu_us_per_step"] = min(r["measure_cpu_us_per_step"] for r in c_runs)
@@ -193,11 +207,13 @@ def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: i
     out["ratio_numba_over_c_per_op"] = out["numba_cpu_ns_per_op_per_step"] / out["c_cpu_ns_per_op_per_step"]
     out["ratio_sweep"] = out["numba_sweep_cpu_ns_per_slot"] / out["c_sweep_cpu_ns_per_slot"]
     out["ratio_loop"] = out["numba_loop_cpu_ns_per_slot"] / out["c_loop_cpu_ns_per_slot"]
-    diff = out["numba_energy_per_site"] - out["c_energy_per_site"]
-    sigma = float(np.hypot(out["numba_energy_per_site_err"], out["c_energy_per_site_err"]))
-    out["energy_diff"] = diff
-    out["energy_diff_sigmas"] = diff / sigma if sigma > 0 else float("inf")
-    out["energies_agree"] = bool(abs(diff) < 5.0 * sigma or abs(diff) < 2e-3 * abs(out["c_energy_per_site"]))
+    for key in COMPARED:
+        name, flag = ("energy", "energies_agree") if key == "energy_per_site" else (key, f"{key}_agree")
+        diff = out[f"numba_{key}"] - out[f"c_{key}"]
+        sigma = float(np.hypot(out[f"numba_{key}_err"], out[f"c_{key}_err"]))
+        out[f"{name}_diff"] = diff
+        out[f"{name}_diff_sigmas"] = diff / sigma if sigma > 0 else float("inf")
+        out[flag] = bool(abs(diff) < 5.0 * sigma or abs(diff) < 2e-3 * abs(out[f"c_{key}"]))
     return out
 
 
@@ -233,8 +249,8 @@ def main() -> None:
                    help="loop variant of the C program (K or K:E; 0 = by size; best = the faster of one "
                         "tracer and interleaved tracers)")
     p.add_argument("--estimators", default="improved", choices=["improved", "plain"],
-                   help="the engine's estimators (improved: the loop estimators, qmc run's default; "
-                        "plain: the same measurements as the C program)")
+                   help="the estimators of both programs (improved: the loop estimators, qmc run's "
+                        "default; plain: the sweep's time averages and slice-0 sums)")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="C program only: compare loop variants at these L (beta = L)")
     p.add_argument("--variants", default="1,8:0,16:0,32:0,16:4,32:4",

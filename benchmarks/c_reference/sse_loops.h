@@ -15,7 +15,10 @@
  * number of flipped loops pass through (its two pairs lie on one or two loops), which the next diagonal
  * sweep applies to the operator string (and clears), and flip the spins of the sites: a site with
  * operators takes the flip of the loop through its first leg, a free site is flipped with probability
- * 1/2.  links is consumed: the even leg of every pair is overwritten by a negative mark.
+ * 1/2.  links is consumed: the even leg of every pair is overwritten by a negative mark, -1 - f (f = 1 if
+ * its loop flipped) or, labelled, ~(2 b + f) with b the loop's number in the single tracer's order (the
+ * order in which loops draw their flips), which the loop estimators of sse_ref.c read; loops_single
+ * always labels, loops_interleaved when asked.
  *
  * Interleaved construction (no assumption on how loops run through a vertex beyond the fixed pairing, so
  * it does not rely on the lattice being bipartite):
@@ -69,7 +72,9 @@
         }                                                                                                  \
     } while (0)
 
-/* Single tracer.  Returns the number of loops. */
+/* Single tracer.  Returns the number of loops.  The b-th loop built (b = 0, 1, ...) marks its pairs
+   -1 - (2 b + f) = ~(2 b + f), f = 1 if it flipped: the labels the loop estimators read (sse_ref.c).
+   Always labelled: against the plain marks -1 - f this measured no difference (32x32 canonical cases). */
 static int loops_single(int32_t *restrict links, uint8_t *restrict vflip, int n_vertices,
                         int8_t *restrict spins, const int32_t *restrict first, int n_sites, uint64_t *rng)
 {
@@ -78,9 +83,9 @@ static int loops_single(int32_t *restrict links, uint8_t *restrict vflip, int n_
     int n_loops = 0;
     for (int l0 = 0; l0 < n_legs; l0 += 2) {
         if (links[l0] < 0) continue;
-        n_loops++;
         const int f = next_double(r) < 0.5;
-        const int mark = -1 - f;
+        const int mark = -1 - 2 * n_loops - f;
+        n_loops++;
         int leg = l0;
         do {
             const int nxt = links[leg ^ 1];
@@ -89,7 +94,7 @@ static int loops_single(int32_t *restrict links, uint8_t *restrict vflip, int n_
             leg = nxt;
         } while (leg != l0);
     }
-    FLIP_SITES(links[f & ~1] == -2);
+    FLIP_SITES((~links[f & ~1]) & 1);
     memcpy(rng, r, sizeof r);
     return n_loops;
 }
@@ -189,10 +194,12 @@ static inline int serve(weave_t *restrict h, tracer_t *restrict tr, int mk)
 
 /* K interleaved tracers (1 <= K <= MAX_TRACERS), E steps alone within `window` legs of the scan; links
    holds links_len int32, and at most max_ids fragment ids are used (0: as many as its tail holds).
-   Returns the number of loops. */
+   Returns the number of loops.  With `labelled` the even leg of every pair ends marked ~(2 b + f) as
+   loops_single leaves it (b the loop's number in the single tracer's order), else -1 - f: the flag only
+   chooses between two versions of the passes after the tracing (see there). */
 static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *restrict vflip, int n_vertices,
                              int8_t *restrict spins, const int32_t *restrict first, int n_sites, int K, int E,
-                             int window, int max_ids, uint64_t *rng, long *fragments)
+                             int window, int max_ids, int labelled, uint64_t *rng, long *fragments)
 {
     const int n_legs = 4 * n_vertices;
     long cap = links_len - n_legs - 16; /* room for ids after the padding */
@@ -225,14 +232,16 @@ static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *r
         }
     }
 
-    /* one flip per loop (root), in increasing id order; children read their root's flip */
+    /* one flip per loop (root), in increasing id order; children read their root's value: the flip f, or
+       with `labelled` 2 b + f (b = loops so far, the single tracer's number of the loop) */
     int32_t *restrict uf = h.uf;
     uint64_t r[4] = {rng[0], rng[1], rng[2], rng[3]};
     int n_loops = 0;
+    const int step = labelled ? 2 : 0;
     for (int f = 0; f < h.n_frag; f++) {
         const int p = uf[f];
         if (p == f) {
-            uf[f] = next_double(r) < 0.5;
+            uf[f] = step * n_loops + (next_double(r) < 0.5);
             n_loops++;
         } else {
             uf[f] = uf[p];
@@ -240,11 +249,13 @@ static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *r
     }
     /* If the ids ran out, every loop touched so far is complete (each fragment's ends border marked pairs)
        and the unmarked pairs left, all beyond the scan, form whole loops: one tracer finishes them in scan
-       order, so they too draw their flips in the single tracer's order. */
+       order, so they too draw their flips in the single tracer's order.  Marks: -1 - f (plain), or
+       -3 - n_frag - value (labelled; below every id mark, value = 2 b + f). */
+    const int finish = labelled ? -3 - h.n_frag : -1;
     for (int l0 = h.scan; l0 < n_legs; l0 += 2) {
         if (links[l0] < 0) continue;
+        const int mark = finish - step * n_loops - (next_double(r) < 0.5);
         n_loops++;
-        const int mark = -1 - (next_double(r) < 0.5);
         int leg = l0;
         do {
             const int nxt = links[leg ^ 1];
@@ -252,10 +263,26 @@ static int loops_interleaved(int32_t *restrict links, long links_len, uint8_t *r
             leg = nxt;
         } while (leg != l0);
     }
+    if (!labelled) {
 #define PAIR_FLIP(m) ((m) <= -3 ? uf[ID_MARK(m)] : -1 - (m))
-    for (int v = 0; v < n_vertices; v++) vflip[v] = (uint8_t)(PAIR_FLIP(links[4 * v]) ^ PAIR_FLIP(links[4 * v + 2]));
-    FLIP_SITES(PAIR_FLIP(links[f & ~1]));
+        for (int v = 0; v < n_vertices; v++)
+            vflip[v] = (uint8_t)(PAIR_FLIP(links[4 * v]) ^ PAIR_FLIP(links[4 * v + 2]));
+        FLIP_SITES(PAIR_FLIP(links[f & ~1]));
 #undef PAIR_FLIP
+    } else {
+        /* each pair's value from its mark (an id -> its loop's value; below the ids -> the value in the
+           mark); the even legs end marked -1 - value, vflip[v] = flip below xor flip above */
+        const int n_frag = h.n_frag;
+#define PAIR_VALUE(m) (ID_MARK(m) < n_frag ? uf[ID_MARK(m)] : ID_MARK(m) - n_frag)
+        for (int v = 0; v < n_vertices; v++) {
+            const int va = PAIR_VALUE(links[4 * v]), vb = PAIR_VALUE(links[4 * v + 2]);
+            links[4 * v] = -1 - va;
+            links[4 * v + 2] = -1 - vb;
+            vflip[v] = (uint8_t)((va ^ vb) & 1);
+        }
+#undef PAIR_VALUE
+        FLIP_SITES((~links[f & ~1]) & 1);
+    }
     memcpy(rng, r, sizeof r);
     *fragments += h.n_frag;
     return n_loops;
