@@ -176,8 +176,9 @@ class Simulation:
         table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
                            model.group_kind)
         edge, scale, first, last = group_draw_tables(self.term_group, weights)
-        self.terms = build(Terms, table=table, alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge,
-                           group_scale=scale, group_first=first, group_last=last, beta=self.beta,
+        self.terms = build(Terms, table=table, bond_count=np.diff(self.term_start).astype(np.uint8),
+                           alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge, group_scale=scale,
+                           group_first=first, group_last=last, beta=self.beta,
                            beta_wtot=self.beta * float(np.sum(weights)))
         self.kind = kind_record(model)
         self.estimators = estimators

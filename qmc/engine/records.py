@@ -19,6 +19,7 @@ wrong array is refused where the record is made, not silently used.
                 once when the list has more bond vertices than this; speed only, the chain is the same:
                 :mod:`qmc.chain.tracer_choice`)
 ``Terms``       the diagonal update's view of the model: ``table`` int32[T, w] (:func:`term_table`),
+                ``bond_count`` uint8[T] (k_t, for passes that need only the bond counts),
                 ``alias_prob`` float64[T], ``alias_idx`` int32[T], and for the draw by group (else empty)
                 ``group_edge``/``group_scale`` float64[4], ``group_first``/``group_last`` int32[4]
                 (:mod:`qmc.chain.alias`, :mod:`qmc.engine.term_draw`), ``beta``, ``beta_wtot`` =
@@ -70,6 +71,7 @@ class Vertices(NamedTuple):
 
 class Terms(NamedTuple):
     table: np.ndarray
+    bond_count: np.ndarray
     alias_prob: np.ndarray
     alias_idx: np.ndarray
     group_edge: np.ndarray
@@ -110,7 +112,8 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
             "above": (_I32, 1)},
     Vertices: {"links": (_I32, 1), "vflip": (_U8, 1), "first": (_I32, 1), "last": (_I32, 1),
                "state": (_I32, 1), "interleave_above": (_I64, 1)},
-    Terms: {"table": (_I32, 2), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1), "group_edge": (_F64, 1),
+    Terms: {"table": (_I32, 2), "bond_count": (_U8, 1), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1),
+            "group_edge": (_F64, 1),
             "group_scale": (_F64, 1), "group_first": (_I32, 1), "group_last": (_I32, 1), "beta": (float, 0),
             "beta_wtot": (float, 0)},
     Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
