@@ -79,10 +79,10 @@ C_INTERLEAVED = f"{TRACERS}:{ALONE}:{WINDOW * 4 // 1024}"
 """The C program's interleaved variant with the engine's parameters (tracers : steps alone : window KiB)."""
 
 
-def compile_reference(cc: str, workdir: str) -> str:
-    """Path of the compiled reference program (``cc -O3 -march=native``); raises CalledProcessError."""
+def compile_reference(cc: str, workdir: str, march: str = "native") -> str:
+    """Path of the compiled reference program (``cc -O3 -march=<march>``); raises CalledProcessError."""
     exe = os.path.join(workdir, "sse_ref")
-    subprocess.run([cc, "-O3", "-march=native", "-std=c99", "-o", exe, SOURCE, "-lm"],
+    subprocess.run([cc, "-O3", f"-march={march}", "-std=c99", "-o", exe, SOURCE, "-lm"],
                    check=True, capture_output=True, text=True)
     return exe
 

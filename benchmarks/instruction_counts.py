@@ -34,6 +34,7 @@ issue slots are shared); this script shows where the two programs differ in work
 from __future__ import annotations
 
 import argparse
+import ctypes
 import glob
 import json
 import os
@@ -43,12 +44,17 @@ import subprocess
 import sys
 import tempfile
 
-from _cases import CASES, add_case_arguments, selected_cases
+from _cases import CASES, add_case_arguments, case_model, selected_cases
+from c_compare import compile_reference
+
+from qmc.chain.simulation import Simulation
+from qmc.chain.tracer_choice import SINGLE
+from qmc.engine.diagonal import diagonal_sweep
+from qmc.engine.projector import loop_update
+from qmc.engine.rng import stream_seed
 
 __all__ = ["count_c", "count_engine", "main"]
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-SOURCE = os.path.join(HERE, "c_reference", "sse_ref.c")
 HEADER = "/usr/include/valgrind/callgrind.h"
 CONTROL = """#include <valgrind/callgrind.h>
 void counting_zero(void) { CALLGRIND_ZERO_STATS; }
@@ -114,17 +120,6 @@ def count_c(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, w
 def _engine_child(case: str, L: int, beta: float, warmup: int, steps: int, control: str) -> None:
     """Inside valgrind (or once outside, to compile): warm a chain up, then count ``steps`` sweeps and,
     from the same state, ``steps`` loop updates (collection on only around those calls)."""
-    import ctypes
-
-    import numpy as np
-    from _cases import case_model
-
-    from qmc.chain.simulation import Simulation
-    from qmc.chain.tracer_choice import SINGLE
-    from qmc.engine.diagonal import diagonal_sweep
-    from qmc.engine.projector import loop_update
-    from qmc.engine.rng import stream_seed
-
     lib = ctypes.CDLL(control) if control else None
     sim = Simulation(case_model(L, *CASES[case]), beta, warmup_steps=warmup, measure_steps=1, bins=1,
                      seed_words=stream_seed(3, f"counts-{case}"), estimators="plain")
@@ -135,26 +130,25 @@ def _engine_child(case: str, L: int, beta: float, warmup: int, steps: int, contr
     n, n_vert = diagonal_sweep(*records)  # load both kernels from the cache before counting
     sim.counters[0] = n
     loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
+    def nothing() -> None:
+        pass
+
     for part in ("sweep", "loop"):
         for a, saved in zip((*sim.chain, *sim.vertices), state, strict=True):
             a[...] = saved
-        if lib:
-            lib.counting_zero()
+        (lib.counting_zero if lib else nothing)()
+        around_sweep = lib.counting_toggle if lib and part == "sweep" else nothing
+        around_loop = lib.counting_toggle if lib and part == "loop" else nothing
         for _ in range(steps):
-            if lib and part == "sweep":
-                lib.counting_toggle()
+            around_sweep()
             n, n_vert = diagonal_sweep(*records)
-            if lib and part == "sweep":
-                lib.counting_toggle()
+            around_sweep()
             sim.counters[0] = n
-            if lib and part == "loop":
-                lib.counting_toggle()
+            around_loop()
             loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
-            if lib and part == "loop":
-                lib.counting_toggle()
-        if lib:
-            lib.counting_dump()
-    print(json.dumps({"cutoff": sim.cutoff, "n": int(np.int64(sim.counters[0]))}))
+            around_loop()
+        (lib.counting_dump if lib else nothing)()
+    print(json.dumps({"cutoff": sim.cutoff}))
 
 
 def count_engine(case: str, L: int, beta: float, warmup: int, steps: int, workdir: str, control: str) -> dict:
@@ -195,8 +189,7 @@ def main() -> None:
                           "missing": missing + ([] if os.path.exists(HEADER) else [HEADER])}))
         return
     with tempfile.TemporaryDirectory() as workdir:
-        exe = os.path.join(workdir, "sse_ref")
-        subprocess.run([a.cc, "-O3", "-march=haswell", "-std=c99", "-o", exe, SOURCE, "-lm"], check=True)
+        exe = compile_reference(a.cc, workdir, march="haswell")
         control = os.path.join(workdir, "libcounting.so")
         with open(os.path.join(workdir, "counting.c"), "w") as f:
             f.write(CONTROL)

@@ -167,7 +167,6 @@ class Simulation:
         self.n_bins = int(bins)
         self.steps_per_bin = self.measure_steps // self.n_bins
         k = np.diff(model.term_start).astype(np.int64)
-        self._term_bonds = k
         weights = model.term_weights
         alias_prob, alias_idx = alias_table(weights)
         self.kmax = int(np.max(k))
@@ -176,7 +175,7 @@ class Simulation:
         table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
                            model.group_kind)
         edge, scale, first, last = group_draw_tables(self.term_group, weights)
-        self.terms = build(Terms, table=table, bond_count=np.diff(self.term_start).astype(np.uint8),
+        self.terms = build(Terms, table=table, bond_count=k.astype(np.uint8),
                            alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge, group_scale=scale,
                            group_first=first, group_last=last, beta=self.beta,
                            beta_wtot=self.beta * float(np.sum(weights)))
@@ -335,7 +334,7 @@ class Simulation:
 
     def _bond_vertices(self) -> int:
         """Bond vertices of the current operator string."""
-        return int(np.sum(self._term_bonds[self.ops[self.ops >= 0] >> OP_TERM_SHIFT]))
+        return int(np.sum(self.terms.bond_count[self.ops[self.ops >= 0] >> OP_TERM_SHIFT], dtype=np.int64))
 
     def advance(self, max_steps: int, until: Callable[[np.ndarray], bool] | None = None) -> np.ndarray:
         """Run up to ``max_steps`` steps; returns the bins completed meanwhile, shape (k, len(bin_names)).
