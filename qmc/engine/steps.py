@@ -22,6 +22,15 @@ With ``improved`` (kinds whose loops are updated independently,
 :func:`qmc.engine.kinds.loop_estimators_apply`) A_MZ2, A_MS2, A_MS4, A_CHIS and A_SQN hold instead the
 loop estimators of the same quantities, averaged over the loop update's choices
 (:mod:`qmc.engine.loop_estimators`); the chain itself is the same.
+
+Which machine code runs (measured, see CHANGELOG): numba compiles a kernel that :func:`run_steps` calls
+twice over, once on its own and once more as a copy inside run_steps' module, optimised again with it;
+the two compilations of the diagonal sweep differ in register allocation, and the square-lattice step with
+the copy is 3-4% slower.  When everything is compiled in the process, the kernels' own compilations are
+loaded first and the copies are never called (the JIT linker keeps the first definition of a symbol); when
+run_steps comes from numba's cache, the kernels' own compilations are not loaded and the copies would run.
+:func:`bound_run_steps` therefore loads the sweep on its own first, so a cached start runs the code a fresh
+one does (the loop update's and the loop estimators' copies measured as fast as their own compilations).
 """
 
 from __future__ import annotations
@@ -138,7 +147,10 @@ def bound_run_steps(chain, terms, kind, vertices, probes, tallies) -> Callable[.
     """:func:`run_steps` compiled (or loaded from numba's cache) for the types of these records, callable
     with the same arguments without numba's per-call type dispatch (about 8 us per call for the six
     records, measured; 2-4 us remain).  Valid for any records of the same types: build them with
-    :func:`qmc.engine.records.build`, which fixes every field's dtype, dimensions and layout."""
-    flags = (typeof(0), typeof(True), typeof(True), typeof(True))
-    sig = (*flags, *(typeof(r) for r in (chain, terms, kind, vertices, probes, tallies)))
-    return run_steps.compile(sig)
+    :func:`qmc.engine.records.build`, which fixes every field's dtype, dimensions and layout.
+
+    The diagonal sweep is loaded first, on its own, so that the step driver calls that compilation of it
+    and not the copy inside its own cached machine code (see the module notes)."""
+    types = tuple(typeof(r) for r in (chain, terms, kind, vertices, probes, tallies))
+    diagonal_sweep.compile(types)
+    return run_steps.compile((typeof(0), typeof(True), typeof(True), typeof(True), *types))

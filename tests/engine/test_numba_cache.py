@@ -3,7 +3,8 @@ later process finds every kernel there and compiles nothing.
 
 ``NUMBA_CACHE_DIR`` points numba's on-disk cache at a directory; the README advises a shared one warmed by
 a tiny run before a big job.  The second process reports numba's own counters (``Dispatcher.stats``) of
-every kernel in ``qmc.engine``: no cache misses, and hits for the step kernel.
+every kernel in ``qmc.engine``: no cache misses, and hits for the step kernel and for the diagonal sweep
+(loaded on its own before the step kernel, :func:`qmc.engine.steps.bound_run_steps`).
 """
 
 from __future__ import annotations
@@ -51,3 +52,6 @@ def test_shared_cache_warmed_by_a_tiny_run(tmp_path: Path) -> None:
     second = _run(cache)
     assert second["hits"]["run_steps"] >= 1
     assert sum(second["misses"].values()) == 0, f"kernels compiled again: {second['misses']}"
+    # the step driver must call the sweep's own compilation, as a process that compiled everything does,
+    # not the copy inside its cached machine code (qmc.engine.steps, module notes): loaded on its own
+    assert second["hits"]["diagonal_sweep"] >= 1, "the cached start did not load the sweep on its own"
