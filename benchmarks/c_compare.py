@@ -17,6 +17,8 @@ all its measurements, as in benchmarks/throughput.py) and prints one JSON object
   both include the per-step measurements (the C program's alone: ``c_measure_cpu_us_per_step``);
 - ``ratio_numba_over_c``: the ratio of those minima (also per operator, since the two cutoffs differ, and
   ``ratio_numba_over_c_per_step`` of the CPU microseconds per step, ``*_cpu_us_per_step``);
+  ``ratio_per_step_paired``: the mean over the repeats of each engine chain's time per step over that of
+  the C chain run just before it, with its error bar (``ratio_per_step_paired_err``);
 - the sweep / loop split of one step for both (for numba the two kernels are called one at a time from
   Python, so the split includes a few microseconds of dispatch per call), and the loop's CPU ns per leg
   visit (``*_loop_cpu_ns_per_leg``, 4 legs per bond vertex);
@@ -79,10 +81,12 @@ C_INTERLEAVED = f"{TRACERS}:{ALONE}:{WINDOW * 4 // 1024}"
 """The C program's interleaved variant with the engine's parameters (tracers : steps alone : window KiB)."""
 
 
-def compile_reference(cc: str, workdir: str, march: str = "native") -> str:
-    """Path of the compiled reference program (``cc -O3 -march=<march>``); raises CalledProcessError."""
+def compile_reference(cc: str, workdir: str, march: str = "native", defines: tuple[str, ...] = ()) -> str:
+    """Path of the compiled reference program (``cc -O3 -march=<march>``, ``-D`` each of ``defines``);
+    raises CalledProcessError."""
     exe = os.path.join(workdir, "sse_ref")
-    subprocess.run([cc, "-O3", f"-march={march}", "-std=c99", "-o", exe, SOURCE, "-lm"],
+    subprocess.run([cc, "-O3", f"-march={march}", "-std=c99", *(f"-D{d}" for d in defines), "-o", exe,
+                    SOURCE, "-lm"],
                    check=True, capture_output=True, text=True)
     return exe
 
@@ -205,6 +209,10 @@ def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: i
     out["ratio_numba_over_c"] = out["numba_cpu_ns_per_slot_per_step"] / out["c_cpu_ns_per_slot_per_step"]
     out["ratio_numba_over_c_per_step"] = out["numba_cpu_us_per_step"] / out["c_cpu_us_per_step"]
     out["ratio_numba_over_c_per_op"] = out["numba_cpu_ns_per_op_per_step"] / out["c_cpu_ns_per_op_per_step"]
+    paired = np.array([nb["cpu_us_per_step"] / c["cpu_us_per_step"]
+                       for c, nb in zip(c_runs, nb_runs, strict=True)])
+    out["ratio_per_step_paired"] = float(np.mean(paired))
+    out["ratio_per_step_paired_err"] = float(np.std(paired, ddof=1) / np.sqrt(repeats)) if repeats > 1 else 0.
     out["ratio_sweep"] = out["numba_sweep_cpu_ns_per_slot"] / out["c_sweep_cpu_ns_per_slot"]
     out["ratio_loop"] = out["numba_loop_cpu_ns_per_slot"] / out["c_loop_cpu_ns_per_slot"]
     for key in COMPARED:

@@ -5,8 +5,9 @@ Usage:  python benchmarks/instruction_counts.py [--case square|jq2|all] [--L 32]
 
 Timings on a shared machine move by several percent with the load of other tenants; instruction counts do
 not.  This script runs both programs on the canonical cases under valgrind and prints, per case, one JSON
-object with what the diagonal sweep and the loop update of one Monte Carlo step execute, divided by the
-cutoff (operator slots) of each program:
+object with what the diagonal sweep, the loop update and the loop-estimator pass (``qmc run``'s default
+measurement, :mod:`qmc.engine.loop_estimators`) of one Monte Carlo step execute, divided by the cutoff
+(operator slots) of each program (both run with the loop estimators):
 
 - ``*_instructions_per_slot``: instructions executed (valgrind's Ir);
 - ``*_branches_per_slot``, ``*_mispredicts_per_slot``: conditional branches and those a simple simulated
@@ -16,14 +17,14 @@ cutoff (operator slots) of each program:
 - ``ratio_*``: engine over C.
 
 Both programs are built for the same instruction set (valgrind does not run AVX-512): the C program with
-``-O3 -march=haswell``, the engine with ``NUMBA_CPU_NAME=haswell`` and the same features fixed
-(``NUMBA_CPU_FEATURES``) and a numba cache of its own in a temporary directory, compiled outside valgrind
-first.  The C program is counted by function (cachegrind,
-the difference of two runs of ``--steps`` and 3 x ``--steps`` measured steps, so set-up and warm-up cancel);
-the engine by callgrind with collection switched on only around the kernel calls (client requests through a
-small shared library built here from valgrind's ``callgrind.h``), the sweeps and the loop updates of
-``--steps`` steps from the same warmed chain counted separately.  The per-step measurements are not
-counted (a few per cent of a step in plain mode).  Without valgrind, its header or a C compiler the
+``-O3 -march=haswell -DSSE_COUNTING`` (its loop-estimator pass out of line, so that it is counted by name),
+the engine with ``NUMBA_CPU_NAME=haswell`` and the same features fixed (``NUMBA_CPU_FEATURES``) and a numba
+cache of its own in a temporary directory, compiled outside valgrind first. The C program is counted by
+function (cachegrind, the difference of two runs of ``--steps`` and 3 x ``--steps`` measured steps, so
+set-up and warm-up cancel); the engine by callgrind with collection switched on only around the kernel calls
+(client requests through a small shared library built here from valgrind's ``callgrind.h``), the sweeps, the
+loop updates and the passes of ``--steps`` steps from the same warmed chain counted separately. The other
+per-step measurements are not counted (a few microseconds). Without valgrind, its header or a C compiler the
 script prints a JSON note and exits with status 0.
 
 What it is for: the engine and the C program take the same time per step on an idle machine, but when
@@ -50,6 +51,7 @@ from c_compare import compile_reference
 from qmc.chain.simulation import Simulation
 from qmc.chain.tracer_choice import SINGLE
 from qmc.engine.diagonal import diagonal_sweep
+from qmc.engine.loop_estimators import loop_estimators
 from qmc.engine.projector import loop_update
 from qmc.engine.rng import stream_seed
 
@@ -72,9 +74,9 @@ outside, and numba's cache key includes them, so without this the kernels would 
 valgrind."""
 
 
-def _totals(annotate_output: str, select: str | None = None) -> dict[str, float]:
+def _totals(annotate_output: str, select: tuple[str, ...] | None = None) -> dict[str, float]:
     """Event totals of a ``cg_annotate`` / ``callgrind_annotate`` report: the program totals, or with
-    ``select`` the sum of the function lines whose name contains it."""
+    ``select`` the sum of the function lines whose name contains one of its strings."""
     lines = annotate_output.splitlines()
     header = next(line for line in lines if line.startswith("Ir"))
     names = header.split()
@@ -82,7 +84,7 @@ def _totals(annotate_output: str, select: str | None = None) -> dict[str, float]
     for line in lines:
         if select is None and "PROGRAM TOTALS" not in line:
             continue
-        if select is not None and (not line.strip() or select not in line.split()[-1]):
+        if select is not None and (not line.strip() or not any(x in line.split()[-1] for x in select)):
             continue
         values = re.sub(r"\([^)]*\)", "", line).split()[:len(names)]
         if len(values) < len(names):
@@ -98,61 +100,75 @@ def _per_slot(events: dict[str, float], steps: int, slots: int) -> dict[str, flo
     return {EVENTS[k]: events.get(k, 0.0) / steps / slots for k in EVENTS}
 
 
+PARTS = (("sweep", ("diagonal_sweep",)), ("loop", ("loop_update", "loops_")), ("pass", ("loop_estimators",)))
+"""The counted parts and the C program's functions that do them (out of line in the C program)."""
+
+
 def count_c(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, workdir: str) -> dict:
-    """Sweep and loop update of the C program per slot and step (difference of two cachegrind runs)."""
+    """Sweep, loop update and loop-estimator pass of the C program per slot and step (difference of two
+    cachegrind runs; one tracer, the loop estimators)."""
     J, Q = CASES[case]
     runs = []
     for n in (steps, 3 * steps):
         out = os.path.join(workdir, f"c-{case}-{n}.out")
         res = subprocess.run(["valgrind", "--tool=cachegrind", *TOOL_FLAGS, f"--cachegrind-out-file={out}",
-                              exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(n), "5", "1"],
+                              exe, str(L), repr(beta), repr(J), repr(Q), str(warmup), str(n), "5", "1", "1",
+                              "improved"],
                              check=True, capture_output=True, text=True)
         report = subprocess.run(["cg_annotate", out], check=True, capture_output=True, text=True).stdout
-        runs.append((json.loads(res.stdout), {part: _totals(report, name) for part, name in
-                                              (("sweep", "diagonal_sweep"), ("loop", "loop"))}))
+        runs.append((json.loads(res.stdout), {part: _totals(report, name) for part, name in PARTS}))
     (first, a), (last, b) = runs
     if first["cutoff"] != last["cutoff"]:
         raise RuntimeError("the C program's cutoff changed between the two runs")
     return {part: _per_slot({k: b[part][k] - a[part][k] for k in a[part]}, 2 * steps, first["cutoff"])
-            for part in ("sweep", "loop")} | {"cutoff": first["cutoff"]}
+            for part, _ in PARTS} | {"cutoff": first["cutoff"]}
 
 
 def _engine_child(case: str, L: int, beta: float, warmup: int, steps: int, control: str) -> None:
     """Inside valgrind (or once outside, to compile): warm a chain up, then count ``steps`` sweeps and,
-    from the same state, ``steps`` loop updates (collection on only around those calls)."""
+    from the same state, ``steps`` loop updates and ``steps`` loop-estimator passes (collection on only
+    around those calls)."""
     lib = ctypes.CDLL(control) if control else None
     sim = Simulation(case_model(L, *CASES[case]), beta, warmup_steps=warmup, measure_steps=1, bins=1,
-                     seed_words=stream_seed(3, f"counts-{case}"), estimators="plain")
+                     seed_words=stream_seed(3, f"counts-{case}"), estimators="improved")
     sim.fix_loop_tracing(SINGLE)  # the C program's one-tracer variant (-march=haswell build, variant 1)
     sim.advance(warmup)
     records = (sim.chain, sim.terms, sim.kind, sim.vertices, sim.probes, sim.tallies)
     state = [a.copy() for a in (*sim.chain, *sim.vertices)]
     n, n_vert = diagonal_sweep(*records)  # load both kernels from the cache before counting
     sim.counters[0] = n
-    loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
+    n_loops = loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
+    loop_estimators(sim.kind, sim.chain, sim.terms, sim.vertices, sim.probes, sim.tallies, n_vert, n_loops)
+
     def nothing() -> None:
         pass
 
-    for part in ("sweep", "loop"):
+    for part, _ in PARTS:
         for a, saved in zip((*sim.chain, *sim.vertices), state, strict=True):
             a[...] = saved
         (lib.counting_zero if lib else nothing)()
         around_sweep = lib.counting_toggle if lib and part == "sweep" else nothing
         around_loop = lib.counting_toggle if lib and part == "loop" else nothing
+        around_pass = lib.counting_toggle if lib and part == "pass" else nothing
         for _ in range(steps):
             around_sweep()
             n, n_vert = diagonal_sweep(*records)
             around_sweep()
             sim.counters[0] = n
             around_loop()
-            loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
+            n_loops = loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
             around_loop()
+            around_pass()
+            loop_estimators(sim.kind, sim.chain, sim.terms, sim.vertices, sim.probes, sim.tallies, n_vert,
+                            n_loops)
+            around_pass()
         (lib.counting_dump if lib else nothing)()
     print(json.dumps({"cutoff": sim.cutoff}))
 
 
 def count_engine(case: str, L: int, beta: float, warmup: int, steps: int, workdir: str, control: str) -> dict:
-    """Sweep and loop update of the engine per slot and step (callgrind, collection around the calls)."""
+    """Sweep, loop update and loop-estimator pass of the engine per slot and step (callgrind, collection
+    around the calls)."""
     env = dict(os.environ, NUMBA_CPU_NAME="haswell", NUMBA_CPU_FEATURES=HASWELL,
                NUMBA_CACHE_DIR=os.path.join(workdir, "numba-cache"))
     child = [sys.executable, os.path.abspath(__file__), "--engine-child", "--case", case, "--L", str(L),
@@ -164,7 +180,7 @@ def count_engine(case: str, L: int, beta: float, warmup: int, steps: int, workdi
     info = json.loads(res.stdout.strip().splitlines()[-1])
     dumps = sorted(glob.glob(f"{workdir}/engine-{case}.out.*"), key=lambda f: int(f.rsplit(".", 1)[1]))
     out = {"cutoff": info["cutoff"]}
-    for part, dump in zip(("sweep", "loop"), dumps[:2], strict=True):
+    for (part, _), dump in zip(PARTS, dumps[:len(PARTS)], strict=True):
         report = subprocess.run(["callgrind_annotate", dump], check=True, capture_output=True,
                                 text=True).stdout
         out[part] = _per_slot(_totals(report), steps, info["cutoff"])
@@ -189,7 +205,7 @@ def main() -> None:
                           "missing": missing + ([] if os.path.exists(HEADER) else [HEADER])}))
         return
     with tempfile.TemporaryDirectory() as workdir:
-        exe = compile_reference(a.cc, workdir, march="haswell")
+        exe = compile_reference(a.cc, workdir, march="haswell", defines=("SSE_COUNTING",))
         control = os.path.join(workdir, "libcounting.so")
         with open(os.path.join(workdir, "counting.c"), "w") as f:
             f.write(CONTROL)
@@ -200,7 +216,7 @@ def main() -> None:
             e = count_engine(case, a.L, a.beta, a.warmup, a.steps, workdir, control)
             row = {"case": case, "L": a.L, "beta": a.beta, "steps": a.steps,
                    "c_cutoff": c["cutoff"], "engine_cutoff": e["cutoff"]}
-            for part in ("sweep", "loop"):
+            for part, _ in PARTS:
                 for name in EVENTS.values():
                     row[f"c_{part}_{name}_per_slot"] = c[part][name]
                     row[f"engine_{part}_{name}_per_slot"] = e[part][name]
