@@ -15,6 +15,7 @@
 - :mod:`qmc.engine.loop_estimators`  the order-parameter estimators averaged over the loop update's choices
 - :mod:`qmc.engine.steps`       Monte Carlo steps (sweep + the kind's loop update) with accumulation
 - :mod:`qmc.engine.rng`         xoshiro256** with its state in a plain array
+- :mod:`qmc.engine.cache_stamp` numba's on-disk cache of these kernels keyed by the whole engine's source
 
 Design note: adding a vertex kind
 ---------------------------------
@@ -65,5 +66,9 @@ The two kinds added after the projector, in these terms:
   ``Vertices.state``, allocated with the vertex list when the kind module sets ``VERTEX_STATE``) and
   ``measure`` (the kind's own accumulator slots after the groups, ``acc_slots(G)`` of them).
 """
+
+from qmc.engine.cache_stamp import use_engine_stamp
+
+use_engine_stamp()  # before any kernel is defined: numba picks a kernel's cache locator then
 
 __all__: list[str] = []
