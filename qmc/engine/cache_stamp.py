@@ -59,7 +59,7 @@ class _EngineStamp:
 
     _py_file: str
 
-    def get_source_stamp(self):  # noqa: ANN201 (numba's signature: any picklable object)
+    def get_source_stamp(self) -> object:  # any picklable object (numba's locator interface)
         if os.path.dirname(os.path.abspath(self._py_file)) == ENGINE_DIR:
             return engine_source_stamp()
         return super().get_source_stamp()  # type: ignore[misc]
