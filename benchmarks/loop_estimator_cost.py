@@ -8,11 +8,13 @@ For each case one chain (improved estimators) is warmed up; then for each of ``-
 Carlo step (``pass_us_first_*``, less the median time of an empty call through numba's dispatch,
 ``dispatch_us``), and then run ``10 x --repeats`` times on the same loops (it only reads the configuration
 and adds to the accumulator), the fastest call counting (``pass_us_*``). Repeated calls on one configuration
-run about 10% faster than the first one (measured, 32x32 J-Q2: 228-249 us against 254-284; see CHANGELOG),
-so the first-call figures are the ones to compare with a step's cost. One JSON object per case: the string's
-n, bond vertices and loops of the last configuration, the pass's wall-clock microseconds per call (median
-and minimum over the configurations) and those of ``equal_time`` with the plain order parameters (what the
-improved mode no longer computes), for scale.
+run 5-12% faster than the first one (32x32, minima and medians over 20 configurations, net of the dispatch:
+square 127-131 us against 142-156, J-Q2 240-243 against 258-273;
+benchmarks/results/loop_estimator_cost_first_call.jsonl), so the first-call figures are the ones to compare
+with a step's cost. One JSON object per case: the string's n, bond vertices and loops of the last
+configuration, the pass's wall-clock microseconds per call (median and minimum over the configurations) and
+those of ``equal_time`` with the plain order parameters (what the improved mode no longer computes), for
+scale.
 The machine is shared: compare two trees by running them alternately.  ``--case all`` runs the two
 canonical S = 1/2 cases and the SU(3) J-Q2 case of the colour kind.
 """
