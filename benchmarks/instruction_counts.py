@@ -135,7 +135,7 @@ def _engine_child(case: str, L: int, beta: float, warmup: int, steps: int, contr
     sim.advance(warmup)
     records = (sim.chain, sim.terms, sim.kind, sim.vertices, sim.probes, sim.tallies)
     state = [a.copy() for a in (*sim.chain, *sim.vertices)]
-    n, n_vert = diagonal_sweep(*records)  # load both kernels from the cache before counting
+    n, n_vert = diagonal_sweep(*records)  # load the three kernels from the cache before counting
     sim.counters[0] = n
     n_loops = loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
     loop_estimators(sim.kind, sim.chain, sim.terms, sim.vertices, sim.probes, sim.tallies, n_vert, n_loops)
@@ -147,21 +147,19 @@ def _engine_child(case: str, L: int, beta: float, warmup: int, steps: int, contr
         for a, saved in zip((*sim.chain, *sim.vertices), state, strict=True):
             a[...] = saved
         (lib.counting_zero if lib else nothing)()
-        around_sweep = lib.counting_toggle if lib and part == "sweep" else nothing
-        around_loop = lib.counting_toggle if lib and part == "loop" else nothing
-        around_pass = lib.counting_toggle if lib and part == "pass" else nothing
+        around = {name: lib.counting_toggle if lib and name == part else nothing for name, _ in PARTS}
         for _ in range(steps):
-            around_sweep()
+            around["sweep"]()
             n, n_vert = diagonal_sweep(*records)
-            around_sweep()
+            around["sweep"]()
             sim.counters[0] = n
-            around_loop()
+            around["loop"]()
             n_loops = loop_update(sim.kind, sim.chain, sim.vertices, n_vert)
-            around_loop()
-            around_pass()
+            around["loop"]()
+            around["pass"]()
             loop_estimators(sim.kind, sim.chain, sim.terms, sim.vertices, sim.probes, sim.tallies, n_vert,
                             n_loops)
-            around_pass()
+            around["pass"]()
         (lib.counting_dump if lib else nothing)()
     print(json.dumps({"cutoff": sim.cutoff}))
 
