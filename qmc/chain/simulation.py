@@ -56,7 +56,7 @@ from qmc.engine.records import Chain, Probes, Tallies, Terms, Vertices, build
 from qmc.engine.rng import draw_doubles
 from qmc.engine.slots import ET_SIZE, SW_SIZE, acc_size
 from qmc.engine.steps import bound_run_steps
-from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, term_table
+from qmc.engine.vertices import EMPTY, OP_TERM_SHIFT, count_ops, displacement_classes, term_table
 from qmc.models.compiled import CompiledModel
 
 __all__ = ["Simulation", "HIST_BINS", "HIST_RANGE", "COUNTERS", "uses_loop_estimators", "grown_cutoff"]
@@ -172,8 +172,10 @@ class Simulation:
         self.kmax = int(np.max(k))
         self.term_start = np.ascontiguousarray(model.term_start, dtype=np.int32)
         self.term_group = np.ascontiguousarray(model.term_group, dtype=np.int32)
+        disp_rows, bond_class = displacement_classes(
+            np.reshape(model.bond_disp, (len(model.bond_sites), model.n_dirs)))
         table = term_table(self.term_start, model.term_bonds, self.term_group, model.bond_sites,
-                           model.group_kind)
+                           model.group_kind, bond_class)
         edge, scale, first, last = group_draw_tables(self.term_group, weights)
         self.terms = build(Terms, table=table, bond_count=k.astype(np.uint8),
                            alias_prob=alias_prob, alias_idx=alias_idx, group_edge=edge, group_scale=scale,
@@ -190,8 +192,7 @@ class Simulation:
         arg = 2.0 * np.pi * coords / lengths[None, :] if model.n_dirs else coords
         self.probes = build(
             Probes, phase=phase,
-            bond_disp=np.ascontiguousarray(model.bond_disp, dtype=np.float64).reshape(
-                len(model.bond_sites), model.n_dirs),
+            disp_classes=disp_rows,
             cos_tab=np.ascontiguousarray((np.cos(arg) * phase[:, None]).T),
             sin_tab=np.ascontiguousarray((np.sin(arg) * phase[:, None]).T),
             vbs_bonds=np.ascontiguousarray(model.vbs_bonds, dtype=np.int32).reshape(-1, 2),

@@ -24,7 +24,8 @@ wrong array is refused where the record is made, not silently used.
                 ``group_edge``/``group_scale`` float64[4], ``group_first``/``group_last`` int32[4]
                 (:mod:`qmc.chain.alias`, :mod:`qmc.engine.term_draw`), ``beta``, ``beta_wtot`` =
                 beta sum_t w_t
-``Probes``      what the estimators need: ``phase`` int8[N] (staggered sign), ``bond_disp`` float64[nb, D],
+``Probes``      what the estimators need: ``phase`` int8[N] (staggered sign), ``disp_classes`` float64[C, D]
+                (the distinct bond displacements; the term table gives each bond's row),
                 ``cos_tab``/``sin_tab`` float64[D, N], ``vbs_bonds`` int32[nv, 2], ``vbs_dir``/``vbs_phase``
                 int8[nv], ``hist_range``; for profiles along x (else empty) ``site_column`` int32[N]
                 (:mod:`qmc.engine.profiles`)
@@ -84,7 +85,7 @@ class Terms(NamedTuple):
 
 class Probes(NamedTuple):
     phase: np.ndarray
-    bond_disp: np.ndarray
+    disp_classes: np.ndarray
     cos_tab: np.ndarray
     sin_tab: np.ndarray
     vbs_bonds: np.ndarray
@@ -115,7 +116,7 @@ _SPEC: dict[type, dict[str, tuple[Any, int]]] = {  # field -> (dtype, ndim); ndi
     Terms: {"table": (_I32, 2), "bond_count": (_U8, 1), "alias_prob": (_F64, 1), "alias_idx": (_I32, 1),
             "group_edge": (_F64, 1), "group_scale": (_F64, 1), "group_first": (_I32, 1),
             "group_last": (_I32, 1), "beta": (float, 0), "beta_wtot": (float, 0)},
-    Probes: {"phase": (_I8, 1), "bond_disp": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
+    Probes: {"phase": (_I8, 1), "disp_classes": (_F64, 2), "cos_tab": (_F64, 2), "sin_tab": (_F64, 2),
              "vbs_bonds": (_I32, 2), "vbs_dir": (_I8, 1), "vbs_phase": (_I8, 1), "hist_range": (float, 0),
              "site_column": (_I32, 1)},
     Tallies: {"acc": (_F64, 1), "hist": (_I64, 2), "group_counts": (_I64, 1), "sweep_out": (_F64, 1),

@@ -95,7 +95,7 @@ def run_steps(n_steps, measure, stop_when_full, improved, chain, terms, kind, ve
     for i in range(probes.site_column.shape[0]):
         n_cols = max(n_cols, probes.site_column[i] + 1)
     profile_at = acc.shape[0] - PROFILE_TERMS * n_cols - terms.table.shape[0]
-    n_dirs = probes.bond_disp.shape[1]
+    n_dirs = probes.disp_classes.shape[1]
     M = chain.ops.shape[0]
     for step in range(n_steps):
         n, n_vert = diagonal_sweep(chain, terms, kind, vertices, probes, tallies)

@@ -26,7 +26,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["count_ops", "term_table", "TT_META", "TT_BOND", "TT_BOND_WIDTH",
+__all__ = ["count_ops", "term_table", "displacement_classes", "TT_META", "TT_BOND", "TT_BOND_WIDTH",
            "MAX_KINDS", "meta_bonds", "meta_kind", "meta_group", "OP_TERM_SHIFT", "OP_OFF_MASK", "EMPTY"]
 
 EMPTY = -1
@@ -39,8 +39,8 @@ OP_OFF_MASK = (1 << OP_TERM_SHIFT) - 1
 TT_META = 0
 """Column of :func:`term_table` holding the term's packed ``k | kind << 2 | group << 5`` (see ``meta_*``)."""
 TT_BOND = 1
-"""First column of the bond records: bond a of the term is ``(i, j, b)`` at ``TT_BOND + TT_BOND_WIDTH a``
-plus 0, 1, 2 (sites i, j and the bond's index into ``bond_sites``)."""
+"""First column of the bond records: bond a of the term is ``(i, j, c)`` at ``TT_BOND + TT_BOND_WIDTH a``
+plus 0, 1, 2 (sites i, j and the bond's displacement class c, its row of :func:`displacement_classes`)."""
 TT_BOND_WIDTH = 3
 
 _KIND_SHIFT = 2
@@ -67,15 +67,34 @@ def meta_group(meta):
     return meta >> _GROUP_SHIFT
 
 
+def displacement_classes(bond_disp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(rows float64[C, D], class int32[nb]): the distinct rows of the bonds' displacements ``bond_disp``
+    float64[nb, D] and each bond's row, ``bond_disp[b] == rows[class[b]]`` exactly.
+
+    A lattice tiled from a unit cell has at most as many classes as the cell declares bonds (square: 2),
+    so the diagonal sweep reads a bond's displacement from a table of a few cache lines instead of a row
+    per bond (square lattice at L = 32: 32 KiB read at random places per sweep, next to the term table;
+    the values, and so the sums over them, are the same bits either way).
+    """
+    disp = np.asarray(bond_disp, dtype=np.float64)
+    disp = disp.reshape(disp.shape[0], -1) if disp.ndim == 2 else disp.reshape(0, 0)
+    if disp.shape[1] == 0 or disp.shape[0] == 0:
+        return np.zeros((1, disp.shape[1])), np.zeros(disp.shape[0], dtype=np.int32)
+    rows, cls = np.unique(disp, axis=0, return_inverse=True)
+    return np.ascontiguousarray(rows), cls.reshape(-1).astype(np.int32)
+
+
 def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.ndarray,
-               bond_sites: np.ndarray, group_kind: np.ndarray) -> np.ndarray:
+               bond_sites: np.ndarray, group_kind: np.ndarray, bond_class: np.ndarray | None = None
+               ) -> np.ndarray:
     """Everything the diagonal sweep needs about term t in one int32 row ``table[t]``.
 
     ``table[t, TT_META]`` packs the bond count k_t <= 3, the vertex kind of the term's group and the
     group g_t (read them with :func:`meta_bonds`, :func:`meta_kind`, :func:`meta_group`); then for each
-    bond a of the term its sites and bond index ``(i, j, b)`` at ``TT_BOND + TT_BOND_WIDTH a``.  Rows are
-    padded to 4, 8 or 16 entries (k_max = 1, 2, 3), so that a row never straddles more cache lines than
-    it must: one load brings a term's bonds instead of the chain term -> bond list -> bond -> sites.
+    bond a of the term its sites and displacement class ``(i, j, c)`` at ``TT_BOND + TT_BOND_WIDTH a``
+    (``c = bond_class[b]``; all 0 without ``bond_class``).  Rows are padded to 4, 8 or 16 entries (k_max =
+    1, 2, 3), so that a row never straddles more cache lines than it must: one load brings a term's bonds
+    instead of the chain term -> bond list -> bond -> sites.
     """
     start = np.asarray(term_start, dtype=np.int64)
     k = np.diff(start)
@@ -91,13 +110,14 @@ def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.nd
     table[:, TT_META] = k | kind[group] << _KIND_SHIFT | group << _GROUP_SHIFT
     bonds = np.asarray(term_bonds, dtype=np.int64)
     sites = np.asarray(bond_sites, dtype=np.int64).reshape(-1, 2)
+    cls = np.zeros(sites.shape[0], dtype=np.int64) if bond_class is None else np.asarray(bond_class, np.int64)
     for a in range(kmax):
         rows = np.flatnonzero(k > a)
         b = bonds[start[rows] + a]
         col = TT_BOND + TT_BOND_WIDTH * a
         table[rows, col] = sites[b, 0]
         table[rows, col + 1] = sites[b, 1]
-        table[rows, col + 2] = b
+        table[rows, col + 2] = cls[b]
     return table
 
 
