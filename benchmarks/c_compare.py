@@ -1,8 +1,8 @@
 """Engine speed against the reference C implementation of the same algorithm (benchmarks/c_reference).
 
 Usage:  python benchmarks/c_compare.py [--case square|jq2|all] [--L 32] [--beta 32] [--steps 200]
-                                       [--warmup 300] [--repeats 3] [--seed 1] [--cc cc] [--c-variant best]
-                                       [--estimators improved|plain]
+                                       [--steps-per-bin 200] [--warmup 300] [--repeats 3] [--seed 1]
+                                       [--cc cc] [--c-variant best] [--estimators improved|plain]
         python benchmarks/c_compare.py --scaling 16,32,64,128 [--case ...] [--variants 1,16:0,32:4]
                                        [--rounds 3] [--work 2e7]
 
@@ -23,9 +23,11 @@ all its measurements, as in benchmarks/throughput.py) and prints one JSON object
   Python, so the split includes a few microseconds of dispatch per call), and the loop's CPU ns per leg
   visit (``*_loop_cpu_ns_per_leg``, 4 legs per bond vertex);
 - the energy per site of both, each the mean over the repeats with its error bar (bin errors combined
-  over the independent chains), their difference in combined error bars, and ``energies_agree``:
-  |difference| < 5 error bars or < 2e-3 relative (independent Markov chains; a loose check that the two
-  programs sample the same distribution, not a precision test); the same for the staggered moment
+  over the independent chains; with one bin per chain, the default ``--steps 200`` at ``--steps-per-bin
+  200`` as in a run's configuration, the standard error of the chains' means), their difference in
+  combined error bars, and ``energies_agree``: |difference| < 5 error bars or < 2e-3 relative
+  (independent Markov chains; a loose check that the two programs sample the same distribution, not a
+  precision test); the same for the staggered moment
   ``m_stag2`` = <(M_s/N)^2> and the staggered susceptibility ``chi_stag`` (``m_stag2_diff_sigmas``,
   ``m_stag2_agree``, ``chi_stag_*``), which the two programs estimate with the estimators chosen below.
 
@@ -76,7 +78,10 @@ __all__ = ["compile_reference", "run_c", "run_numba", "compare_case", "scaling_c
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SOURCE = os.path.join(HERE, "c_reference", "sse_ref.c")
-N_BINS = 20
+STEPS_PER_BIN = 200
+"""Default measured steps per bin of the engine's chains: as in configs/quickstart.toml (a run's bins hold
+hundreds of steps).  At 10 steps per bin the engine's per-bin work in Python (bin averages, the chain's
+bookkeeping: about 0.1-0.2 ms a bin), which the C program does not do, added 1-2% to the J-Q2 step."""
 C_INTERLEAVED = f"{TRACERS}:{ALONE}:{WINDOW * 4 // 1024}"
 """The C program's interleaved variant with the engine's parameters (tracers : steps alone : window KiB)."""
 
@@ -133,10 +138,12 @@ def _kernel_split(sim: Simulation, steps: int) -> tuple[float, float, int]:
 
 
 def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, seed: int,
-              split_steps: int, estimators: str = "improved") -> dict:
-    """One numba chain: warm-up, ``steps`` measured steps (CPU-timed), then the kernel split."""
+              split_steps: int, estimators: str = "improved", steps_per_bin: int = STEPS_PER_BIN) -> dict:
+    """One numba chain: warm-up, ``steps`` measured steps (CPU-timed) in bins of about ``steps_per_bin``,
+    then the kernel split."""
     model = case_model(L, J, Q)
-    bins = max(b for b in range(1, min(N_BINS, steps) + 1) if steps % b == 0)
+    most = max(1, steps // max(1, steps_per_bin))
+    bins = max(b for b in range(1, min(most, steps) + 1) if steps % b == 0)
     sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=bins,
                      seed_words=stream_seed(seed, f"c-compare-{L}-{beta}-{J}-{Q}"), estimators=estimators)
     sim.advance(warmup)
@@ -166,9 +173,12 @@ COMPARED = ("energy_per_site", "m_stag2", "chi_stag")
 
 
 def _combine(runs: list[dict], key: str = "energy_per_site") -> tuple[float, float]:
-    """Mean of estimate ``key`` over independent runs and its error bar."""
+    """Mean of estimate ``key`` over independent runs and its error bar: the runs' bin errors combined, or,
+    when the runs have one bin each, the standard error of the runs' means."""
     e = np.array([r[key] for r in runs])
     s = np.array([r[f"{key}_err"] for r in runs])
+    if not np.any(s > 0) and len(runs) > 1:
+        return float(np.mean(e)), float(np.std(e, ddof=1) / np.sqrt(len(runs)))
     return float(np.mean(e)), float(np.sqrt(np.sum(s**2)) / len(runs))
 
 
@@ -191,14 +201,16 @@ def _summary(runs: list[dict], prefix: str) -> dict:
 
 
 def compare_case(exe: str, case: str, L: int, beta: float, warmup: int, steps: int, repeats: int,
-                 seed: int, c_variant: str = "best", estimators: str = "improved") -> dict:
+                 seed: int, c_variant: str = "best", estimators: str = "improved",
+                 steps_per_bin: int = STEPS_PER_BIN) -> dict:
     """Timings and energies of the C program and the numba engine on one case (see module docstring)."""
     J, Q = CASES[case]
     split_steps = max(10, steps // 4)
     c_runs, nb_runs = [], []
     for r in range(repeats):  # interleaved, so that a burst of load on the machine hits both
         c_runs.append(run_c(exe, L, beta, J, Q, warmup, steps, seed + r, c_variant, estimators=estimators))
-        nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps, estimators))
+        nb_runs.append(run_numba(L, beta, J, Q, warmup, steps, seed + r, split_steps, estimators,
+                                 steps_per_bin))
     out = {"case": case, "L": L, "beta": beta, "J": J, "Q": Q, "warmup": warmup, "steps": steps,
            "repeats": repeats, "estimators": estimators, "numba_estimators": estimators,
            "c_estimators": c_runs[0]["estimators"]}
@@ -259,6 +271,8 @@ def main() -> None:
     p.add_argument("--estimators", default="improved", choices=["improved", "plain"],
                    help="the estimators of both programs (improved: the loop estimators, qmc run's "
                         "default; plain: the sweep's time averages and slice-0 sums)")
+    p.add_argument("--steps-per-bin", type=int, default=STEPS_PER_BIN,
+                   help="measured steps per bin of the engine's chains (the C program's bins cost nothing)")
     p.add_argument("--scaling", default="", metavar="L1,L2,...",
                    help="C program only: compare loop variants at these L (beta = L)")
     p.add_argument("--variants", default="1,8:0,16:0,32:0,16:4,32:4",
@@ -266,8 +280,10 @@ def main() -> None:
     p.add_argument("--rounds", type=int, default=3, help="--scaling: rounds of all variants back to back")
     p.add_argument("--work", type=float, default=2e7, help="--scaling: slot-steps per variant and round")
     a = p.parse_args()
-    if a.L < 4 or a.L % 2 or a.steps < 1 or a.repeats < 1 or a.warmup < 1 or a.rounds < 1:
-        raise SystemExit("need an even --L >= 4 and positive --steps, --warmup, --repeats and --rounds")
+    if (a.L < 4 or a.L % 2 or a.steps < 1 or a.repeats < 1 or a.warmup < 1 or a.rounds < 1
+            or a.steps_per_bin < 1):
+        raise SystemExit("need an even --L >= 4 and positive --steps, --steps-per-bin, --warmup, --repeats "
+                         "and --rounds")
     sizes = [int(x) for x in a.scaling.split(",")] if a.scaling else []
     if any(L < 4 or L % 2 for L in sizes):
         raise SystemExit("--scaling needs even sizes >= 4")
@@ -287,8 +303,9 @@ def main() -> None:
                     print(json.dumps(scaling_case(exe, case, L, a.variants, a.rounds, a.work, a.seed)))
                     sys.stdout.flush()
                 continue
-            print(json.dumps(compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed,
-                                          a.c_variant, a.estimators)))
+            out = compare_case(exe, case, a.L, a.beta, a.warmup, a.steps, a.repeats, a.seed, a.c_variant,
+                               a.estimators, a.steps_per_bin)
+            print(json.dumps({"steps_per_bin": a.steps_per_bin, **out}))
             sys.stdout.flush()
 
 
