@@ -77,7 +77,8 @@ def displacement_classes(bond_disp: np.ndarray) -> tuple[np.ndarray, np.ndarray]
     the values, and so the sums over them, are the same bits either way).
     """
     disp = np.asarray(bond_disp, dtype=np.float64)
-    disp = disp.reshape(disp.shape[0], -1) if disp.ndim == 2 else disp.reshape(0, 0)
+    if disp.ndim != 2:
+        raise ValueError(f"bond displacements must be a 2-d array [bonds, directions], not {disp.ndim}-d")
     if disp.shape[1] == 0 or disp.shape[0] == 0:
         return np.zeros((1, disp.shape[1])), np.zeros(disp.shape[0], dtype=np.int32)
     rows, cls = np.unique(disp, axis=0, return_inverse=True)

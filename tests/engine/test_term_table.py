@@ -96,3 +96,5 @@ def test_displacement_classes_give_every_bond_its_displacement(kind, size, n_cla
 def test_displacement_classes_without_winding_directions():
     rows, cls = displacement_classes(np.zeros((5, 0)))
     assert rows.shape == (1, 0) and cls.tolist() == [0] * 5
+    with pytest.raises(ValueError, match="2-d array"):
+        displacement_classes(np.zeros(5))
