@@ -81,7 +81,7 @@ SOURCE = os.path.join(HERE, "c_reference", "sse_ref.c")
 STEPS_PER_BIN = 200
 """Default measured steps per bin of the engine's chains: as in configs/quickstart.toml (a run's bins hold
 hundreds of steps).  At 10 steps per bin the engine's per-bin work in Python (bin averages, the chain's
-bookkeeping: about 0.1-0.2 ms a bin), which the C program does not do, added 1-2% to the J-Q2 step."""
+bookkeeping: 0.1-0.3 ms a bin), which the C program does not do, added 1-2% to the J-Q2 step."""
 C_INTERLEAVED = f"{TRACERS}:{ALONE}:{WINDOW * 4 // 1024}"
 """The C program's interleaved variant with the engine's parameters (tracers : steps alone : window KiB)."""
 
