@@ -143,7 +143,7 @@ def run_numba(L: int, beta: float, J: float, Q: float, warmup: int, steps: int, 
     then the kernel split."""
     model = case_model(L, J, Q)
     most = max(1, steps // max(1, steps_per_bin))
-    bins = max(b for b in range(1, min(most, steps) + 1) if steps % b == 0)
+    bins = max(b for b in range(1, most + 1) if steps % b == 0)
     sim = Simulation(model, beta, warmup_steps=warmup, measure_steps=steps, bins=bins,
                      seed_words=stream_seed(seed, f"c-compare-{L}-{beta}-{J}-{Q}"), estimators=estimators)
     sim.advance(warmup)

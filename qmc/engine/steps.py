@@ -30,7 +30,9 @@ the copy is 3-4% slower.  When everything is compiled in the process, the kernel
 loaded first and the copies are never called (the JIT linker keeps the first definition of a symbol); when
 run_steps comes from numba's cache, the kernels' own compilations are not loaded and the copies would run.
 :func:`bound_run_steps` therefore loads the sweep on its own first, so a cached start runs the code a fresh
-one does (the loop update's and the loop estimators' copies measured as fast as their own compilations).
+one does (the loop estimators' copy measured as fast as their own compilation; the loop update is the
+kind's hook, compiled into run_steps from its Python source, and calling its own compilation instead
+measured no faster).
 """
 
 from __future__ import annotations

@@ -86,16 +86,15 @@ def displacement_classes(bond_disp: np.ndarray) -> tuple[np.ndarray, np.ndarray]
 
 
 def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.ndarray,
-               bond_sites: np.ndarray, group_kind: np.ndarray, bond_class: np.ndarray | None = None
-               ) -> np.ndarray:
+               bond_sites: np.ndarray, group_kind: np.ndarray, bond_class: np.ndarray) -> np.ndarray:
     """Everything the diagonal sweep needs about term t in one int32 row ``table[t]``.
 
     ``table[t, TT_META]`` packs the bond count k_t <= 3, the vertex kind of the term's group and the
     group g_t (read them with :func:`meta_bonds`, :func:`meta_kind`, :func:`meta_group`); then for each
     bond a of the term its sites and displacement class ``(i, j, c)`` at ``TT_BOND + TT_BOND_WIDTH a``
-    (``c = bond_class[b]``; all 0 without ``bond_class``).  Rows are padded to 4, 8 or 16 entries (k_max =
-    1, 2, 3), so that a row never straddles more cache lines than it must: one load brings a term's bonds
-    instead of the chain term -> bond list -> bond -> sites.
+    (``c = bond_class[b]``, from :func:`displacement_classes`).  Rows are padded to 4, 8 or 16 entries
+    (k_max = 1, 2, 3), so that a row never straddles more cache lines than it must: one load brings a
+    term's bonds instead of the chain term -> bond list -> bond -> sites.
     """
     start = np.asarray(term_start, dtype=np.int64)
     k = np.diff(start)
@@ -111,7 +110,7 @@ def term_table(term_start: np.ndarray, term_bonds: np.ndarray, term_group: np.nd
     table[:, TT_META] = k | kind[group] << _KIND_SHIFT | group << _GROUP_SHIFT
     bonds = np.asarray(term_bonds, dtype=np.int64)
     sites = np.asarray(bond_sites, dtype=np.int64).reshape(-1, 2)
-    cls = np.zeros(sites.shape[0], dtype=np.int64) if bond_class is None else np.asarray(bond_class, np.int64)
+    cls = np.asarray(bond_class, dtype=np.int64)
     for a in range(kmax):
         rows = np.flatnonzero(k > a)
         b = bonds[start[rows] + a]

@@ -64,18 +64,20 @@ def test_kind_and_group_fields_do_not_overlap():
         assert [meta_group(x) for x in meta] == m.term_group.tolist()
         assert [meta_bonds(x) for x in meta] == np.diff(m.term_start).tolist()
     many = term_table(np.array([0, 1]), np.array([0]), np.array([70000]), np.array([[0, 1]]),
-                      np.full(70001, MAX_KINDS - 1))
+                      np.full(70001, MAX_KINDS - 1), np.zeros(1))
     assert (meta_group(many[0, TT_META]), meta_kind(many[0, TT_META])) == (70000, MAX_KINDS - 1)
 
 
 def test_more_than_three_bonds_are_refused():
     with pytest.raises(ValueError, match="1 to 3 bonds"):
-        term_table(np.array([0, 4]), np.arange(4), np.zeros(1), np.zeros((4, 2)), np.zeros(1))
+        term_table(np.array([0, 4]), np.arange(4), np.zeros(1), np.zeros((4, 2)), np.zeros(1),
+                   np.zeros(4))
 
 
 def test_unknown_kind_codes_are_refused():
     with pytest.raises(ValueError, match="vertex-kind codes"):
-        term_table(np.array([0, 1]), np.arange(1), np.zeros(1), np.zeros((1, 2)), np.array([MAX_KINDS]))
+        term_table(np.array([0, 1]), np.arange(1), np.zeros(1), np.zeros((1, 2)), np.array([MAX_KINDS]),
+                   np.zeros(1))
 
 
 @pytest.mark.parametrize("kind, size, n_classes", [("square", (6, 4), 2), ("honeycomb", (3, 3), 3),
