@@ -51,7 +51,10 @@ pass with one store per slot and no branch (branching on empty slots and on the 
 and the per-vertex sums are masked with them rather than branched on; the scratch is left zero for the next
 call, so the clearing rides along the last pass over the loops instead of a pass of its own.  Letting the
 diagonal sweep write the marks instead was measured and dropped: the guarded store made the plain-estimator
-step about 3% slower on the square case.
+step about 3% slower on the square case.  The vertex pass (:func:`_vertex_sums`) runs over the leg index
+4 v rather than v, and is compiled with fused multiply-adds allowed (its products are exact, so its sums
+are the same to the last bit, :func:`_vertex_sums`): 9-10% less time for the pass on both canonical cases,
+whose vertex loop is bound by the number of instructions it issues.
 """
 
 from __future__ import annotations
@@ -69,12 +72,13 @@ U = np.uint32
 
 
 @njit(inline="always")
-def _pass_vertex(kind, links, tally, v, p, q2, q4):
-    """Bond vertex v of the p-th operator: its loop below loses two sites, its loop above gains them; returns
-    the new (Q2, Q4).  Branch-free: when the same loop is below and above, the changes cancel exactly.
-    ``tally[2 b]`` is loop b's site count, ``tally[2 b + 1]`` its length (one cache line for both)."""
-    below = U(2 * loop_label(kind, links[U(4 * v)]))
-    above = U(2 * loop_label(kind, links[U(4 * v + 2)]))
+def _pass_vertex(kind, links, tally, leg, p, q2, q4):
+    """The bond vertex whose legs start at ``leg`` (= 4 v) in the p-th operator: its loop below loses two
+    sites, its loop above gains them; returns the new (Q2, Q4).  Branch-free: when the same loop is below
+    and above, the changes cancel exactly.  ``tally[2 b]`` is loop b's site count, ``tally[2 b + 1]`` its
+    length (one cache line for both)."""
+    below = U(2 * loop_label(kind, links[U(leg)]))
+    above = U(2 * loop_label(kind, links[U(leg + 2)]))
     cb = tally[below]
     tally[below] = cb - 2
     tally[below + U(1)] += 2 * p
@@ -89,6 +93,41 @@ def _pass_vertex(kind, links, tally, v, p, q2, q4):
     q2 += 4 * (a - b)
     q4 += np.float64(8 * (a * (a * a + 1) - b * (b * b + 1)))
     return q2, q4
+
+
+@njit(cache=True, fastmath={"contract"}, boundscheck=False)
+def _vertex_sums(kind, links, tally, ends, n_vertices, n, q2, q4):
+    """(sum_p Q2(p), sum_p Q2(p)^2, sum_p Q4(p)) over the propagated states p = 1 .. n, from Q2 and Q4 at
+    slice 0, in one pass over the bond vertices.  When every operator is one bond vertex (n_vertices == n)
+    vertex v is operator v + 1; otherwise a state ends after the last vertex of each operator: ends[v + 1]
+    = 1 there, else 0, and the sums are masked with it (no branch).  Fused multiply-adds are allowed here
+    only, where they change nothing: 0 or 1 times Q4 is exact, and so is Q2^2 while Q2 < 2^26 (always on
+    up to 8192 sites, since Q2 <= N^2).  Beyond, a CPU without FMA may round sum_p Q2(p)^2 differently
+    in its last bit; one machine always gives the same bins."""
+    sum_q2 = 0.0
+    sum_q2sq = 0.0
+    sum_q4 = 0.0
+    p = np.int64(1)
+    if n_vertices == n:
+        for leg in range(0, 4 * n_vertices, 4):
+            q2, q4 = _pass_vertex(kind, links, tally, leg, p, q2, q4)
+            fq2 = np.float64(q2)
+            sum_q2 += fq2
+            sum_q2sq += fq2 * fq2
+            sum_q4 += q4
+            p += 1
+    else:
+        v = np.int64(0)
+        for leg in range(0, 4 * n_vertices, 4):
+            q2, q4 = _pass_vertex(kind, links, tally, leg, p, q2, q4)
+            v += 1
+            e = np.int64(ends[U(v)])
+            fq2 = np.float64(q2 & -e)  # Q2 at the end of an operator, else 0
+            sum_q2 += fq2
+            sum_q2sq += fq2 * fq2
+            sum_q4 += np.float64(e) * q4
+            p += e
+    return sum_q2, sum_q2sq, sum_q4
 
 
 @njit(inline="always")
@@ -181,28 +220,11 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vertices, n
         if f >= 0:
             b = U(2 * loop_label(kind, links[U(f & ~1)]))
             tally[b + U(1)] = n * tally[b]
-    sum_q2 = 0.0
-    sum_q2sq = 0.0
-    sum_q4 = 0.0
-    if n_vertices == n:  # every operator one bond vertex (k = 1): vertex v is operator v + 1
-        for v in range(n_vertices):
-            q2, q4 = _pass_vertex(kind, links, tally, v, v + 1, q2, q4)
-            fq2 = np.float64(q2)
-            sum_q2 += fq2
-            sum_q2sq += fq2 * fq2
-            sum_q4 += q4
-    else:  # a state ends after the last vertex of each operator: e = 1 there, else 0 (no branch)
-        ends = tallies.loop_ends
+    ends = tallies.loop_ends
+    if n_vertices != n:  # multi-bond operators: mark where they end
         _mark_ends(chain.ops, terms.bond_count, ends)
-        p = np.int64(1)
-        for v in range(n_vertices):
-            q2, q4 = _pass_vertex(kind, links, tally, v, p, q2, q4)
-            e = np.int64(ends[U(v + 1)])
-            fq2 = np.float64(q2 & -e)  # Q2 at the end of an operator, else 0
-            sum_q2 += fq2
-            sum_q2sq += fq2 * fq2
-            sum_q4 += np.float64(e) * q4
-            p += e
+    sum_q2, sum_q2sq, sum_q4 = _vertex_sums(kind, links, tally, ends, n_vertices, n, q2, q4)
+    if n_vertices != n:
         for v in range(n_vertices + 1):  # left zero for the next call
             ends[v] = 0
     sum_l2 = np.float64(n_free) * np.float64(n) * np.float64(n)
