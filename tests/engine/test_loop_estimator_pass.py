@@ -23,7 +23,8 @@ from numba import njit
 from qmc.chain.simulation import Simulation
 from qmc.engine.diagonal import diagonal_sweep
 from qmc.engine.kinds import loop_update
-from qmc.engine.loop_estimators import loop_estimators
+from qmc.engine.loop_estimators import _vertex_sums, loop_estimators
+from qmc.engine.projector import ProjectorKind
 from qmc.engine.rng import stream_seed
 from qmc.engine.slots import A_CHIS, A_MS2, A_MS4, A_MZ2, A_SQN
 from qmc.engine.vertices import OP_TERM_SHIFT, TT_BOND, TT_BOND_WIDTH, TT_META
@@ -128,3 +129,57 @@ def test_kernel_matches_slow_reference(name: str, beta: float) -> None:
         seen_free |= bool(np.any(sim.vertices.first < 0))
     if name == "chain12":
         assert seen_free, "beta 0.3 on 12 sites should leave some site without operators"
+
+
+def _vertex_sums_plain(links, tally, ends, n_vertices, n, q2, q4):
+    """The vertex pass of loop_estimators written in plain Python (IEEE double, one rounding per operation,
+    never fused), in the kernel's order of operations."""
+    tally = tally.copy()
+    sum_q2 = sum_q2sq = sum_q4 = 0.0
+    p = 1
+    for v in range(n_vertices):
+        below, above = 2 * ((~int(links[4 * v])) >> 1), 2 * ((~int(links[4 * v + 2])) >> 1)
+        cb = int(tally[below])
+        tally[below] = cb - 2
+        tally[below + 1] += 2 * p
+        ca = int(tally[above])
+        tally[above] = ca + 2
+        tally[above + 1] -= 2 * p
+        a, b = ca + 1, cb - 1
+        q2 += 4 * (a - b)
+        q4 += float(8 * (a * (a * a + 1) - b * (b * b + 1)))
+        e = 1 if n_vertices == n else int(ends[v + 1])
+        fq2 = float(q2 if e else 0)
+        sum_q2 += fq2
+        sum_q2sq += fq2 * fq2
+        sum_q4 += float(e) * q4
+        p += e
+    return (sum_q2, sum_q2sq, sum_q4), tally
+
+
+@pytest.mark.parametrize("masked", [False, True], ids=["one-vertex-operators", "multi-bond-operators"])
+def test_vertex_pass_is_exact_with_fused_multiply_adds(masked: bool) -> None:
+    """The vertex pass is compiled with fused multiply-adds allowed; its products (Q2^2 while Q2 < 2^26, 0 or
+    1 times Q4) are exact, so its sums must equal an unfused evaluation bit for bit.  Five large loops
+    (about 3000 sites each: Q2 near 2^25.4, Q2^2 near 2^50.8, where a fused and an unfused sum of
+    products would differ if the products were not exact) swap sites at random for 4000 vertices."""
+    rng = np.random.default_rng(7)
+    n_vertices, n_loops = 4000, 5
+    labels = rng.integers(0, n_loops, size=(n_vertices, 2))
+    links = np.zeros(4 * n_vertices + 4, dtype=np.int32)
+    links[0:4 * n_vertices:4] = ~(2 * labels[:, 0] + rng.integers(0, 2, n_vertices))  # mark ~(2 b + flip)
+    links[2:4 * n_vertices:4] = ~(2 * labels[:, 1] + rng.integers(0, 2, n_vertices))
+    tally = np.zeros(2 * n_loops, dtype=np.int64)
+    tally[0::2] = rng.integers(2900, 3100, n_loops)
+    ends = np.zeros(n_vertices + 1, dtype=np.uint8)
+    if masked:
+        ends[1:] = rng.integers(0, 2, n_vertices)
+        ends[n_vertices] = 1
+    n = int(ends.sum()) if masked else n_vertices
+    q2 = int(np.sum(tally[0::2] ** 2))
+    q4 = float(np.sum(tally[0::2].astype(np.float64) ** 4))
+    assert 2**25 < q2 < 2**26
+    want, want_tally = _vertex_sums_plain(links, tally, ends, n_vertices, n, q2, q4)
+    got = _vertex_sums(ProjectorKind(), links, tally, ends, n_vertices, n, np.int64(q2), q4)
+    assert tuple(float(x) for x in got) == want  # bit for bit
+    np.testing.assert_array_equal(tally, want_tally)
