@@ -52,9 +52,9 @@ and the per-vertex sums are masked with them rather than branched on; the scratc
 call, so the clearing rides along the last pass over the loops instead of a pass of its own.  Letting the
 diagonal sweep write the marks instead was measured and dropped: the guarded store made the plain-estimator
 step about 3% slower on the square case.  The vertex pass (:func:`_vertex_sums`) runs over the leg index
-4 v rather than v, and is compiled with fused multiply-adds allowed (its products are exact, so its sums
-are the same to the last bit, :func:`_vertex_sums`): 9-10% less time for the pass on both canonical cases,
-whose vertex loop is bound by the number of instructions it issues.
+4 v rather than v, in a compilation of its own with fused multiply-adds allowed (its products are exact
+on up to 8192 sites, so its sums are the same to the last bit; :func:`_vertex_sums`): 9-10% less time for
+the pass on both canonical cases, although the square case's pass then executes 2% more instructions.
 """
 
 from __future__ import annotations
