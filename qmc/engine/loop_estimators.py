@@ -53,8 +53,8 @@ call, so the clearing rides along the last pass over the loops instead of a pass
 diagonal sweep write the marks instead was measured and dropped: the guarded store made the plain-estimator
 step about 3% slower on the square case.  The vertex pass (:func:`_vertex_sums`) runs over the leg index
 4 v rather than v, in a compilation of its own with fused multiply-adds allowed (its products are exact
-on up to 8192 sites, so its sums are the same to the last bit; :func:`_vertex_sums`): 9-10% less time for
-the pass on both canonical cases, although the square case's pass then executes 2% more instructions.
+on up to 8192 sites, so its sums are the same to the last bit): 9-10% less time for the pass on both
+canonical cases, although the square case's pass then executes 2% more instructions.
 """
 
 from __future__ import annotations
@@ -101,7 +101,7 @@ def _vertex_sums(kind, links, tally, ends, n_vertices, n, q2, q4):
     slice 0, in one pass over the bond vertices.  When every operator is one bond vertex (n_vertices == n)
     vertex v is operator v + 1; otherwise a state ends after the last vertex of each operator: ends[v + 1]
     = 1 there, else 0, and the sums are masked with it (no branch).  Fused multiply-adds are allowed here
-    only, where they change nothing: 0 or 1 times Q4 is exact, and so is Q2^2 while Q2 < 2^26 (always on
+    only, where they change nothing: 0 or 1 times Q4 is exact, and so is Q2^2 while Q2 <= 2^26 (always on
     up to 8192 sites, since Q2 <= N^2).  Beyond, a CPU without FMA may round sum_p Q2(p)^2 differently
     in its last bit; one machine always gives the same bins."""
     sum_q2 = 0.0
@@ -221,10 +221,11 @@ def loop_estimators(kind, chain, terms, vertices, probes, tallies, n_vertices, n
             b = U(2 * loop_label(kind, links[U(f & ~1)]))
             tally[b + U(1)] = n * tally[b]
     ends = tallies.loop_ends
-    if n_vertices != n:  # multi-bond operators: mark where they end
+    multi_bond = n_vertices != n  # some operator has several bond vertices: mark where operators end
+    if multi_bond:
         _mark_ends(chain.ops, terms.bond_count, ends)
     sum_q2, sum_q2sq, sum_q4 = _vertex_sums(kind, links, tally, ends, n_vertices, n, q2, q4)
-    if n_vertices != n:
+    if multi_bond:
         for v in range(n_vertices + 1):  # left zero for the next call
             ends[v] = 0
     sum_l2 = np.float64(n_free) * np.float64(n) * np.float64(n)
